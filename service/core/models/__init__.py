@@ -1,0 +1,1 @@
+"""Model families, one module each, behind the shape of ``models.base``."""

@@ -1,0 +1,136 @@
+"""The one shape every model family has.
+
+A *specification* is a frozen dataclass of hyperparameters; ``spec.fit(y, seasonal_period)``
+returns a *fitted model* that forecasts, describes itself and can be re-filtered on another
+history with its parameters held fixed (cheap rolling-origin evaluation).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any, ClassVar, Protocol, runtime_checkable
+
+import numpy as np
+import pandas as pd
+
+from service.core.intervals import Interval
+
+
+@dataclass(frozen=True)
+class FitWarning:
+    """A warning raised while fitting (library warnings are data, returned to the caller)."""
+
+    code: str
+    message: str
+
+
+@dataclass(frozen=True)
+class Forecast:
+    """Point path and one interval per coverage level, on the original scale."""
+
+    index: pd.DatetimeIndex
+    point: np.ndarray
+    intervals: tuple[Interval, ...]
+
+
+@dataclass(frozen=True)
+class Description:
+    """What a fitted model is: its label, estimated parameters and fit statistics."""
+
+    family: str
+    label: str
+    specification: dict[str, Any]
+    parameters: dict[str, float]
+    information_criteria: dict[str, float]
+    residual_variance: float | None
+    residual_diagnostics: dict[str, Any]
+    observations: int
+    fit_seconds: float
+
+
+@dataclass(frozen=True)
+class ParameterInfo:
+    """One entry of the model catalogue: a parameter, its default and its constraints."""
+
+    name: str
+    kind: str
+    default: Any
+    description: str
+    allowed: tuple[Any, ...] | None = None
+    minimum: float | None = None
+    maximum: float | None = None
+
+
+def parameter(
+    default: Any,
+    description: str,
+    *,
+    kind: str | None = None,
+    allowed: Sequence[Any] | None = None,
+    minimum: float | None = None,
+    maximum: float | None = None,
+) -> Any:
+    """A dataclass field carrying its catalogue entry in the field metadata."""
+    info = {
+        "description": description,
+        "kind": kind,
+        "allowed": tuple(allowed) if allowed is not None else None,
+        "minimum": minimum,
+        "maximum": maximum,
+    }
+    return field(default=default, metadata={"windvane": info})
+
+
+@runtime_checkable
+class Fitted(Protocol):
+    """A fitted model: forecasts, describes itself and re-filters on another history."""
+
+    specification: Specification
+    warnings: list[FitWarning]
+
+    def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast: ...
+
+    def describe(self) -> Description: ...
+
+    def refilter(self, y: pd.Series) -> Fitted: ...
+
+    def fitted_values(self) -> pd.Series: ...
+
+    def residuals(self) -> pd.Series: ...
+
+
+class Specification(Protocol):
+    """Hyperparameters of one model family; hashable and JSON-serialisable."""
+
+    family: ClassVar[str]
+    summary: ClassVar[str]
+
+    def fit(self, y: pd.Series, seasonal_period: int = 1) -> Fitted: ...
+
+
+def as_dict(spec: Any) -> dict[str, Any]:
+    """The JSON form of a specification: its family and every hyperparameter, nested."""
+    out: dict[str, Any] = {"family": spec.family}
+    for f in dataclasses.fields(spec):
+        value = getattr(spec, f.name)
+        out[f.name] = _jsonable(value)
+    return out
+
+
+def _jsonable(value: Any) -> Any:
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return as_dict(value)
+    if isinstance(value, tuple):
+        return [_jsonable(v) for v in value]
+    return value
+
+
+def future_index(index: pd.DatetimeIndex, horizon: int) -> pd.DatetimeIndex:
+    """The ``horizon`` timestamps that continue a regular index at its frequency."""
+    freq = index.freq
+    if freq is None:
+        raise ValueError("the series index has no frequency; parse it with core.series first")
+    start = index[-1] + freq
+    return pd.date_range(start=start, periods=horizon, freq=freq, tz=index.tz)
