@@ -1,0 +1,55 @@
+"""All settings in one object, read from the environment with the prefix WINDVANE_."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Literal
+
+from pydantic import Field
+from pydantic_settings import BaseSettings, SettingsConfigDict
+
+
+class Settings(BaseSettings):
+    """Service settings; every field is the environment variable WINDVANE_<NAME>."""
+
+    model_config = SettingsConfigDict(env_prefix="WINDVANE_", extra="ignore")
+
+    host: str = Field("127.0.0.1", description="Address `windvane serve` binds to.")
+    port: int = Field(8000, ge=1, le=65535, description="Port `windvane serve` listens on.")
+    workers: int = Field(1, ge=1, le=64, description="HTTP server processes.")
+    pool_workers: int = Field(
+        2, ge=1, le=64, description="Worker processes per server process for fits."
+    )
+    queue_size: int = Field(
+        16, ge=0, le=10_000, description="Requests that may wait for a worker before 503."
+    )
+    fit_seconds: float = Field(
+        30.0, gt=0, le=3600, description="Time budget of one request's CPU work, seconds."
+    )
+    max_points: int = Field(
+        100_000, ge=10, le=10_000_000, description="Most points accepted in one series."
+    )
+    max_horizon: int = Field(1_000, ge=1, le=100_000, description="Longest forecast horizon.")
+    max_body_bytes: int = Field(
+        8_000_000,
+        ge=1_000,
+        le=1_000_000_000,
+        description="Largest request body, bytes (413 beyond).",
+    )
+    max_batch_series: int = Field(
+        100, ge=1, le=10_000, description="Most series in one batch request."
+    )
+    cache: Literal["on", "off"] = Field("on", description="`off` disables the result cache.")
+    cache_dir: Path = Field(
+        Path(".windvane-cache"), description="Directory of the on-disk cache (created 0700)."
+    )
+    cache_max_bytes: int = Field(
+        512_000_000, ge=0, description="Size bound of the on-disk cache, bytes."
+    )
+    cache_memory_items: int = Field(1_024, ge=0, description="Finished responses kept in memory.")
+    log_level: Literal["debug", "info", "warning", "error"] = Field(
+        "info", description="Log level of the JSON request log."
+    )
+    shutdown_grace_seconds: float = Field(
+        30.0, ge=0, le=3600, description="How long in-flight requests may finish on SIGTERM."
+    )

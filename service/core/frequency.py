@@ -1,0 +1,188 @@
+"""Frequencies: ISO 8601 durations and pandas aliases to offsets, and default seasonal periods.
+
+Default seasonal period by step (the cycle most business series repeat):
+
+| step                 | period | cycle                |
+| -------------------- | ------ | -------------------- |
+| n seconds            | 60/n   | a minute (if n divides 60, else 1) |
+| n minutes            | 1440/n | a day (if n divides 1440, else 1)  |
+| n hours              | 24/n   | a day (if n divides 24, else 1)    |
+| 1 day                | 7      | a week               |
+| business day         | 5      | a working week       |
+| n days (n > 1)       | 1      | none                 |
+| 1 week               | 52     | a year               |
+| n weeks              | 52/n   | a year (if n divides 52, else 1)   |
+| n months             | 12/n   | a year (if n divides 12, else 1): monthly 12, quarterly 4 |
+| a year or longer     | 1      | none                 |
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+import pandas as pd
+from pandas.tseries import offsets
+from pandas.tseries.frequencies import to_offset
+
+from service.core.errors import SeriesError
+
+_ISO_DURATION = re.compile(
+    r"^P(?:(?P<years>\d+)Y)?(?:(?P<months>\d+)M)?(?:(?P<weeks>\d+)W)?(?:(?P<days>\d+)D)?"
+    r"(?:T(?:(?P<hours>\d+)H)?(?:(?P<minutes>\d+)M)?(?:(?P<seconds>\d+)S)?)?$"
+)
+
+_WEEKDAYS = ("MON", "TUE", "WED", "THU", "FRI", "SAT", "SUN")
+
+
+@dataclass(frozen=True)
+class Step:
+    """A regular step reduced to one unit: months, weeks, days, business days or seconds."""
+
+    unit: str
+    count: int
+
+
+def parse_frequency(text: str, first: pd.Timestamp | None, field: str) -> pd.DateOffset:
+    """An offset from an ISO 8601 duration (``P1W``) or a pandas alias (``W-MON``).
+
+    Durations are anchored on the first timestamp: ``P1M`` on a month start is ``MS``, on a
+    month end ``ME``; ``P1W`` is ``W-<weekday of the first timestamp>``.
+    """
+    if not isinstance(text, str) or not text.strip():
+        raise SeriesError("frequency must be a non-empty string", field=field)
+    text = text.strip()
+    if text.startswith("P"):
+        return _from_duration(text, first, field)
+    try:
+        offset = to_offset(text)
+    except (ValueError, TypeError) as exc:
+        raise SeriesError(
+            f"unknown frequency {text!r}: give an ISO 8601 duration such as P1D, P1W, P1M, "
+            "PT1H, or a pandas alias such as D, W-MON, MS, h",
+            field=field,
+        ) from exc
+    if offset is None or step_of(offset) is None:
+        raise SeriesError(f"unsupported frequency {text!r}", field=field)
+    return offset
+
+
+def _from_duration(text: str, first: pd.Timestamp | None, field: str) -> pd.DateOffset:
+    match = _ISO_DURATION.match(text)
+    parts = {k: int(v) for k, v in (match.groupdict().items() if match else []) if v}
+    if not match or not parts or not any(parts.values()):
+        raise SeriesError(f"invalid ISO 8601 duration {text!r}", field=field)
+    calendar = {k for k in ("years", "months", "weeks") if k in parts}
+    clock = {k for k in ("days", "hours", "minutes", "seconds") if k in parts}
+    if len(calendar) > 1 or (calendar and clock):
+        raise SeriesError(
+            f"duration {text!r} mixes calendar units; use one unit such as P3M or PT36H",
+            field=field,
+        )
+    if "years" in parts or "months" in parts:
+        months = parts.get("years", 0) * 12 + parts.get("months", 0)
+        return _monthly(months, first)
+    if "weeks" in parts:
+        weekday = _WEEKDAYS[first.weekday()] if first is not None else "SUN"
+        return to_offset(f"{parts['weeks']}W-{weekday}")
+    seconds = (
+        parts.get("days", 0) * 86400
+        + parts.get("hours", 0) * 3600
+        + parts.get("minutes", 0) * 60
+        + parts.get("seconds", 0)
+    )
+    if seconds % 86400 == 0:
+        return to_offset(f"{seconds // 86400}D")
+    if seconds % 3600 == 0:
+        return to_offset(f"{seconds // 3600}h")
+    if seconds % 60 == 0:
+        return to_offset(f"{seconds // 60}min")
+    return to_offset(f"{seconds}s")
+
+
+def _monthly(months: int, first: pd.Timestamp | None) -> pd.DateOffset:
+    months_names = (
+        "JAN",
+        "FEB",
+        "MAR",
+        "APR",
+        "MAY",
+        "JUN",
+        "JUL",
+        "AUG",
+        "SEP",
+        "OCT",
+        "NOV",
+        "DEC",
+    )
+    if first is not None and months % 12 == 0 and (first.is_month_start or first.is_month_end):
+        anchor = "YS" if first.is_month_start else "YE"
+        return to_offset(f"{months // 12}{anchor}-{months_names[first.month - 1]}")
+    if first is None or first.is_month_start:
+        return to_offset(f"{months}MS")
+    if first.is_month_end:
+        return to_offset(f"{months}ME")
+    return pd.DateOffset(months=months)
+
+
+def step_of(offset: pd.DateOffset) -> Step | None:
+    """The step of an offset in one unit, or None for offsets Windvane does not support."""
+    n = int(offset.n)
+    if n < 1:
+        return None
+    if isinstance(offset, (offsets.MonthBegin, offsets.MonthEnd)):
+        return Step("months", n)
+    if isinstance(offset, (offsets.QuarterBegin, offsets.QuarterEnd)):
+        return Step("months", 3 * n)
+    if isinstance(offset, (offsets.YearBegin, offsets.YearEnd)):
+        return Step("months", 12 * n)
+    if isinstance(offset, offsets.Week):
+        return Step("weeks", n)
+    if isinstance(offset, offsets.BusinessDay):
+        return Step("business_days", n)
+    if isinstance(offset, offsets.Day):
+        return Step("seconds", 86400 * n)
+    if isinstance(offset, offsets.Tick):
+        return Step("seconds", int(pd.Timedelta(offset).total_seconds()))
+    if type(offset) is pd.DateOffset:
+        kwds = offset.kwds
+        if set(kwds) == {"months"}:
+            return Step("months", n * int(kwds["months"]))
+        if set(kwds) == {"years"}:
+            return Step("months", 12 * n * int(kwds["years"]))
+    return None
+
+
+def default_seasonal_period(offset: pd.DateOffset) -> int:
+    """The period of the cycle a series at this step usually repeats (table in the docstring)."""
+    step = step_of(offset)
+    if step is None:
+        return 1
+    cycles = {"months": 12, "weeks": 52}
+    if step.unit in cycles:
+        return _divides(cycles[step.unit], step.count)
+    if step.unit == "business_days":
+        return 5 if step.count == 1 else 1
+    seconds = step.count
+    if seconds == 86400:
+        return 7
+    if seconds % 3600 == 0 and seconds < 86400:
+        return _divides(24, seconds // 3600)
+    if seconds % 60 == 0 and seconds < 3600:
+        return _divides(1440, seconds // 60)
+    if seconds < 60:
+        return _divides(60, seconds)
+    return 1
+
+
+def _divides(cycle: int, count: int) -> int:
+    return cycle // count if cycle % count == 0 and cycle // count > 1 else 1
+
+
+def frequency_name(offset: pd.DateOffset) -> str:
+    """The pandas alias of an offset (``W-MON``, ``MS``, ``h``), or an ISO 8601 duration."""
+    if type(offset) is pd.DateOffset:
+        step = step_of(offset)
+        if step is not None:
+            return f"P{step.count}M"
+    return str(offset.freqstr)
