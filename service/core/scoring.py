@@ -38,7 +38,7 @@ def rmse(actual: np.ndarray, forecast: np.ndarray) -> float:
 
 
 def smape(actual: np.ndarray, forecast: np.ndarray) -> float:
-    """Symmetric MAPE in percent, 200·|a−f|/(|a|+|f|), as in M3/M4; a step with a = f = 0 scores 0."""
+    """Symmetric MAPE in percent, 200·|a−f|/(|a|+|f|), as in M3/M4; a = f = 0 scores 0."""
     a, f = _pair(actual, forecast)
     if not a.size:
         return float("nan")
