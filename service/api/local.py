@@ -1,0 +1,26 @@
+"""Answer a request in process, without HTTP or the pool (the `windvane forecast` command)."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from service import __version__
+from service.api.routes.forecasts import forecast_task
+from service.api.schemas.forecasts import ForecastRequest
+from service.config import Settings
+from service.runtime import jobs
+from service.runtime.keys import data_key, runtime_versions
+
+
+def answer(path: str, raw: str, settings: Settings | None = None) -> dict[str, Any]:
+    """The body the endpoint at ``path`` would return for the JSON ``raw``."""
+    settings = settings or Settings()
+    if path == "/v1/forecasts":
+        request = ForecastRequest.model_validate_json(raw)
+        task, series = forecast_task(request, settings)
+        body = jobs.forecast(task)
+        body["provenance"] = {"data_hash": data_key(series.y).label, "cache": "off",
+                              "service_version": __version__,
+                              "library_versions": runtime_versions()}
+        return body
+    raise ValueError(f"no local answer for {path}")

@@ -1,0 +1,130 @@
+"""RFC 9457 problem documents: one builder, and the mapping of every error path onto it."""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Sequence
+from http import HTTPStatus
+from typing import Any
+
+from fastapi import FastAPI, Request
+from fastapi.exceptions import RequestValidationError
+from fastapi.responses import JSONResponse
+from starlette.exceptions import HTTPException as StarletteHTTPException
+
+from service.core.errors import WindvaneError
+from service.runtime.pool import BudgetExceeded, PoolBusy
+
+PROBLEM_MEDIA_TYPE = "application/problem+json"
+log = logging.getLogger("windvane.errors")
+
+
+def problem_response(status: int, code: str, detail: str, request: Request | None = None, *,
+                     title: str | None = None, errors: Sequence[dict[str, str]] = (),
+                     headers: dict[str, str] | None = None) -> JSONResponse:
+    """A problem+json response with type, title, status, detail, instance and errors."""
+    body: dict[str, Any] = {
+        "type": f"/problems/{code.replace('_', '-')}",
+        "title": title or HTTPStatus(status).phrase,
+        "status": status,
+        "detail": detail,
+        "instance": request.url.path if request is not None else "",
+        "code": code,
+        "errors": list(errors),
+    }
+    if request is not None:
+        rid = getattr(request.state, "request_id", None)
+        if rid:
+            body["request_id"] = rid
+    return JSONResponse(body, status_code=status, headers=headers, media_type=PROBLEM_MEDIA_TYPE)
+
+
+def field_path(loc: Sequence[Any]) -> str:
+    """("body", "series", "values", 3) -> "series.values[3]"."""
+    parts = list(loc)
+    if parts and parts[0] in ("body", "query", "path", "header"):
+        parts = parts[1:]
+    out = ""
+    for p in parts:
+        if isinstance(p, int):
+            out += f"[{p}]"
+        elif str(p).startswith(("function-", "literal[", "dict[", "list[", "tagged-union")):
+            continue  # pydantic's union-branch labels say nothing to a caller
+        else:
+            out += f".{p}" if out else str(p)
+    return out or "body"
+
+
+async def _validation(request: Request, exc: Exception) -> JSONResponse:
+    assert isinstance(exc, RequestValidationError)
+    errors = exc.errors()
+    if any(e.get("type") == "json_invalid" for e in errors):
+        first = next(e for e in errors if e.get("type") == "json_invalid")
+        where = first.get("ctx", {}).get("error", "invalid JSON")
+        return problem_response(400, "malformed_json", f"the body is not valid JSON: {where}",
+                                request, title="Malformed JSON",
+                                errors=[{"field": "body", "message": str(where)}])
+    seen: dict[str, str] = {}
+    for e in errors:
+        path = field_path(e.get("loc", ()))
+        seen.setdefault(path, _message(e))
+    listed = [{"field": f, "message": m} for f, m in seen.items()]
+    first = listed[0]
+    return problem_response(422, "invalid_request", f"{first['field']}: {first['message']}",
+                            request, title="Invalid request", errors=listed)
+
+
+def _message(error: dict[str, Any]) -> str:
+    kind = error.get("type", "")
+    if kind == "missing":
+        return "this field is required"
+    if kind == "extra_forbidden":
+        return "unknown field"
+    return str(error.get("msg", "invalid value"))
+
+
+async def _domain(request: Request, exc: Exception) -> JSONResponse:
+    assert isinstance(exc, WindvaneError)
+    errors = [{"field": p.field, "message": p.message} for p in exc.problems]
+    return problem_response(422, exc.code, exc.message, request, title=exc.title, errors=errors)
+
+
+async def _http(request: Request, exc: Exception) -> JSONResponse:
+    assert isinstance(exc, StarletteHTTPException)
+    codes = {404: "not_found", 405: "method_not_allowed", 413: "body_too_large",
+             401: "unauthorized", 415: "unsupported_media_type"}
+    detail = exc.detail if isinstance(exc.detail, str) else HTTPStatus(exc.status_code).phrase
+    if exc.status_code == 404 and detail == "Not Found":
+        detail = f"no route {request.url.path}"
+    if exc.status_code == 405 and detail == "Method Not Allowed":
+        detail = f"{request.method} is not allowed on {request.url.path}"
+    return problem_response(exc.status_code, codes.get(exc.status_code, "http_error"), detail,
+                            request, headers=getattr(exc, "headers", None))
+
+
+async def _busy(request: Request, exc: Exception) -> JSONResponse:
+    assert isinstance(exc, PoolBusy)
+    return problem_response(503, "overloaded", str(exc), request, title="Service busy",
+                            headers={"Retry-After": str(exc.retry_after)})
+
+
+async def _budget(request: Request, exc: Exception) -> JSONResponse:
+    assert isinstance(exc, BudgetExceeded)
+    return problem_response(503, "time_budget_exceeded", str(exc), request,
+                            title="Time budget exceeded", headers={"Retry-After": "5"})
+
+
+async def _unexpected(request: Request, exc: Exception) -> JSONResponse:
+    log.exception("unhandled error on %s %s", request.method, request.url.path)
+    return problem_response(500, "internal_error",
+                            "the server failed to answer; the error was logged", request)
+
+
+def install_problem_handlers(app: FastAPI) -> None:
+    """Route every error path of the app through problem_response."""
+    app.add_exception_handler(RequestValidationError, _validation)
+    app.add_exception_handler(WindvaneError, _domain)
+    app.add_exception_handler(StarletteHTTPException, _http)
+    app.add_exception_handler(PoolBusy, _busy)
+    app.add_exception_handler(BudgetExceeded, _budget)
+    app.add_exception_handler(Exception, _unexpected)

@@ -1,0 +1,1 @@
+"""Request and response schemas, one module per endpoint group."""

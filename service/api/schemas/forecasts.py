@@ -1,0 +1,83 @@
+"""POST /v1/forecasts: request and response."""
+
+from __future__ import annotations
+
+from typing import Any, Literal
+
+from pydantic import BaseModel, Field
+
+from service.api.schemas.common import Provenance, SeriesIn, Strict, WarningOut
+
+
+class RegressorIn(Strict):
+    """An external variable for ARIMA: values aligned to the series and for the horizon."""
+
+    name: str = Field(max_length=100)
+    history: list[Any] = Field(description="One value per series timestamp.")
+    future: list[Any] | None = Field(None, description="One value per forecast step.")
+
+
+class TransformIn(Strict):
+    """A variance-stabilising transform applied before fitting and undone after."""
+
+    kind: Literal["none", "log", "boxcox"] = "none"
+    parameter: float | None = Field(
+        None, description="Box-Cox lambda; estimated by maximum likelihood when absent.")
+    bias_adjust: bool = Field(
+        True, description="Back-transform to the mean (true) or to the median (false).")
+
+
+class ForecastRequest(Strict):
+    """A series, how far ahead, which interval levels, and which model."""
+
+    series: SeriesIn
+    horizon: int = Field(ge=1, description="Steps ahead to forecast.")
+    coverage: list[float] = Field(
+        default_factory=lambda: [0.8, 0.95], min_length=1, max_length=10,
+        description="Central prediction-interval levels, each strictly between 0 and 1.")
+    model: Literal["auto"] | dict[str, Any] = Field(
+        "auto", description="`auto`, or a specification such as {\"family\": \"naive\"}.")
+    candidates: list[dict[str, Any]] | None = Field(
+        None, max_length=20, description="With `auto`: the specifications to choose among.")
+    transform: Literal["none", "log", "boxcox"] | TransformIn = "none"
+    regressors: list[RegressorIn] | None = Field(None, max_length=20)
+    include: list[Literal["fitted", "residuals"]] = Field(default_factory=list)
+    metric: Literal["mase", "smape", "rmse"] = Field(
+        "mase", description="With `auto`: the backtest score that ranks candidates.")
+
+
+class IntervalOut(BaseModel):
+    """The bounds at one coverage level."""
+
+    coverage: float
+    lower: list[float]
+    upper: list[float]
+
+
+class ModelOut(BaseModel):
+    """The fitted model's metadata."""
+
+    family: str
+    label: str
+    specification: dict[str, Any]
+    parameters: dict[str, Any]
+    information_criteria: dict[str, float]
+    residual_variance: float | None = None
+    residual_diagnostics: dict[str, Any] = {}
+    observations: int
+    fit_seconds: float
+
+
+class ForecastResponse(BaseModel):
+    """Point forecasts with intervals, the model used, how it was chosen, and provenance."""
+
+    name: str | None = None
+    timestamps: list[str]
+    point: list[float]
+    intervals: list[IntervalOut]
+    model: ModelOut
+    selection: dict[str, Any] | None = None
+    warnings: list[WarningOut] = []
+    fitted: list[float | None] | None = None
+    residuals: list[float | None] | None = None
+    provenance: Provenance
