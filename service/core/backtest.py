@@ -311,35 +311,6 @@ def _unique(items: Iterable[FitWarning]) -> list[FitWarning]:
     return out
 
 
-def combine(members: Sequence[ModelBacktest], label: str | None = None) -> ModelBacktest:
-    """Equal-weight combination of members' backtests: points and bounds averaged per origin.
-
-    Averaging interval bounds is quantile averaging (Lichtendahl, Grushka-Cockayne & Winkler 2013).
-    """
-    first = members[0]
-    forecasts = []
-    for k, f in enumerate(first.forecasts):
-        parts = [m.forecasts[k] for m in members]
-        forecasts.append(
-            OriginForecast(
-                origin=f.origin,
-                actual=f.actual,
-                point=np.mean([p.point for p in parts], axis=0),
-                lower={v: np.mean([p.lower[v] for p in parts], axis=0) for v in first.levels},
-                upper={v: np.mean([p.upper[v] for p in parts], axis=0) for v in first.levels},
-                scale=f.scale,
-            )
-        )
-    return ModelBacktest(
-        {"family": "combination", "members": [m.specification for m in members]},
-        label or "Combination(" + ", ".join(m.label for m in members) + ")",
-        tuple(forecasts),
-        first.levels,
-        sum(m.fit_seconds for m in members),
-        sum(m.refilter_seconds for m in members),
-    )
-
-
 @dataclass(frozen=True)
 class RankEntry:
     """A model's place in the ranking by the chosen metric."""
@@ -391,11 +362,19 @@ def run(
     plan: Plan,
     coverage: Sequence[float],
     map_fn: MapFn[Task, ModelBacktest] | None = None,
+    periods: Sequence[int] | None = None,
 ) -> list[ModelBacktest]:
-    """Evaluate every specification over one plan, through ``map_fn`` when given."""
+    """Evaluate every specification over one plan, through ``map_fn`` when given.
+
+    ``periods`` overrides the period each specification is fitted with (default
+    ``seasonal_period`` for all); the MASE scale always uses ``seasonal_period``.
+    """
     levels = check_coverage(coverage)
-    scale_period = seasonal_period if seasonal_period > 1 else 1
-    tasks = [Task(s, y, seasonal_period, plan, levels, scale_period) for s in specifications]
+    fit_periods = list(periods) if periods is not None else [seasonal_period] * len(specifications)
+    tasks = [
+        Task(s, y, p, plan, levels, seasonal_period)
+        for s, p in zip(specifications, fit_periods, strict=True)
+    ]
     mapper = map_fn or map
     return list(mapper(evaluate, tasks))
 

@@ -1,0 +1,371 @@
+"""Automatic model selection: candidates from the profile, ranked by a rolling-origin backtest.
+
+Rules (stated for DEVELOPERS.md):
+- Within a family the family's own search decides (ETS by AICc over the taxonomy, ARIMA by
+  the stepwise AICc search, ...), run on the data before the first origin only.
+- Across families: ``origins`` (default 3) rolling origins at the requested horizon, ``step``
+  apart (``horizon`` when the series allows it, shrinking to 1, then fewer origins), scored by
+  ``metric`` (mase | smape | rmse | mae). Each candidate is fitted once and re-filtered forward.
+- Combination: the equal-weight mean of the top 3 working candidates replaces the winner when
+  its backtest score is lower than the winner's.
+- Naive guard: when the series is judged a random walk and the best candidate's skill over the
+  benchmark is below 0.05, the naive forecast is returned with ``no_skill_over_naive``.
+- skill_over_naive = 1 − score(chosen) / score(benchmark), the benchmark being seasonal naive
+  for a seasonal series and naive otherwise.
+- The chosen specification is then refitted on the full series; its intervals are rescaled by
+  split-conformal factors when the calibration backtest has >= 5 origins (see calibration.py).
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from service.core import calibration as cal
+from service.core.averaging import CombinedFitted, combine
+from service.core.backtest import (
+    MapFn,
+    ModelBacktest,
+    Plan,
+    RankEntry,
+    Task,
+    minimum_training,
+    rank,
+    run,
+)
+from service.core.candidates import CandidateSet, SeriesProfile, candidates_for, profile_series
+from service.core.checks import check_coverage, check_positive_int
+from service.core.errors import FitError, RequestError
+from service.core.models.base import (
+    Fitted,
+    FitWarning,
+    Forecast,
+    Specification,
+)
+from service.core.models.naive import NaiveSpec
+from service.core.models.seasonal_naive import SeasonalNaiveSpec
+from service.core.scoring import check_metric
+
+SKILL_MARGIN = 0.05
+COMBINE_TOP = 3
+CALIBRATION_ORIGINS = 8
+NO_SKILL_MESSAGE = (
+    "The series behaves like a random walk and no candidate beat the naive forecast by 5 % in "
+    "the backtest, so the naive forecast (the last value) is returned. A low error here does "
+    "not mean a useful model: it only says the next value is close to the current one."
+)
+
+
+@dataclass(frozen=True)
+class Selection:
+    """The response's ``selection`` part: how the model was chosen and how it scored."""
+
+    metric: str
+    rule: str
+    chosen: str
+    ranking: tuple[RankEntry, ...]
+    benchmark: str
+    skill_over_naive: float | None
+    horizon: int
+    step: int
+    origins: tuple[pd.Timestamp, ...]
+    calibration: cal.Calibration | None
+    candidates: CandidateSet
+    profile: SeriesProfile
+    failures: tuple[tuple[str, str], ...] = ()
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON form."""
+        return {
+            "metric": self.metric,
+            "rule": self.rule,
+            "chosen": self.chosen,
+            "ranking": [
+                {"label": r.label, "specification": r.specification, "score": _num(r.score)}
+                for r in self.ranking
+            ],
+            "benchmark": self.benchmark,
+            "skill_over_naive": self.skill_over_naive,
+            "backtest": {
+                "horizon": self.horizon,
+                "step": self.step,
+                "origins": [o.isoformat() for o in self.origins],
+            },
+            "calibration": self.calibration.to_dict() if self.calibration else None,
+            "candidates": self.candidates.to_dict(),
+            "profile": {
+                "seasonal": self.profile.seasonal,
+                "seasonal_period": self.profile.seasonal_period,
+                "positive": self.profile.positive,
+                "zero_share": self.profile.zero_share,
+                "intermittent": self.profile.intermittent,
+                "short": self.profile.short,
+                "random_walk": self.profile.random_walk,
+                "random_walk_reason": self.profile.random_walk_reason,
+            },
+            "failures": [{"label": label, "reason": why} for label, why in self.failures],
+        }
+
+
+@dataclass(frozen=True)
+class AutoForecast:
+    """The outcome of ``select``: the refitted model, its (calibrated) forecast and the story."""
+
+    fitted: Fitted
+    forecast: Forecast
+    selection: Selection
+    warnings: tuple[FitWarning, ...]
+    seconds: dict[str, float] = field(default_factory=dict)
+
+
+def _num(value: float) -> float | None:
+    return float(value) if np.isfinite(value) else None
+
+
+def selection_plan(n: int, horizon: int, origins: int, seasonal_period: int) -> Plan | None:
+    """The widest honest plan: step = horizon if it fits, else smaller, then fewer origins."""
+    need = minimum_training(seasonal_period)
+    for k in range(origins, 0, -1):
+        for step in range(horizon, 0, -1):
+            first = n - horizon - step * (k - 1)
+            if first >= need:
+                return Plan(tuple(first + step * j for j in range(k)), horizon, step)
+            if k == 1:
+                break
+    return None
+
+
+def calibration_plan(n: int, horizon: int, seasonal_period: int) -> Plan | None:
+    """Up to 8 origins, a quarter-horizon apart (or 1), keeping half the series for fitting.
+
+    Returns None when fewer than ``calibration.MINIMUM_ORIGINS`` origins fit.
+    """
+    need = max(minimum_training(seasonal_period), n // 2)
+    for k in range(CALIBRATION_ORIGINS, cal.MINIMUM_ORIGINS - 1, -1):
+        for step in sorted({max(1, horizon // 4), 1}, reverse=True):
+            first = n - horizon - step * (k - 1)
+            if first >= need:
+                return Plan(tuple(first + step * j for j in range(k)), horizon, step)
+    return None
+
+
+def _periods(specs: Sequence[Specification], profile: SeriesProfile) -> list[int]:
+    """Seasonal naive and STL see the true period; the rest the profile's model period."""
+    out = []
+    for s in specs:
+        full = s.family in ("seasonal_naive", "stl")
+        out.append(profile.benchmark_period if full else profile.model_period)
+    return out
+
+
+def select(
+    y: pd.Series,
+    seasonal_period: int,
+    horizon: int,
+    coverage: Sequence[float] = (0.8, 0.95),
+    *,
+    metric: str = "mase",
+    origins: int = 3,
+    candidates: Sequence[Specification] | None = None,
+    diagnostics: Any | None = None,
+    map_fn: MapFn[Task, ModelBacktest] | None = None,
+) -> AutoForecast:
+    """Model "auto": choose by backtest, refit on the full series, forecast, calibrate."""
+    clock = _Clock()
+    check_positive_int(horizon, "horizon")
+    check_positive_int(origins, "origins")
+    check_positive_int(seasonal_period, "series.seasonal_period")
+    check_metric(metric)
+    levels = check_coverage(coverage)
+    profile = profile_series(y, seasonal_period, diagnostics)
+    chosen_set = candidates_for(profile) if candidates is None else _given(candidates)
+    specs = _with_benchmarks(list(chosen_set.specifications), profile)
+    clock.lap("profile")
+
+    plan = selection_plan(len(y), horizon, origins, profile.benchmark_period)
+    if plan is None:
+        raise RequestError(
+            f"{len(y)} points are too few to backtest a horizon of {horizon}; "
+            f"at least {minimum_training(profile.benchmark_period) + horizon} are needed",
+            field="horizon",
+        )
+    periods = _periods(specs, profile)
+    results = run(y, specs, profile.benchmark_period, plan, levels, map_fn, periods)
+    clock.lap("backtest")
+
+    by_label = {id(s): r for s, r in zip(specs, results, strict=True)}
+    ranking = rank(results, metric)
+    working = [r for r in sorted(results, key=lambda r: r.score(metric)) if r.ok]
+    if not working:
+        raise FitError("no candidate could be fitted to this series", field="series.values")
+    failures = tuple((r.label, r.failure or "") for r in results if not r.ok)
+    bench_spec = _benchmark(specs, profile)
+    bench = by_label[id(bench_spec)]
+    bench_score = bench.score(metric)
+
+    rule, members = "winner", [working[0]]
+    if len(working) >= 2:
+        top = working[:COMBINE_TOP]
+        mixed = combine(top)
+        if mixed.score(metric) < working[0].score(metric):
+            rule, members = "combination", top
+            ranking = (*ranking, RankEntry(mixed.label, mixed.specification, mixed.score(metric)))
+            ranking = tuple(sorted(ranking, key=lambda r: r.score))
+    chosen_bt = combine(members) if len(members) > 1 else members[0]
+    skill = _skill(chosen_bt.score(metric), bench_score)
+
+    extra: list[FitWarning] = []
+    naive_bt = by_label[id(next(s for s in specs if s.family == "naive"))]
+    over_naive = _skill(chosen_bt.score(metric), naive_bt.score(metric))
+    if profile.random_walk and (over_naive is None or over_naive < SKILL_MARGIN):
+        rule, members = "naive_guard", [naive_bt]
+        chosen_bt = members[0]
+        skill = _skill(chosen_bt.score(metric), bench_score)
+        extra.append(FitWarning("no_skill_over_naive", NO_SKILL_MESSAGE))
+
+    member_specs = [_spec_of(specs, results, m) for m in members]
+    calibration = _calibrate(y, member_specs, profile, plan, chosen_bt, levels, map_fn)
+    clock.lap("calibration")
+
+    fitted = _refit(y, member_specs, profile, chosen_bt.label)
+    clock.lap("refit")
+    forecast = cal.apply(fitted.forecast(horizon, levels), calibration)
+    clock.lap("forecast")
+
+    selection = Selection(
+        metric=metric,
+        rule=rule,
+        chosen=chosen_bt.label,
+        ranking=ranking,
+        benchmark=bench.label,
+        skill_over_naive=skill,
+        horizon=plan.horizon,
+        step=plan.step,
+        origins=tuple(y.index[o] for o in plan.origins),
+        calibration=calibration,
+        candidates=chosen_set,
+        profile=profile,
+        failures=failures,
+    )
+    warnings_out = tuple(extra) + tuple(fitted.warnings)
+    return AutoForecast(fitted, forecast, selection, warnings_out, clock.laps)
+
+
+class _Clock:
+    """Seconds per stage, for the speed benchmark and the logs."""
+
+    def __init__(self) -> None:
+        self.laps: dict[str, float] = {}
+        self._last = time.perf_counter()
+
+    def lap(self, name: str) -> None:
+        now = time.perf_counter()
+        self.laps[name] = now - self._last
+        self._last = now
+
+
+def _given(candidates: Sequence[Specification]) -> CandidateSet:
+    if not candidates:
+        raise RequestError("candidates must not be empty", field="candidates")
+    return CandidateSet(tuple(candidates), tuple("requested" for _ in candidates))
+
+
+def _with_benchmarks(specs: list[Specification], profile: SeriesProfile) -> list[Specification]:
+    """Naive, and seasonal naive when seasonal, are always evaluated: skill needs them."""
+    families = {s.family for s in specs}
+    out = list(specs)
+    if "naive" not in families:
+        out.insert(0, NaiveSpec())
+    if profile.seasonal and "seasonal_naive" not in families:
+        out.insert(1, SeasonalNaiveSpec())
+    return out
+
+
+def _benchmark(specs: Sequence[Specification], profile: SeriesProfile) -> Specification:
+    wanted = "seasonal_naive" if profile.seasonal else "naive"
+    return next(s for s in specs if s.family == wanted)
+
+
+def _skill(score: float, benchmark: float) -> float | None:
+    if not (np.isfinite(score) and np.isfinite(benchmark)) or benchmark <= 0:
+        return None
+    return float(1.0 - score / benchmark)
+
+
+def _spec_of(
+    specs: Sequence[Specification], results: Sequence[ModelBacktest], member: ModelBacktest
+) -> Specification:
+    for s, r in zip(specs, results, strict=True):
+        if r is member:
+            return s
+    raise LookupError(member.label)
+
+
+def _calibrate(
+    y: pd.Series,
+    specs: Sequence[Specification],
+    profile: SeriesProfile,
+    plan: Plan,
+    chosen: ModelBacktest,
+    levels: tuple[float, ...],
+    map_fn: MapFn[Task, ModelBacktest] | None,
+) -> cal.Calibration:
+    """Coverage from the selection backtest, or from a longer one of the chosen model."""
+    if len(plan.origins) >= cal.MINIMUM_ORIGINS:
+        return cal.calibrate(chosen)
+    longer = calibration_plan(len(y), plan.horizon, profile.benchmark_period)
+    if longer is None:
+        return cal.calibrate(chosen)
+    periods = _periods(specs, profile)
+    results = run(y, specs, profile.benchmark_period, longer, levels, map_fn, periods)
+    if not all(r.ok for r in results):
+        return cal.calibrate(chosen)
+    return cal.calibrate(combine(results) if len(results) > 1 else results[0])
+
+
+def _refit(
+    y: pd.Series, specs: Sequence[Specification], profile: SeriesProfile, label: str
+) -> Fitted:
+    """The chosen specification(s) estimated on the full series."""
+    periods = _periods(specs, profile)
+    fits = [s.fit(y, p) for s, p in zip(specs, periods, strict=True)]
+    if len(fits) == 1:
+        return fits[0]
+    return CombinedFitted(tuple(fits), label)
+
+
+def backtest_auto(
+    y: pd.Series,
+    seasonal_period: int,
+    *,
+    horizon: int,
+    origins: int = 3,
+    step: int = 1,
+    coverage: Sequence[float] = (0.8, 0.95),
+    metric: str = "mase",
+    diagnostics: Any | None = None,
+    map_fn: MapFn[Task, ModelBacktest] | None = None,
+) -> Any:
+    """POST /v1/backtests with specifications "auto": the candidates ``select`` would try."""
+    from service.core.backtest import BacktestReport, plan_origins
+
+    check_metric(metric)
+    profile = profile_series(y, seasonal_period, diagnostics)
+    specs = _with_benchmarks(list(candidates_for(profile).specifications), profile)
+    plan = plan_origins(len(y), horizon, origins, step, profile.benchmark_period)
+    levels = check_coverage(coverage)
+    models = run(y, specs, profile.benchmark_period, plan, levels, map_fn, _periods(specs, profile))
+    return BacktestReport(
+        metric=metric,
+        horizon=horizon,
+        step=step,
+        origins=tuple(y.index[o] for o in plan.origins),
+        coverage=levels,
+        models=tuple(models),
+        ranking=rank(models, metric),
+    )
