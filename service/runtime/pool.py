@@ -1,14 +1,39 @@
-"""A process pool for CPU work, so that fits never run on the event loop."""
+"""A process pool for CPU work, so that fits never run on the event loop.
+
+Each worker is one process with its own pipe, so a job past its time budget can be stopped
+by killing exactly the worker running it (a ProcessPoolExecutor cannot) and replacing it.
+Admission is bounded: at most ``workers + queue_size`` jobs are admitted, the rest are told
+to retry later. Workers run one BLAS thread each, so N workers use N cores, not N².
+"""
 
 from __future__ import annotations
 
 import asyncio
+import collections
+import contextlib
+import math
 import multiprocessing
-from collections.abc import Callable
-from concurrent.futures import ProcessPoolExecutor
+import os
+import signal
+import time
+import traceback
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from multiprocessing.connection import Connection
 from typing import Any, TypeVar
 
 T = TypeVar("T")
+
+# Read by OpenMP, OpenBLAS, MKL and Accelerate when they load; OPENBLAS_CORETYPE is left alone.
+THREAD_VARIABLES = (
+    "OMP_NUM_THREADS",
+    "OPENBLAS_NUM_THREADS",
+    "MKL_NUM_THREADS",
+    "VECLIB_MAXIMUM_THREADS",
+    "NUMEXPR_NUM_THREADS",
+)
+STARTUP_SECONDS = 120.0
+_READY = "ready"
 
 
 class PoolBusy(RuntimeError):
@@ -20,43 +45,328 @@ class PoolBusy(RuntimeError):
 
 
 class BudgetExceeded(RuntimeError):
-    """A job ran past its time budget and was abandoned."""
+    """A job ran past its time budget; its worker was killed and replaced."""
 
     def __init__(self, budget_seconds: float) -> None:
         super().__init__(f"the work took longer than its budget of {budget_seconds:g} s")
         self.budget_seconds = budget_seconds
 
 
-class WorkPool:
-    """Runs picklable top-level functions in worker processes with admission control."""
+class WorkerCrashed(RuntimeError):
+    """The worker running a job died (killed, out of memory, a crash in native code)."""
 
-    def __init__(self, workers: int, queue_size: int, budget_seconds: float) -> None:
+    def __init__(self, exitcode: int | None) -> None:
+        super().__init__(f"the worker process running this job died (exit code {exitcode})")
+        self.exitcode = exitcode
+
+
+class PoolClosed(RuntimeError):
+    """The pool was shut down while the job waited."""
+
+
+@dataclass(frozen=True)
+class PoolStats:
+    """The pool's occupancy, for gauges and /readyz."""
+
+    workers: int
+    alive: int
+    busy: int
+    queued: int
+    recycled: int
+    start_method: str
+
+
+@dataclass(frozen=True)
+class _Failure:
+    """An exception raised by a job, shipped back with its traceback text for the log."""
+
+    error: BaseException
+    trace: str
+
+
+class _Worker:
+    """One worker process and the parent's end of its pipe."""
+
+    def __init__(self, context: Any, preload: Sequence[str]) -> None:
+        parent, child = context.Pipe(duplex=True)
+        self.conn: Connection = parent
+        self.process = context.Process(
+            target=serve, args=(child, tuple(preload)), daemon=True, name="windvane-worker"
+        )
+        self.process.start()
+        child.close()
+        self.ready = False
+        self.jobs = 0
+
+    def stop(self, kill: bool) -> None:
+        """Ask an idle worker to exit, or kill a busy one; never blocks for long."""
+        with contextlib.suppress(OSError, ValueError):
+            if kill:
+                self.process.kill()
+            else:
+                self.conn.send(None)
+        with contextlib.suppress(OSError):
+            self.conn.close()
+
+
+class WorkPool:
+    """Runs picklable top-level functions in worker processes with budgets and admission control."""
+
+    def __init__(
+        self,
+        workers: int,
+        queue_size: int,
+        budget_seconds: float,
+        *,
+        start_method: str | None = None,
+        preload: Sequence[str] = (),
+        max_jobs_per_worker: int = 0,
+        on_change: Callable[[PoolStats], None] | None = None,
+        on_recycle: Callable[[str], None] | None = None,
+    ) -> None:
         self.workers = workers
         self.queue_size = queue_size
         self.budget_seconds = budget_seconds
-        context = multiprocessing.get_context("spawn")
-        self._executor = ProcessPoolExecutor(max_workers=workers, mp_context=context)
-        self._slots = asyncio.Semaphore(workers + queue_size)
-        self._in_flight = 0
+        self.max_jobs_per_worker = max_jobs_per_worker
+        self.start_method = start_method or _default_start_method()
+        self._context = multiprocessing.get_context(self.start_method)
+        if self.start_method == "forkserver" and preload:
+            # Modules imported once in the fork server make every replacement start in ms.
+            self._context.set_forkserver_preload(list(preload))
+        self._preload = tuple(preload)
+        self._on_change = on_change
+        self._on_recycle = on_recycle
+        self._idle: collections.deque[_Worker] = collections.deque()
+        self._waiters: collections.deque[asyncio.Future[_Worker]] = collections.deque()
+        self._all: set[_Worker] = set()
+        self._admitted = 0
+        self._busy = 0
+        self._recycled = 0
+        self._mean_seconds = 1.0
+        self._closed = False
+        for _ in range(workers):
+            self._spawn()
+        self._changed()
 
-    async def run(self, fn: Callable[..., T], *args: Any) -> T:
-        """Run ``fn(*args)`` in a worker; PoolBusy when the queue is full."""
-        if self._slots.locked():
-            raise PoolBusy(retry_after=1)
-        async with self._slots:
-            self._in_flight += 1
-            try:
-                future = self._executor.submit(fn, *args)
-                return await asyncio.wait_for(asyncio.wrap_future(future), self.budget_seconds)
-            except TimeoutError as exc:
-                raise BudgetExceeded(self.budget_seconds) from exc
-            finally:
-                self._in_flight -= 1
+    # --- public -----------------------------------------------------------------------
+    async def run(self, fn: Callable[..., T], *args: Any, budget_seconds: float | None = None) -> T:
+        """Run ``fn(*args)`` in a worker: PoolBusy when full, BudgetExceeded past the budget."""
+        if self._closed:
+            raise PoolClosed("the pool is shut down")
+        budget = budget_seconds if budget_seconds is not None else self.budget_seconds
+        if self._admitted >= self.workers + self.queue_size:
+            raise PoolBusy(self.retry_after())
+        self._admitted += 1
+        self._changed()
+        try:
+            worker = await self._acquire(budget)
+            return await self._run_on(worker, fn, args, budget)
+        finally:
+            self._admitted -= 1
+            self._changed()
+
+    def retry_after(self) -> int:
+        """Seconds a refused caller should wait: the queue ahead of it at the recent job time."""
+        ahead = (self._admitted + 1) / max(1, self.workers)
+        return max(1, min(math.ceil(self.budget_seconds), math.ceil(ahead * self._mean_seconds)))
+
+    def stats(self) -> PoolStats:
+        """Workers configured and alive, busy and queued jobs, workers recycled so far."""
+        return PoolStats(
+            workers=self.workers,
+            alive=sum(1 for w in self._all if w.process.is_alive()),
+            busy=self._busy,
+            queued=max(0, self._admitted - self._busy),
+            recycled=self._recycled,
+            start_method=self.start_method,
+        )
 
     def alive(self) -> bool:
-        """True while the executor accepts work."""
-        return not getattr(self._executor, "_broken", False)
+        """True while the pool is open and every worker process is running."""
+        return not self._closed and all(w.process.is_alive() for w in self._all)
 
     def close(self) -> None:
-        """Stop the workers; pending work is cancelled."""
-        self._executor.shutdown(wait=False, cancel_futures=True)
+        """Stop the workers; jobs still waiting fail with PoolClosed."""
+        self._closed = True
+        for waiter in self._waiters:
+            if not waiter.done():
+                waiter.set_exception(PoolClosed("the pool is shut down"))
+        self._waiters.clear()
+        for worker in list(self._all):
+            worker.stop(kill=worker not in self._idle)
+        for worker in list(self._all):
+            worker.process.join(timeout=1.0)
+            if worker.process.is_alive():
+                worker.process.kill()
+                worker.process.join(timeout=1.0)
+        self._all.clear()
+        self._idle.clear()
+
+    # --- internals --------------------------------------------------------------------
+    def _spawn(self) -> None:
+        worker = _Worker(self._context, self._preload)
+        self._all.add(worker)
+        self._release(worker)
+
+    def _release(self, worker: _Worker) -> None:
+        while self._waiters:
+            waiter = self._waiters.popleft()
+            if not waiter.done():
+                waiter.set_result(worker)
+                return
+        self._idle.append(worker)
+
+    async def _acquire(self, budget: float) -> _Worker:
+        """An idle, living worker; waits at most ``budget`` seconds, then PoolBusy."""
+        while True:
+            worker = self._idle.popleft() if self._idle else await self._wait(budget)
+            if worker.process.is_alive():
+                return worker
+            # Died while idle (out-of-memory killer, an operator): not this job's fault.
+            self._replace(worker, "crash")
+
+    async def _wait(self, budget: float) -> _Worker:
+        waiter: asyncio.Future[_Worker] = asyncio.get_running_loop().create_future()
+        self._waiters.append(waiter)
+        try:
+            # Waiting longer than a job may run means the queue is not draining: refuse.
+            return await asyncio.wait_for(asyncio.shield(waiter), budget)
+        except TimeoutError:
+            if _handed(waiter):
+                return waiter.result()
+            waiter.cancel()
+            raise PoolBusy(self.retry_after()) from None
+        except asyncio.CancelledError:
+            if _handed(waiter):
+                self._release(waiter.result())
+            else:
+                waiter.cancel()
+            raise
+        finally:
+            with contextlib.suppress(ValueError):
+                self._waiters.remove(waiter)
+
+    async def _run_on(self, worker: _Worker, fn: Callable[..., T], args: Any, budget: float) -> T:
+        recycle: str | None = None
+        self._busy += 1
+        self._changed()
+        started = time.perf_counter()
+        try:
+            if not worker.ready:
+                message = await _receive(worker, STARTUP_SECONDS)
+                if message != _READY:
+                    raise WorkerCrashed(worker.process.exitcode)
+                worker.ready = True
+            worker.conn.send((fn, args))
+            worker.jobs += 1
+            try:
+                reply = await _receive(worker, budget)
+            except TimeoutError:
+                recycle = "budget"
+                raise BudgetExceeded(budget) from None
+            elapsed = time.perf_counter() - started
+            self._mean_seconds = 0.8 * self._mean_seconds + 0.2 * elapsed
+            if isinstance(reply, _Failure):
+                raise reply.error
+            if self.max_jobs_per_worker and worker.jobs >= self.max_jobs_per_worker:
+                recycle = "retired"
+            return reply  # type: ignore[no-any-return]
+        except (EOFError, OSError):
+            recycle = "crash"
+            raise WorkerCrashed(worker.process.exitcode) from None
+        except WorkerCrashed:
+            recycle = "crash"
+            raise
+        except asyncio.CancelledError:
+            # Nobody waits for this answer any more: free the CPU rather than finish it.
+            recycle = "cancelled"
+            raise
+        finally:
+            self._busy -= 1
+            if recycle is None:
+                self._release(worker)
+            else:
+                self._replace(worker, recycle)
+            self._changed()
+
+    def _replace(self, worker: _Worker, reason: str) -> None:
+        self._all.discard(worker)
+        worker.stop(kill=reason != "retired")
+        # Reap without blocking the loop; a killed process exits at once.
+        worker.process.join(timeout=0)
+        self._recycled += 1
+        if self._on_recycle is not None:
+            self._on_recycle(reason)
+        if not self._closed:
+            self._spawn()
+
+    def _changed(self) -> None:
+        if self._on_change is not None:
+            stats = self.stats()
+            self._on_change(stats)
+
+
+def _handed(waiter: asyncio.Future[_Worker]) -> bool:
+    """True when a worker was handed to this waiter (possibly just as it gave up)."""
+    return waiter.done() and not waiter.cancelled() and waiter.exception() is None
+
+
+async def _receive(worker: _Worker, timeout: float) -> Any:
+    """The next message from a worker, waiting on its pipe without blocking the loop."""
+    loop = asyncio.get_running_loop()
+    readable: asyncio.Future[None] = loop.create_future()
+    fd = worker.conn.fileno()
+
+    def wake() -> None:
+        if not readable.done():
+            readable.set_result(None)
+
+    loop.add_reader(fd, wake)
+    try:
+        await asyncio.wait_for(readable, timeout)
+    finally:
+        loop.remove_reader(fd)
+    # The worker writes a whole message at once; reading it back is a memory copy.
+    return worker.conn.recv()
+
+
+def _default_start_method() -> str:
+    return "forkserver" if "forkserver" in multiprocessing.get_all_start_methods() else "spawn"
+
+
+def pin_threads() -> None:
+    """One BLAS/OpenMP thread in this process: set before the libraries load, limit after."""
+    for name in THREAD_VARIABLES:
+        os.environ[name] = "1"
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:
+        return
+    threadpool_limits(1)
+
+
+def serve(conn: Connection, preload: tuple[str, ...]) -> None:
+    """A worker's main loop: receive (fn, args), send back the result or the failure."""
+    # Ctrl-C reaches the whole process group; the server shuts the workers down itself.
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    pin_threads()
+    for module in preload:
+        __import__(module)
+    pin_threads()
+    conn.send(_READY)
+    while True:
+        try:
+            message = conn.recv()
+        except (EOFError, OSError):
+            return
+        if message is None:
+            return
+        fn, args = message
+        try:
+            reply: Any = fn(*args)
+        except BaseException as exc:
+            reply = _Failure(exc, traceback.format_exc())
+        try:
+            conn.send(reply)
+        except Exception as exc:  # an answer or an error that will not pickle
+            conn.send(_Failure(RuntimeError(f"the job's result could not be sent: {exc}"), ""))

@@ -1,0 +1,44 @@
+"""Picklable top-level jobs for the pool tests (imported by the worker processes)."""
+
+from __future__ import annotations
+
+import os
+import time
+
+from service.core.errors import FitError
+
+
+def add(a: int, b: int) -> int:
+    """A quick job."""
+    return a + b
+
+
+def sleep(seconds: float) -> float:
+    """A job that takes ``seconds``."""
+    time.sleep(seconds)
+    return seconds
+
+
+def pid() -> int:
+    """The worker's process id."""
+    return os.getpid()
+
+
+def fail() -> None:
+    """A job that raises a domain error naming a field."""
+    raise FitError("cannot fit", field="model.order")
+
+
+def die() -> None:
+    """A job whose worker dies abruptly."""
+    os._exit(3)
+
+
+def threads() -> dict[str, str | None]:
+    """The BLAS thread variables the worker sees."""
+    return {name: os.environ.get(name) for name in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS")}
+
+
+def unpicklable() -> object:
+    """A result that cannot be sent back."""
+    return lambda: None

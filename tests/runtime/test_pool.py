@@ -1,0 +1,181 @@
+"""The worker pool: results, errors, time budgets, crashes, admission and occupancy."""
+
+from __future__ import annotations
+
+import asyncio
+import time
+from collections.abc import Iterator
+
+import pool_jobs  # tests/runtime is on sys.path; the workers inherit it
+import pytest
+
+from service.core.errors import FitError
+from service.runtime.pool import (
+    BudgetExceeded,
+    PoolBusy,
+    PoolClosed,
+    PoolStats,
+    WorkerCrashed,
+    WorkPool,
+)
+
+
+@pytest.fixture(scope="module")
+def pool() -> Iterator[WorkPool]:
+    p = WorkPool(2, 2, budget_seconds=20.0)
+    yield p
+    p.close()
+
+
+def test_runs_a_job_and_returns_its_result(pool: WorkPool) -> None:
+    assert asyncio.run(pool.run(pool_jobs.add, 2, 3)) == 5
+
+
+def test_domain_errors_come_back_with_their_fields(pool: WorkPool) -> None:
+    with pytest.raises(FitError) as caught:
+        asyncio.run(pool.run(pool_jobs.fail))
+    assert caught.value.problems[0].field == "model.order"
+    assert asyncio.run(pool.run(pool_jobs.add, 1, 1)) == 2
+
+
+def test_workers_run_one_blas_thread(pool: WorkPool) -> None:
+    seen = asyncio.run(pool.run(pool_jobs.threads))
+    assert seen == {"OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1"}
+
+
+def test_jobs_run_in_parallel_on_both_workers(pool: WorkPool) -> None:
+    async def two(job: object, *args: object) -> list[object]:
+        return await asyncio.gather(pool.run(job, *args), pool.run(job, *args))
+
+    pids = asyncio.run(two(pool_jobs.pid))  # also waits for both workers to start
+    assert len(set(pids)) == 2
+    started = time.perf_counter()
+    asyncio.run(two(pool_jobs.sleep, 0.4))
+    assert time.perf_counter() - started < 0.75
+
+
+def test_budget_exceeded_kills_the_worker_and_the_pool_serves_the_next(pool: WorkPool) -> None:
+    async def scenario() -> tuple[float, int]:
+        started = time.perf_counter()
+        with pytest.raises(BudgetExceeded) as caught:
+            await pool.run(pool_jobs.sleep, 30.0, budget_seconds=0.3)
+        assert caught.value.budget_seconds == 0.3
+        waited = time.perf_counter() - started
+        return waited, await pool.run(pool_jobs.add, 20, 22)
+
+    before = pool.stats().recycled
+    waited, answer = asyncio.run(scenario())
+    assert waited < 2.0 and answer == 42
+    assert pool.stats().recycled == before + 1
+    assert pool.alive()
+
+
+def test_a_crashing_worker_is_reported_and_replaced(pool: WorkPool) -> None:
+    with pytest.raises(WorkerCrashed) as caught:
+        asyncio.run(pool.run(pool_jobs.die))
+    assert caught.value.exitcode in (3, None)
+    assert asyncio.run(pool.run(pool_jobs.add, 1, 2)) == 3
+    assert pool.alive()
+
+
+def test_an_unsendable_result_is_an_error_not_a_hang(pool: WorkPool) -> None:
+    with pytest.raises(RuntimeError, match="could not be sent"):
+        asyncio.run(pool.run(pool_jobs.unpicklable))
+
+
+def test_full_queue_is_refused_with_retry_after() -> None:
+    small = WorkPool(1, 1, budget_seconds=10.0)
+    try:
+
+        async def scenario() -> None:
+            await small.run(pool_jobs.add, 0, 0)  # wait for the worker to start
+            running = asyncio.ensure_future(small.run(pool_jobs.sleep, 0.5))
+            queued = asyncio.ensure_future(small.run(pool_jobs.sleep, 0.1))
+            await asyncio.sleep(0.05)
+            assert small.stats().busy == 1 and small.stats().queued == 1
+            with pytest.raises(PoolBusy) as caught:
+                await small.run(pool_jobs.add, 1, 1)
+            assert caught.value.retry_after >= 1
+            assert await running == 0.5 and await queued == 0.1
+
+        asyncio.run(scenario())
+    finally:
+        small.close()
+
+
+def test_a_job_that_cannot_get_a_worker_within_the_budget_is_refused() -> None:
+    small = WorkPool(1, 5, budget_seconds=10.0)
+    try:
+
+        async def scenario() -> None:
+            await small.run(pool_jobs.add, 0, 0)
+            running = asyncio.ensure_future(small.run(pool_jobs.sleep, 1.0))
+            await asyncio.sleep(0.05)
+            with pytest.raises(PoolBusy):
+                await small.run(pool_jobs.add, 1, 1, budget_seconds=0.2)
+            await running
+            assert await small.run(pool_jobs.add, 1, 1) == 2
+
+        asyncio.run(scenario())
+    finally:
+        small.close()
+
+
+def test_the_loop_stays_free_while_workers_are_busy() -> None:
+    small = WorkPool(1, 1, budget_seconds=10.0)
+    try:
+
+        async def scenario() -> float:
+            await small.run(pool_jobs.add, 0, 0)
+            running = asyncio.ensure_future(small.run(pool_jobs.sleep, 0.5))
+            await asyncio.sleep(0.02)
+            worst = 0.0
+            for _ in range(20):
+                tick = time.perf_counter()
+                await asyncio.sleep(0.01)
+                worst = max(worst, time.perf_counter() - tick - 0.01)
+            await running
+            return worst
+
+        assert asyncio.run(scenario()) < 0.05
+    finally:
+        small.close()
+
+
+def test_workers_are_retired_after_their_job_count() -> None:
+    recycled: list[str] = []
+    small = WorkPool(1, 0, budget_seconds=10.0, max_jobs_per_worker=2, on_recycle=recycled.append)
+    try:
+        pids = [asyncio.run(small.run(pool_jobs.pid)) for _ in range(3)]
+        assert pids[0] == pids[1] != pids[2]
+        assert recycled == ["retired"]
+    finally:
+        small.close()
+
+
+def test_occupancy_is_reported_on_every_change() -> None:
+    seen: list[PoolStats] = []
+    small = WorkPool(1, 0, budget_seconds=10.0, on_change=seen.append)
+    try:
+        asyncio.run(small.run(pool_jobs.add, 1, 1))
+        assert max(s.busy for s in seen) == 1
+        assert seen[-1].busy == 0 and seen[-1].queued == 0
+    finally:
+        small.close()
+
+
+def test_a_closed_pool_refuses_work() -> None:
+    small = WorkPool(1, 0, budget_seconds=10.0)
+    small.close()
+    assert not small.alive()
+    with pytest.raises(PoolClosed):
+        asyncio.run(small.run(pool_jobs.add, 1, 1))
+
+
+def test_spawn_start_method_works_too() -> None:
+    small = WorkPool(1, 0, budget_seconds=30.0, start_method="spawn")
+    try:
+        assert asyncio.run(small.run(pool_jobs.add, 2, 2)) == 4
+        assert small.stats().start_method == "spawn"
+    finally:
+        small.close()
