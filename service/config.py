@@ -47,9 +47,30 @@ class Settings(BaseSettings):
         512_000_000, ge=0, description="Size bound of the on-disk cache, bytes."
     )
     cache_memory_items: int = Field(1_024, ge=0, description="Finished responses kept in memory.")
+    cache_memory_bytes: int = Field(
+        64_000_000, ge=0, description="Size bound of the in-memory response cache, bytes."
+    )
+    pool_max_jobs: int = Field(
+        1_000, ge=0, description="Jobs a pool worker runs before it is replaced (0: never)."
+    )
+    metrics_dir: Path = Field(
+        Path(".windvane-metrics"),
+        description="Prometheus multiprocess directory when `workers` > 1 (emptied at start).",
+    )
     log_level: Literal["debug", "info", "warning", "error"] = Field(
         "info", description="Log level of the JSON request log."
     )
     shutdown_grace_seconds: float = Field(
         30.0, ge=0, le=3600, description="How long in-flight requests may finish on SIGTERM."
+    )
+    api_keys: str = Field(
+        "",
+        description="Accepted API keys as comma-separated SHA-256 hex digests ('sha256:<hex>' "
+        "or bare hex); when set (here or in api_keys_file), /v1/* needs `Authorization: Bearer`.",
+    )
+    api_keys_file: Path | None = Field(
+        None, description="File of accepted key digests, one per line ('#' starts a comment)."
+    )
+    protect_metrics: bool = Field(
+        False, description="With API keys on, require a key on /metrics as well."
     )
