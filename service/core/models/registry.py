@@ -14,12 +14,25 @@ from typing import Any
 
 from service.core.errors import FieldProblem, SpecificationError
 from service.core.models.base import ParameterInfo, Specification
+from service.core.models.combination import CombinationSpec
+from service.core.models.croston import CrostonSpec
 from service.core.models.drift import DriftSpec
+from service.core.models.ets import EtsSpec
 from service.core.models.mean import MeanSpec
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
+from service.core.models.theta import ThetaSpec
 
-_FAMILY_CLASSES: tuple[type[Any], ...] = (MeanSpec, NaiveSpec, SeasonalNaiveSpec, DriftSpec)
+_FAMILY_CLASSES: tuple[type[Any], ...] = (
+    MeanSpec,
+    NaiveSpec,
+    SeasonalNaiveSpec,
+    DriftSpec,
+    EtsSpec,
+    ThetaSpec,
+    CrostonSpec,
+    CombinationSpec,
+)
 
 FAMILIES: dict[str, type[Any]] = {cls.family: cls for cls in _FAMILY_CLASSES}
 

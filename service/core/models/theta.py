@@ -1,0 +1,258 @@
+"""The Theta method in the Hyndman & Billah (2003) form: SES with drift b0/2.
+
+b0 is the OLS slope of the (seasonally adjusted) series on time; the SES starts at the
+first observation and its α minimises the one-step squared errors, as in the original
+method. Intervals use the IMA(1,1) variance σ²[1 + (h−1)α²], not statsmodels' ThetaModel
+intervals (REFERENCES trap 4).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass, field, replace
+from typing import ClassVar
+
+import numpy as np
+import pandas as pd
+from scipy import optimize, stats
+
+from service.core.errors import FitError
+from service.core.intervals import Interval, normal_intervals
+from service.core.models.base import Description, FitWarning, Forecast, as_dict, future_index
+from service.core.models.base import parameter as param
+from service.core.models.simple import ljung_box_summary, timed
+
+SEASONALITY_TEST_LEVEL = 0.90
+
+
+@dataclass(frozen=True)
+class ThetaSpec:
+    """Theta forecasts; seasonal adjustment by classical multiplicative decomposition."""
+
+    family: ClassVar[str] = "theta"
+    summary: ClassVar[str] = (
+        "Simple exponential smoothing with half the linear-trend slope as drift (Theta method)."
+    )
+    constraints: ClassVar[tuple[str, ...]] = (
+        "Seasonal adjustment (auto) applies when the period > 1, the data are positive, there "
+        "are two full seasons and the lag-m autocorrelation passes a 90% test.",
+        "Intervals use the IMA(1,1) variance σ²[1 + (h−1)α²] on the adjusted scale.",
+    )
+
+    seasonal_adjustment: str = param(
+        "auto",
+        "Classical multiplicative seasonal adjustment: auto (tested), always, or never.",
+        kind="choice",
+        allowed=("auto", "always", "never"),
+    )
+
+    def fit(self, y: pd.Series, seasonal_period: int = 1) -> ThetaFitted:
+        """Fit α by least squares on the adjusted series and the drift by OLS on time."""
+        start = timed()
+        values = _checked(y)
+        notes: list[FitWarning] = []
+        indices = self._seasonal_indices(values, seasonal_period, notes)
+        adjusted = values / _cycle(indices, 0, values.size)
+        slope = ols_slope(adjusted)
+        alpha = ses_alpha(adjusted)
+        return ThetaFitted(self, y, seasonal_period, alpha, slope, indices, timed() - start, notes)
+
+    def _seasonal_indices(
+        self, values: np.ndarray, period: int, notes: list[FitWarning]
+    ) -> tuple[float, ...]:
+        if self.seasonal_adjustment == "never" or period < 2:
+            return (1.0,)
+        usable = values.size >= 2 * period and bool(np.all(values > 0))
+        if self.seasonal_adjustment == "always":
+            if not usable:
+                raise FitError(
+                    "seasonal adjustment needs positive data and two full seasons",
+                    field="model.seasonal_adjustment",
+                )
+            return multiplicative_indices(values, period)
+        if usable and is_seasonal(values, period):
+            return multiplicative_indices(values, period)
+        if not usable:
+            notes.append(
+                FitWarning(
+                    "no_seasonal_adjustment",
+                    "theta: seasonal adjustment skipped (needs positive data and two seasons)",
+                )
+            )
+        return (1.0,)
+
+
+def _checked(y: pd.Series) -> np.ndarray:
+    values = y.to_numpy(dtype=float)
+    if not np.all(np.isfinite(values)):
+        raise FitError(
+            "theta needs a complete series (use missing=interpolate)", field="series.values"
+        )
+    if values.size < 3:
+        raise FitError(
+            f"theta needs at least 3 observations, got {values.size}", field="series.values"
+        )
+    return values
+
+
+def ols_slope(values: np.ndarray) -> float:
+    """b0: least-squares slope of the series on time 0, 1, ..., T−1."""
+    t = np.arange(values.size, dtype=float)
+    t -= t.mean()
+    return float(np.dot(t, values - values.mean()) / np.dot(t, t))
+
+
+def ses_levels(values: np.ndarray, alpha: float) -> np.ndarray:
+    """SES levels ℓ_0..ℓ_{T−1} started at the first observation (ℓ_0 = y_0)."""
+    levels = np.empty(values.size)
+    level = values[0]
+    for i, v in enumerate(values):
+        level = level + alpha * (v - level) if i else v
+        levels[i] = level
+    return levels
+
+
+def _sse(alpha: float, values: np.ndarray) -> float:
+    levels = ses_levels(values, alpha)
+    return float(np.sum((values[1:] - levels[:-1]) ** 2))
+
+
+def ses_alpha(values: np.ndarray) -> float:
+    """α in [1e-4, 1] minimising the one-step squared errors of SES."""
+    found = optimize.minimize_scalar(
+        _sse, bounds=(1e-4, 1.0), args=(values,), method="bounded", options={"xatol": 1e-10}
+    )
+    return float(found.x)
+
+
+def theta_path(level: float, alpha: float, slope: float, n: int, horizon: int) -> np.ndarray:
+    """ℓ_T + ½ b0 [h − 1 + 1/α − (1−α)^T / α] for h = 1..horizon (Hyndman & Billah 2003)."""
+    h = np.arange(1, horizon + 1, dtype=float)
+    return level + 0.5 * slope * (h - 1.0 + 1.0 / alpha - (1.0 - alpha) ** n / alpha)
+
+
+def is_seasonal(values: np.ndarray, period: int, level: float = SEASONALITY_TEST_LEVEL) -> bool:
+    """|r_m| above the 90% band √((1 + 2Σ_{k<m} r_k²)/n) (common practice for Theta)."""
+    x = values - values.mean()
+    denom = float(np.dot(x, x))
+    if denom == 0.0:
+        return False
+    r = np.array([np.dot(x[k:], x[:-k]) / denom for k in range(1, period + 1)])
+    band = stats.norm.ppf(0.5 + level / 2) * math.sqrt((1 + 2 * np.sum(r[:-1] ** 2)) / x.size)
+    return bool(abs(r[-1]) > band)
+
+
+def multiplicative_indices(values: np.ndarray, period: int) -> tuple[float, ...]:
+    """Classical decomposition: centred moving-average ratios, averaged per season, mean 1."""
+    if period % 2 == 0:
+        weights = np.r_[0.5, np.ones(period - 1), 0.5] / period
+    else:
+        weights = np.ones(period) / period
+    trend = np.convolve(values, weights, mode="valid")
+    offset = (weights.size - 1) // 2
+    ratios = values[offset : offset + trend.size] / trend
+    positions = (np.arange(trend.size) + offset) % period
+    means = np.array([ratios[positions == s].mean() for s in range(period)])
+    means = means / means.mean()
+    return tuple(float(v) for v in means)
+
+
+def _cycle(indices: tuple[float, ...], start: int, count: int) -> np.ndarray:
+    return np.asarray(indices)[(start + np.arange(count)) % len(indices)]
+
+
+@dataclass
+class ThetaFitted:
+    """Fitted Theta: α, b0 and the seasonal indices held fixed."""
+
+    specification: ThetaSpec
+    y: pd.Series
+    seasonal_period: int
+    alpha: float
+    slope: float
+    seasonal_indices: tuple[float, ...]
+    fit_seconds: float = 0.0
+    warnings: list[FitWarning] = field(default_factory=list)
+
+    @property
+    def label(self) -> str:
+        """'Theta', or 'Theta (seasonally adjusted, m)' when indices were applied."""
+        if len(self.seasonal_indices) > 1:
+            return f"Theta (seasonally adjusted, m={len(self.seasonal_indices)})"
+        return "Theta"
+
+    def _adjusted(self) -> np.ndarray:
+        values = self.y.to_numpy(dtype=float)
+        return values / _cycle(self.seasonal_indices, 0, values.size)
+
+    def _fitted_adjusted(self) -> np.ndarray:
+        """One-step in-sample theta forecasts on the adjusted scale (NaN for the first point)."""
+        x = self._adjusted()
+        levels = ses_levels(x, self.alpha)
+        t = np.arange(1, x.size, dtype=float)
+        drift = 0.5 * self.slope * (1.0 / self.alpha - (1.0 - self.alpha) ** t / self.alpha)
+        return np.r_[np.nan, levels[:-1] + drift]
+
+    def sigma(self) -> float:
+        """σ̂ of the one-step errors, Σe²/(n_e − 2) for the two estimates α and b0."""
+        e = self._adjusted() - self._fitted_adjusted()
+        e = e[np.isfinite(e)]
+        dof = max(e.size - 2, 1)
+        return float(np.sqrt(np.sum(e**2) / dof))
+
+    def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast:
+        """Theta path times the seasonal indices; IMA(1,1) sd scaled the same way."""
+        x = self._adjusted()
+        level = float(ses_levels(x, self.alpha)[-1])
+        path = theta_path(level, self.alpha, self.slope, x.size, horizon)
+        h = np.arange(1, horizon + 1, dtype=float)
+        sd = self.sigma() * np.sqrt(1.0 + (h - 1.0) * self.alpha**2)
+        season = _cycle(self.seasonal_indices, x.size, horizon)
+        adjusted = normal_intervals(path, sd, coverage)
+        intervals = tuple(
+            Interval(i.coverage, i.lower * season, i.upper * season) for i in adjusted
+        )
+        return Forecast(future_index(self.y.index, horizon), path * season, intervals)
+
+    def fitted_values(self) -> pd.Series:
+        """One-step in-sample forecasts on the data scale."""
+        season = _cycle(self.seasonal_indices, 0, len(self.y))
+        return pd.Series(self._fitted_adjusted() * season, index=self.y.index, name="fitted")
+
+    def residuals(self) -> pd.Series:
+        """Observed minus one-step fitted."""
+        fitted = self.fitted_values().to_numpy()
+        return pd.Series(
+            self.y.to_numpy(dtype=float) - fitted, index=self.y.index, name="residuals"
+        )
+
+    def refilter(self, y: pd.Series) -> ThetaFitted:
+        """α, b0 and the indices held fixed on a history with the same start (season phase)."""
+        _checked(y)
+        return replace(self, y=y, fit_seconds=0.0, warnings=[])
+
+    def describe(self) -> Description:
+        """α, b0, drift, seasonal indices, σ̂ and residual checks (no likelihood criteria)."""
+        params = {"alpha": self.alpha, "b0": self.slope, "drift": self.slope / 2.0}
+        if len(self.seasonal_indices) > 1:
+            params.update(
+                {f"seasonal_index_{i + 1}": v for i, v in enumerate(self.seasonal_indices)}
+            )
+        sigma = self.sigma()
+        params["sigma"] = sigma
+        resid = self.residuals().to_numpy()
+        return Description(
+            family="theta",
+            label=self.label,
+            specification=as_dict(self.specification),
+            parameters=params,
+            information_criteria={},
+            residual_variance=sigma**2,
+            residual_diagnostics={
+                **ljung_box_summary(resid[np.isfinite(resid)], self.seasonal_period, 1),
+                "interval_method": "analytic, IMA(1,1) variance",
+            },
+            observations=len(self.y),
+            fit_seconds=self.fit_seconds,
+        )
