@@ -1,7 +1,7 @@
-"""Optional API keys: `Authorization: Bearer <key>` on /v1/* (and /metrics if asked), off by default.
+"""Optional API keys: `Authorization: Bearer <key>` on /v1/* (and /metrics if asked).
 
-Only SHA-256 digests of the keys are configured, so a leaked settings file or process
-environment does not leak a usable key. Health endpoints stay open for orchestrators.
+Off by default. Only SHA-256 digests of the keys are configured, so a leaked settings file
+or process environment does not leak a usable key. Health stays open for orchestrators.
 """
 
 from __future__ import annotations
@@ -50,7 +50,7 @@ class KeyRing:
         return self.protect_metrics and path == "/metrics"
 
     def accepts(self, key: str) -> bool:
-        """Whether ``key`` hashes to a configured digest; compares with every digest in constant time."""
+        """Whether ``key`` hashes to a configured digest, compared in constant time."""
         given = hashlib.sha256(key.encode("utf-8")).hexdigest().encode("ascii")
         found = False
         for digest in self.digests:
