@@ -25,9 +25,9 @@ TimestampList = Annotated[
 
 
 class Strict(BaseModel):
-    """Unknown fields are refused, so a typo is a 422 naming it rather than silently ignored."""
+    """Unknown fields and wrong JSON types are refused (no `true` or `"5"` read as 1 or 5)."""
 
-    model_config = ConfigDict(extra="forbid")
+    model_config = ConfigDict(extra="forbid", strict=True)
 
 
 class AggregateIn(Strict):
