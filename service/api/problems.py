@@ -13,7 +13,7 @@ from fastapi.responses import JSONResponse
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from service.core.errors import WindvaneError
-from service.runtime.pool import BudgetExceeded, PoolBusy
+from service.runtime.pool import BudgetExceeded, PoolBusy, PoolClosed, WorkerCrashed
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 log = logging.getLogger("windvane.errors")
@@ -114,6 +114,13 @@ async def _budget(request: Request, exc: Exception) -> JSONResponse:
                             title="Time budget exceeded", headers={"Retry-After": "5"})
 
 
+async def _worker_lost(request: Request, exc: Exception) -> JSONResponse:
+    assert isinstance(exc, (WorkerCrashed, PoolClosed))
+    code = "worker_crashed" if isinstance(exc, WorkerCrashed) else "shutting_down"
+    return problem_response(503, code, str(exc), request, title="Worker unavailable",
+                            headers={"Retry-After": "1"})
+
+
 async def _unexpected(request: Request, exc: Exception) -> JSONResponse:
     log.exception("unhandled error on %s %s", request.method, request.url.path)
     return problem_response(500, "internal_error",
@@ -127,4 +134,6 @@ def install_problem_handlers(app: FastAPI) -> None:
     app.add_exception_handler(StarletteHTTPException, _http)
     app.add_exception_handler(PoolBusy, _busy)
     app.add_exception_handler(BudgetExceeded, _budget)
+    app.add_exception_handler(WorkerCrashed, _worker_lost)
+    app.add_exception_handler(PoolClosed, _worker_lost)
     app.add_exception_handler(Exception, _unexpected)

@@ -4,9 +4,10 @@ from __future__ import annotations
 
 from typing import Any
 
-from fastapi import APIRouter
+from fastapi import APIRouter, Request, Response
 
 from service import __version__
+from service.api import caching
 from service.api.convert import parsed_series, specification
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.schemas.common import Problem
@@ -48,12 +49,15 @@ def forecast_task(body: ForecastRequest, settings: Any) -> tuple[jobs.ForecastTa
 
 @router.post("/forecasts", summary="Forecast a series", response_model=ForecastResponse,
              responses=PROBLEMS)
-async def create_forecast(body: ForecastRequest, pool: PoolDep,
-                          settings: SettingsDep) -> dict[str, Any]:
+async def create_forecast(body: ForecastRequest, pool: PoolDep, settings: SettingsDep,
+                          request: Request, response: Response) -> dict[str, Any]:
     """Fit the given model (or choose one) and return point forecasts with intervals."""
     task, series = forecast_task(body, settings)
-    result = await pool.run(jobs.forecast, task)
-    result["provenance"] = {
-        "data_hash": data_key(series.y).label, "cache": "off",
-        "service_version": __version__, "library_versions": runtime_versions()}
-    return result
+    key = caching.response_key(body.model_dump(mode="json"), series.y, series.seasonal_period)
+    family = task.specification.family if task.specification is not None else "auto"
+    found = await caching.answer(request, response, key, family, len(series.y),
+                                 lambda: pool.run(jobs.forecast, task))
+    # A new dict each time: the cached body itself is never changed.
+    return {**found.body, "provenance": {
+        "data_hash": data_key(series.y).label, "cache": found.cache,
+        "service_version": __version__, "library_versions": runtime_versions()}}
