@@ -17,6 +17,11 @@ def _serve(args: argparse.Namespace) -> int:
     overrides = {k: v for k, v in {"host": args.host, "port": args.port,
                                    "workers": args.workers}.items() if v is not None}
     settings = Settings(**overrides)
+    if settings.workers > 1:
+        from service.runtime.telemetry import prepare_multiprocess
+
+        # Must precede the worker processes: client_python picks its storage at import.
+        prepare_multiprocess(settings.metrics_dir)
     uvicorn.run("service.api.app:create_app", factory=True, host=settings.host,
                 port=settings.port, workers=settings.workers, loop="auto", http="auto",
                 timeout_graceful_shutdown=int(settings.shutdown_grace_seconds),
