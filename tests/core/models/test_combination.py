@@ -1,0 +1,76 @@
+"""Combination: equal-weight points, averaged bounds, nested errors."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from numpy.testing import assert_allclose
+
+from service.core.errors import FitError
+from service.core.models import registry
+from service.core.models.combination import CombinationSpec
+from service.core.models.drift import DriftSpec
+from service.core.models.naive import NaiveSpec
+from service.core.models.seasonal_naive import SeasonalNaiveSpec
+
+
+def series(n: int = 48, seed: int = 6) -> pd.Series:
+    rng = np.random.default_rng(seed)
+    return pd.Series(
+        50 + rng.normal(size=n).cumsum(), index=pd.date_range("2020-01-01", periods=n, freq="MS")
+    )
+
+
+def test_point_and_bounds_are_member_averages() -> None:
+    y = series()
+    combined = CombinationSpec((NaiveSpec(), DriftSpec())).fit(y, 12).forecast(4, [0.8, 0.95])
+    a = NaiveSpec().fit(y, 12).forecast(4, [0.8, 0.95])
+    b = DriftSpec().fit(y, 12).forecast(4, [0.8, 0.95])
+    assert_allclose(combined.point, (a.point + b.point) / 2)
+    for k in range(2):
+        assert_allclose(
+            combined.intervals[k].lower, (a.intervals[k].lower + b.intervals[k].lower) / 2
+        )
+        assert_allclose(
+            combined.intervals[k].upper, (a.intervals[k].upper + b.intervals[k].upper) / 2
+        )
+
+
+def test_describe_lists_member_labels() -> None:
+    spec = registry.specification_from_dict(
+        {"family": "combination", "members": [{"family": "naive"}, {"family": "theta"}]}
+    )
+    d = spec.fit(series(), 12).describe()
+    assert d.residual_diagnostics["members"] == ["Naive", "Theta"]
+    assert d.label == "Combination(Naive, Theta)"
+    assert "members[1].alpha" in d.parameters
+
+
+def test_member_errors_name_the_member() -> None:
+    y = series(n=10)
+    spec = registry.specification_from_dict(
+        {
+            "family": "combination",
+            "members": [{"family": "naive"}, {"family": "ets", "season": "add"}],
+        }
+    )
+    with pytest.raises(FitError) as err:
+        spec.fit(y, 12)
+    assert err.value.problems[0].field == "model.members[1].season"
+
+
+def test_nested_parse_errors_name_the_member() -> None:
+    with pytest.raises(Exception) as err:
+        registry.specification_from_dict(
+            {"family": "combination", "members": [{"family": "naive", "colour": 1}]}
+        )
+    assert err.value.problems[0].field == "model.members[0].colour"  # type: ignore[attr-defined]
+
+
+def test_refilter_refilters_every_member() -> None:
+    y = series(n=60)
+    fitted = CombinationSpec((NaiveSpec(), SeasonalNaiveSpec())).fit(y[:48], 12)
+    longer = fitted.refilter(y)
+    assert longer.forecast(1, [0.8]).index[0] == y.index[-1] + y.index.freq
+    assert_allclose(longer.forecast(1, [0.8]).point, (y.iloc[-1] + y.iloc[-12]) / 2)
