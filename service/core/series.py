@@ -9,6 +9,7 @@ observation), keeps them as NaN, or refuses the series.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any, Literal
@@ -23,6 +24,8 @@ MissingPolicy = Literal["interpolate", "keep", "error"]
 AggregateMethod = Literal["sum", "mean", "last"]
 MISSING_POLICIES: tuple[str, ...] = ("interpolate", "keep", "error")
 AGGREGATE_METHODS: tuple[str, ...] = ("sum", "mean", "last")
+# pandas also reads words such as "now" and "today"; ISO 8601 starts with a four-digit year.
+_ISO_START = re.compile(r"^\d{4}")
 
 
 @dataclass(frozen=True)
@@ -191,6 +194,8 @@ def _build_index(
 def _parse_one(text: Any, field: str) -> pd.Timestamp:
     if not isinstance(text, str):
         raise SeriesError("must be an ISO 8601 date or date-time string", field=field)
+    if not _ISO_START.match(text):
+        raise SeriesError(f"{text!r} is not an ISO 8601 date or date-time", field=field)
     try:
         stamp = pd.Timestamp(text)
     except (ValueError, TypeError, OverflowError) as exc:
@@ -205,6 +210,10 @@ def _parse_timestamps(timestamps: Sequence[Any]) -> pd.DatetimeIndex:
         if not isinstance(t, str):
             raise SeriesError(
                 "must be an ISO 8601 date or date-time string", field=f"timestamps[{i}]"
+            )
+        if not _ISO_START.match(t):
+            raise SeriesError(
+                f"{t!r} is not an ISO 8601 date or date-time", field=f"timestamps[{i}]"
             )
     try:
         index = pd.DatetimeIndex(pd.to_datetime(list(timestamps), format="ISO8601"))
