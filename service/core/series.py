@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import math
 import re
+import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any, Literal
@@ -259,7 +260,12 @@ def _infer(index: pd.DatetimeIndex) -> pd.DateOffset:
             "frequency cannot be inferred from fewer than three timestamps; give frequency",
             field="frequency",
         )
-    alias = pd.infer_freq(index)
+    with warnings.catch_warnings():
+        # pandas 3 warns that infer_freq will return an offset instead of a string; both
+        # forms are read below, so the announcement is not a problem of this request.
+        warnings.simplefilter("ignore", DeprecationWarning)
+        inferred = pd.infer_freq(index)
+    alias = inferred if inferred is None or isinstance(inferred, str) else inferred.freqstr
     if alias is None:
         steps = np.diff(index.asi8)
         i = int(np.flatnonzero(steps != steps[0])[0]) + 1 if (steps != steps[0]).any() else 1
