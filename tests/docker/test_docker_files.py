@@ -1,0 +1,366 @@
+"""Static checks of docker/: parsed and cross-checked, as no Docker engine runs in CI."""
+
+from __future__ import annotations
+
+import fnmatch
+import json
+import re
+import shlex
+import shutil
+import subprocess
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import pytest
+import yaml
+from fastapi.testclient import TestClient
+from prometheus_client.parser import text_string_to_metric_families
+
+from service.api.app import create_app
+from service.config import Settings
+from service.runtime.telemetry import Telemetry
+
+ROOT = Path(__file__).resolve().parents[2]
+DOCKER = ROOT / "docker"
+CACHE_DIR = "/var/cache/windvane"
+PROMTOOL = shutil.which("promtool")
+NO_PROMTOOL = "promtool is not installed (Debian package `prometheus`; .ci/run installs it)"
+
+
+@dataclass(frozen=True)
+class Instruction:
+    """One Dockerfile instruction with its arguments as written."""
+
+    keyword: str
+    arguments: str
+
+
+def instructions(path: Path) -> list[Instruction]:
+    """The Dockerfile's instructions, continuation lines joined, comments dropped."""
+    found: list[Instruction] = []
+    pending = ""
+    for raw in path.read_text(encoding="utf-8").splitlines():
+        line = raw.strip()
+        if not pending and (not line or line.startswith("#")):
+            continue
+        if pending and line.startswith("#"):
+            continue  # comments inside a continued instruction are dropped by the builder
+        if line.endswith("\\"):
+            pending += line[:-1] + " "
+            continue
+        whole = (pending + line).strip()
+        pending = ""
+        keyword, _, arguments = whole.partition(" ")
+        found.append(Instruction(keyword.upper(), arguments.strip()))
+    assert not pending, "the Dockerfile ends inside a continued line"
+    return found
+
+
+def final_stage(steps: list[Instruction]) -> list[Instruction]:
+    starts = [i for i, s in enumerate(steps) if s.keyword == "FROM"]
+    return steps[starts[-1] :]
+
+
+def arg_defaults(steps: list[Instruction]) -> dict[str, str]:
+    out: dict[str, str] = {}
+    for step in steps:
+        if step.keyword == "ARG" and "=" in step.arguments:
+            name, _, value = step.arguments.partition("=")
+            out[name.strip()] = value.strip()
+    return out
+
+
+def env_of(steps: list[Instruction]) -> dict[str, str]:
+    out: dict[str, str] = {}
+    for step in steps:
+        if step.keyword == "ENV":
+            for item in shlex.split(step.arguments):
+                name, _, value = item.partition("=")
+                out[name] = value
+    return out
+
+
+def base_image(step: Instruction, args: dict[str, str]) -> str:
+    image = next(w for w in step.arguments.split() if not w.startswith("--"))
+    return re.sub(r"\$\{(\w+)\}", lambda m: args[m.group(1)], image)
+
+
+@pytest.fixture(scope="module")
+def steps() -> list[Instruction]:
+    return instructions(DOCKER / "Dockerfile")
+
+
+@pytest.fixture(scope="module")
+def compose() -> dict[str, Any]:
+    loaded: dict[str, Any] = yaml.safe_load((DOCKER / "compose.yaml").read_text())
+    return loaded
+
+
+@pytest.fixture(scope="module")
+def exported_series() -> set[str]:
+    """Every series name the app's telemetry can export, from the runtime's own registry."""
+    names: set[str] = set()
+    suffixes = {"counter": ("_total",), "histogram": ("_bucket", "_sum", "_count"), "gauge": ("",)}
+    for family in Telemetry().registry.collect():
+        names.update(family.name + s for s in suffixes.get(family.type, ("",)))
+    return names
+
+
+# --- Dockerfile -------------------------------------------------------------------------
+
+
+def test_every_stage_builds_on_python_311_slim(steps: list[Instruction]) -> None:
+    args = arg_defaults(steps)
+    images = [base_image(s, args) for s in steps if s.keyword == "FROM"]
+    assert images, "no FROM"
+    assert all(re.fullmatch(r"python:3\.11(\.\d+)?-slim(-\w+)?", i) for i in images), images
+
+
+def test_final_stage_runs_as_a_numeric_non_root_user(steps: list[Instruction]) -> None:
+    users = [s.arguments for s in final_stage(steps) if s.keyword == "USER"]
+    assert users, "the final stage never drops root"
+    user = users[-1].split(":")[0]
+    assert user not in {"root", "0"}
+    assert user.isdigit(), "a numeric uid lets orchestrators verify runAsNonRoot"
+    # USER must come before CMD, or the process still starts as root.
+    keywords = [s.keyword for s in final_stage(steps)]
+    assert max(i for i, k in enumerate(keywords) if k == "USER") < keywords.index("CMD")
+
+
+def test_healthcheck_probes_healthz_with_the_interpreter(steps: list[Instruction]) -> None:
+    checks = [s.arguments for s in final_stage(steps) if s.keyword == "HEALTHCHECK"]
+    assert len(checks) == 1
+    check = checks[0]
+    command = json.loads(check[check.index("CMD") + 3 :].strip())
+    assert command[:2] == ["python", "-c"]
+    assert "urllib" in command[2] and "/healthz" in command[2] and "WINDVANE_PORT" in command[2]
+    compile(command[2], "<healthcheck>", "exec")
+    assert "curl" not in check and "wget" not in check
+    assert re.search(r"--timeout=\d+s", check) and re.search(r"--interval=\d+s", check)
+
+
+def test_runtime_settings_come_from_the_environment(steps: list[Instruction]) -> None:
+    stage = final_stage(steps)
+    env = env_of(stage)
+    assert env["WINDVANE_HOST"] == "0.0.0.0"
+    assert env["WINDVANE_CACHE_DIR"] == CACHE_DIR
+    assert env["WINDVANE_PORT"].isdigit() and env["WINDVANE_WORKERS"].isdigit()
+    # Each of them is a real setting: pydantic-settings reads the same environment.
+    settings = Settings(
+        **{
+            k.removeprefix("WINDVANE_").lower(): v
+            for k, v in env.items()
+            if k.startswith("WINDVANE_")
+        }
+    )
+    assert str(settings.cache_dir) == CACHE_DIR
+    exposed = [s.arguments for s in stage if s.keyword == "EXPOSE"]
+    assert exposed == [env["WINDVANE_PORT"]]
+    volumes = [json.loads(s.arguments) for s in stage if s.keyword == "VOLUME"]
+    assert [CACHE_DIR] in volumes
+
+
+def test_signal_and_command_let_uvicorn_drain(steps: list[Instruction]) -> None:
+    stage = final_stage(steps)
+    assert [s.arguments for s in stage if s.keyword == "STOPSIGNAL"] == ["SIGTERM"]
+    commands = [s.arguments for s in stage if s.keyword == "CMD"]
+    # Exec form: the server is PID 1's child without a shell that would swallow SIGTERM.
+    assert [json.loads(c) for c in commands] == [["windvane", "serve"]]
+    assert not any(s.keyword == "ENTRYPOINT" for s in stage)
+
+
+def test_no_test_or_dev_extras_are_installed(steps: list[Instruction]) -> None:
+    runs = " ".join(s.arguments for s in steps if s.keyword == "RUN")
+    assert "pip" in runs
+    assert not re.search(r"\[(test|dev|docs)[^\]]*\]", runs), runs
+    for tool in ("pytest", "hypothesis", "schemathesis", "ruff", "mypy"):
+        assert tool not in runs
+
+
+def test_every_copy_source_exists_and_is_in_the_build_context(steps: list[Instruction]) -> None:
+    ignore = DOCKER / "Dockerfile.dockerignore"
+    patterns = [
+        p.strip() for p in ignore.read_text().splitlines() if p.strip() and not p.startswith("#")
+    ]
+    copies = [s for s in steps if s.keyword in {"COPY", "ADD"}]
+    assert copies
+    for step in copies:
+        words = [w for w in shlex.split(step.arguments) if not w.startswith("--")]
+        if "--from=" in step.arguments:
+            continue
+        for source in words[:-1]:
+            assert (ROOT / source).exists(), f"COPY source {source} is missing"
+            assert context_includes(source, patterns), f"{source} is excluded by {ignore.name}"
+
+
+def context_includes(path: str, patterns: list[str]) -> bool:
+    """Whether .dockerignore ``patterns`` (last match wins, ! re-includes) keep ``path``."""
+    keep = True
+    for pattern in patterns:
+        negated = pattern.startswith("!")
+        body = pattern.lstrip("!").rstrip("/")
+        if fnmatch.fnmatch(path, body) or path.startswith(body + "/"):
+            keep = negated
+    return keep
+
+
+# --- compose ------------------------------------------------------------------------------
+
+
+def test_compose_runs_the_service_prometheus_and_the_dashboard(compose: dict[str, Any]) -> None:
+    services = compose["services"]
+    assert {"windvane", "prometheus", "dashboard"} <= set(services)
+    build = services["windvane"]["build"]
+    assert (DOCKER / build["context"] / build["dockerfile"]).resolve() == DOCKER / "Dockerfile"
+    for name, service in services.items():
+        image = service.get("image", "")
+        assert image and not image.endswith(":latest") and ":" in image, f"{name}: pin the image"
+
+
+def test_compose_bind_mounts_exist_and_named_volumes_are_declared(
+    compose: dict[str, Any],
+) -> None:
+    declared = set(compose.get("volumes") or {})
+    for name, service in compose["services"].items():
+        for mount in service.get("volumes", []):
+            source = mount.split(":")[0]
+            if source.startswith((".", "/")):
+                assert (DOCKER / source).exists(), f"{name}: {source} is missing"
+            else:
+                assert source in declared, f"{name}: volume {source} is not declared"
+
+
+def test_compose_keeps_the_cache_on_a_volume_and_outlasts_the_grace_period(
+    compose: dict[str, Any],
+) -> None:
+    service = compose["services"]["windvane"]
+    env = service["environment"]
+    assert env["WINDVANE_CACHE_DIR"] == CACHE_DIR
+    assert any(m.split(":")[1] == CACHE_DIR for m in service["volumes"])
+    grace = float(env["WINDVANE_SHUTDOWN_GRACE_SECONDS"])
+    stop = float(str(service["stop_grace_period"]).removesuffix("s"))
+    assert stop > grace, "Docker would SIGKILL in-flight requests"
+    assert service["ports"][0].endswith(":" + env["WINDVANE_PORT"])
+
+
+def test_prometheus_scrapes_the_service_port(compose: dict[str, Any]) -> None:
+    config = yaml.safe_load((DOCKER / "prometheus.yml").read_text())
+    job = next(j for j in config["scrape_configs"] if j["job_name"] == "windvane")
+    port = int(compose["services"]["windvane"]["environment"]["WINDVANE_PORT"])
+    assert job.get("metrics_path", "/metrics") == "/metrics"
+    assert job["dns_sd_configs"][0]["names"] == ["windvane"]
+    assert job["dns_sd_configs"][0]["port"] == port
+    for rule_file in config["rule_files"]:
+        assert (DOCKER / rule_file).exists()
+
+
+def test_dashboard_provisioning_points_at_the_mounted_definition(
+    compose: dict[str, Any],
+) -> None:
+    provider = yaml.safe_load(
+        (DOCKER / "dashboard/provisioning/dashboards/windvane.yaml").read_text()
+    )
+    folder = provider["providers"][0]["options"]["path"]
+    mounts = compose["services"]["dashboard"]["volumes"]
+    assert any(
+        m.split(":")[1].startswith(folder + "/") and m.split(":")[0].endswith(".json")
+        for m in mounts
+    )
+    sources = yaml.safe_load(
+        (DOCKER / "dashboard/provisioning/datasources/prometheus.yaml").read_text()
+    )
+    uids = {d["uid"] for d in sources["datasources"]}
+    dashboard = json.loads((DOCKER / "dashboard/windvane.json").read_text())
+    for panel in dashboard["panels"]:
+        assert panel["datasource"]["uid"] in uids, panel["title"]
+
+
+# --- dashboard and alerts against the app's metrics ----------------------------------------
+
+REQUIRED_PANELS = {
+    "request rate": "windvane_requests_total",
+    "latency quantiles": "windvane_request_duration_seconds_bucket",
+    "error ratio": "windvane_requests_total",
+    "cache hit ratio": "windvane_cache_lookups_total",
+    "fit time by family": "windvane_fit_duration_seconds_bucket",
+    "queue depth": "windvane_pool_queue_depth",
+}
+
+
+def metric_names(expression: str) -> set[str]:
+    return set(re.findall(r"\bwindvane_[a-z_]+\b", expression))
+
+
+def dashboard_expressions() -> dict[str, list[str]]:
+    dashboard = json.loads((DOCKER / "dashboard/windvane.json").read_text())
+    return {p["title"].lower(): [t["expr"] for t in p["targets"]] for p in dashboard["panels"]}
+
+
+def test_dashboard_has_every_required_panel() -> None:
+    panels = dashboard_expressions()
+    for wanted, metric in REQUIRED_PANELS.items():
+        title = next((t for t in panels if t.startswith(wanted)), None)
+        assert title is not None, f"no panel {wanted!r}"
+        assert any(metric in metric_names(e) for e in panels[title]), (wanted, panels[title])
+    assert "histogram_quantile" in " ".join(panels["latency quantiles"])
+    assert "family" in " ".join(panels["fit time by family"])
+
+
+def test_every_metric_the_dashboard_and_alerts_use_is_exported(exported_series: set[str]) -> None:
+    used = {n for exprs in dashboard_expressions().values() for e in exprs for n in metric_names(e)}
+    for group in yaml.safe_load((DOCKER / "alerts.yml").read_text())["groups"]:
+        used |= {n for rule in group["rules"] for n in metric_names(rule["expr"])}
+    assert used, "no windvane metric found in the dashboard"
+    assert used <= exported_series, sorted(used - exported_series)
+
+
+def test_live_metrics_endpoint_serves_the_names_the_dashboard_uses(tmp_path: Path) -> None:
+    # The same check against a running app: what /metrics really prints after one request.
+    settings = Settings(pool_workers=1, cache_dir=tmp_path / "cache", api_keys="")
+    with TestClient(create_app(settings)) as client:
+        assert client.get("/v1/models").status_code == 200
+        text = client.get("/metrics").text
+    live = {s.name for f in text_string_to_metric_families(text) for s in f.samples}
+    assert "windvane_requests_total" in live
+    assert "windvane_pool_queue_depth" in live
+    assert "windvane_cache_lookups_total" in live
+
+
+@pytest.mark.skipif(PROMTOOL is None, reason=NO_PROMTOOL)
+def test_promtool_accepts_the_prometheus_config_and_rules() -> None:
+    for args in (["check", "config", "prometheus.yml"], ["check", "rules", "alerts.yml"]):
+        done = subprocess.run(
+            [str(PROMTOOL), *args],
+            cwd=DOCKER,
+            capture_output=True,
+            text=True,
+            timeout=60,
+            check=False,
+        )
+        assert done.returncode == 0, done.stdout + done.stderr
+
+
+@pytest.mark.skipif(PROMTOOL is None, reason=NO_PROMTOOL)
+def test_promtool_parses_every_dashboard_expression(tmp_path: Path) -> None:
+    # The dashboard's queries as recording rules, so promtool's PromQL parser checks each one.
+    rules = []
+    for title, exprs in dashboard_expressions().items():
+        for i, expr in enumerate(exprs):
+            record = re.sub(r"[^a-z0-9]+", "_", f"dashboard:{title}:{i}")
+            rules.append(
+                {
+                    "record": record.replace("dashboard_", "dashboard:", 1),
+                    "expr": expr.replace("$__rate_interval", "5m"),
+                }
+            )
+    path = tmp_path / "dashboard_rules.yml"
+    path.write_text(yaml.safe_dump({"groups": [{"name": "dashboard", "rules": rules}]}))
+    done = subprocess.run(
+        [str(PROMTOOL), "check", "rules", str(path)],
+        capture_output=True,
+        text=True,
+        timeout=60,
+        check=False,
+    )
+    assert done.returncode == 0, done.stdout + done.stderr
