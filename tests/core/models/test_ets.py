@@ -3,16 +3,26 @@
 from __future__ import annotations
 
 import pickle
+import time
+from collections.abc import Iterator
 
 import numpy as np
 import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 from statsmodels.tsa.exponential_smoothing.ets import ETSModel
+from threadpoolctl import threadpool_limits
 
 from service.core.errors import FitError, SpecificationError
 from service.core.models import registry
 from service.core.models.ets import EtsSpec, candidates_for, ets_label, search_ets
+
+
+@pytest.fixture(autouse=True)
+def one_blas_thread() -> Iterator[None]:
+    """As in the pool: L-BFGS-B's tiny BLAS calls are several times slower multi-threaded."""
+    with threadpool_limits(1):
+        yield
 
 
 def monthly(n: int = 96, seed: int = 3, level: float = 100.0) -> pd.Series:
@@ -131,6 +141,18 @@ def test_incomplete_series_is_refused() -> None:
     assert err.value.problems[0].field == "series.values"
 
 
-def test_auto_on_two_hundred_monthly_points_is_fast() -> None:
-    found = search_ets(monthly(n=200, seed=11), 12)
-    assert found.best.fit_seconds < 3.0  # issue 5 target is ~1 s; slack for a shared CI core
+def test_auto_on_two_hundred_monthly_points_is_cheap() -> None:
+    # Issue 5 wants `auto` in ~1 s; measured as a ratio to one direct statsmodels fit of the
+    # winner in the same run, with BLAS on one thread as in the pool (threads cost 5x here).
+    y = monthly(n=200, seed=11)
+    with threadpool_limits(1):
+        start = time.perf_counter()
+        found = search_ets(y, 12)
+        ours = time.perf_counter() - start
+        start = time.perf_counter()
+        ETSModel(y.to_numpy(), error="add", trend="add", seasonal="add", seasonal_periods=12).fit(
+            disp=False
+        )
+        direct = time.perf_counter() - start
+    assert found.best.label == "ETS(A,A,A)"
+    assert ours < 4.0 * direct + 0.2
