@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import tempfile
 from collections.abc import Callable, Iterator
-from contextlib import AbstractContextManager, contextmanager
+from contextlib import AbstractContextManager, ExitStack, contextmanager
 from pathlib import Path
 from typing import Any
 
@@ -20,14 +20,12 @@ from fastapi.testclient import TestClient
 from service.api.app import create_app
 from service.config import Settings
 
-# Small limits for the tests that probe them; every other value is the default.
-LIMITED = {"max_points": 40, "max_horizon": 24, "max_body_bytes": 4_000}
-
 SettingsFactory = Callable[..., Settings]
 ClientFactory = Callable[..., AbstractContextManager[TestClient]]
+SharedClients = Callable[..., TestClient]
 
 
-def _settings(directory: Path, **overrides: Any) -> Settings:
+def app_settings(directory: Path, **overrides: Any) -> Settings:
     """Settings that keep every file the app writes under ``directory``."""
     values: dict[str, Any] = {
         "pool_workers": 1,
@@ -44,7 +42,7 @@ def _settings(directory: Path, **overrides: Any) -> Settings:
 @pytest.fixture
 def make_settings(tmp_path: Path) -> SettingsFactory:
     """Settings for this test, with its own cache and metrics directories."""
-    return lambda **overrides: _settings(tmp_path, **overrides)
+    return lambda **overrides: app_settings(tmp_path, **overrides)
 
 
 @pytest.fixture
@@ -53,7 +51,7 @@ def make_client(tmp_path: Path) -> ClientFactory:
 
     @contextmanager
     def build(**overrides: Any) -> Iterator[TestClient]:
-        app = create_app(_settings(Path(tempfile.mkdtemp(dir=tmp_path)), **overrides))
+        app = create_app(app_settings(Path(tempfile.mkdtemp(dir=tmp_path)), **overrides))
         with TestClient(app, raise_server_exceptions=False) as client:
             yield client
 
@@ -61,19 +59,25 @@ def make_client(tmp_path: Path) -> ClientFactory:
 
 
 @pytest.fixture(scope="session")
-def client(tmp_path_factory: pytest.TempPathFactory) -> Iterator[TestClient]:
-    """A client of one app with default limits, shared by the session.
+def shared_client(tmp_path_factory: pytest.TempPathFactory) -> Iterator[SharedClients]:
+    """Clients kept open for the session, one per set of overrides, built on first use.
 
     Server exceptions are not re-raised: a test must see the 500 a caller would see.
     """
-    app = create_app(_settings(tmp_path_factory.mktemp("default-app")))
-    with TestClient(app, raise_server_exceptions=False) as test_client:
-        yield test_client
+    opened: dict[tuple[tuple[str, Any], ...], TestClient] = {}
+    with ExitStack() as stack:
+
+        def get(**overrides: Any) -> TestClient:
+            key = tuple(sorted(overrides.items()))
+            if key not in opened:
+                app = create_app(app_settings(tmp_path_factory.mktemp("app"), **overrides))
+                opened[key] = stack.enter_context(TestClient(app, raise_server_exceptions=False))
+            return opened[key]
+
+        yield get
 
 
 @pytest.fixture(scope="session")
-def limited_client(tmp_path_factory: pytest.TempPathFactory) -> Iterator[TestClient]:
-    """A client of one app with the small LIMITED limits, shared by the session."""
-    app = create_app(_settings(tmp_path_factory.mktemp("limited-app"), **LIMITED))
-    with TestClient(app, raise_server_exceptions=False) as test_client:
-        yield test_client
+def client(shared_client: SharedClients) -> TestClient:
+    """A client of the app with default limits, shared by the session."""
+    return shared_client()
