@@ -91,7 +91,7 @@ def spares() -> DemoSeries:
 
 def fuel() -> DemoSeries:
     """A daily fuel price index: a random walk, which no model forecasts better than naive."""
-    n, rng = 300, _rng(6)
+    n, rng = 300, _rng(7)
     y = 100 + np.cumsum(rng.normal(0, 0.8, n))
     return DemoSeries("fuel", "Fuel price index (daily)", "2025-01-01", "P1D",
                       np.round(y, 3).tolist(), 14)

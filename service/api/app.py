@@ -12,7 +12,7 @@ from service.api.auth import install_api_keys
 from service.api.middleware import BodyLimitMiddleware, RequestIdMiddleware
 from service.api.observe import ObserveMiddleware
 from service.api.problems import install_problem_handlers
-from service.api.routes import forecasts, health, models
+from service.api.routes import backtests, diagnostics, forecasts, health, models
 from service.config import Settings
 from service.runtime.cache import Cache
 from service.runtime.logs import request_logger
@@ -34,17 +34,25 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     @asynccontextmanager
     async def lifespan(app: FastAPI) -> AsyncIterator[None]:
         app.state.cache = Cache(
-            enabled=settings.cache == "on", directory=settings.cache_dir,
-            max_bytes=settings.cache_max_bytes, response_entries=settings.cache_memory_items,
-            response_bytes=settings.cache_memory_bytes)
+            enabled=settings.cache == "on",
+            directory=settings.cache_dir,
+            max_bytes=settings.cache_max_bytes,
+            response_entries=settings.cache_memory_items,
+            response_bytes=settings.cache_memory_bytes,
+        )
 
         def occupancy(stats: PoolStats) -> None:
             telemetry.record_pool(stats.workers, stats.busy, stats.queued)
 
-        pool = WorkPool(settings.pool_workers, settings.queue_size, settings.fit_seconds,
-                        preload=("service.runtime.jobs",),
-                        max_jobs_per_worker=settings.pool_max_jobs,
-                        on_change=occupancy, on_recycle=telemetry.record_recycle)
+        pool = WorkPool(
+            settings.pool_workers,
+            settings.queue_size,
+            settings.fit_seconds,
+            preload=("service.runtime.jobs",),
+            max_jobs_per_worker=settings.pool_max_jobs,
+            on_change=occupancy,
+            on_recycle=telemetry.record_recycle,
+        )
         app.state.pool = pool
         try:
             yield
@@ -52,14 +60,22 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             pool.close()
             telemetry.close()
 
-    app = FastAPI(title="Windvane", version=__version__, description=DESCRIPTION,
-                  lifespan=lifespan, docs_url="/docs", redoc_url=None)
+    app = FastAPI(
+        title="Windvane",
+        version=__version__,
+        description=DESCRIPTION,
+        lifespan=lifespan,
+        docs_url="/docs",
+        redoc_url=None,
+    )
     app.state.settings = settings
     app.state.telemetry = telemetry
     install_problem_handlers(app)
     app.include_router(health.router)
     app.include_router(models.router)
     app.include_router(forecasts.router)
+    app.include_router(diagnostics.router)
+    app.include_router(backtests.router)
     install_api_keys(app, settings)  # innermost: request ids reach its 401 problems
     app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
     app.add_middleware(ObserveMiddleware, telemetry=telemetry, logger=request_logger())

@@ -11,10 +11,13 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from service.core.backtest import backtest as run_backtest
+from service.core.diagnostics import diagnose
 from service.core.errors import WindvaneError
 from service.core.models.base import Fitted, FitWarning, Specification
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
+from service.core.selection import backtest_auto, select
 from service.runtime import render
 
 
@@ -47,8 +50,12 @@ def collected_warnings(into: list[FitWarning]) -> Iterator[None]:
 
 def _warning_code(category: type[Warning]) -> str:
     name = category.__name__
-    return {"ConvergenceWarning": "convergence", "ValueWarning": "value",
-            "RuntimeWarning": "numerical", "UserWarning": "library"}.get(name, "library")
+    return {
+        "ConvergenceWarning": "convergence",
+        "ValueWarning": "value",
+        "RuntimeWarning": "numerical",
+        "UserWarning": "library",
+    }.get(name, "library")
 
 
 def benchmark_for(y: pd.Series, seasonal_period: int) -> Specification:
@@ -58,8 +65,9 @@ def benchmark_for(y: pd.Series, seasonal_period: int) -> Specification:
     return NaiveSpec()
 
 
-def fit_with_fallback(spec: Specification, y: pd.Series, seasonal_period: int,
-                      found: list[FitWarning]) -> Fitted:
+def fit_with_fallback(
+    spec: Specification, y: pd.Series, seasonal_period: int, found: list[FitWarning]
+) -> Fitted:
     """Fit ``spec``; a numerical failure (not a domain refusal) falls back to the benchmark."""
     try:
         with collected_warnings(found):
@@ -68,36 +76,139 @@ def fit_with_fallback(spec: Specification, y: pd.Series, seasonal_period: int,
         raise
     except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
         fallback = benchmark_for(y, seasonal_period)
-        found.append(FitWarning(
-            "fallback", f"{spec.family} could not be fitted ({type(exc).__name__}: {exc}); "
-            f"answered with {fallback.family} instead"))
+        found.append(
+            FitWarning(
+                "fallback",
+                f"{spec.family} could not be fitted ({type(exc).__name__}: {exc}); "
+                f"answered with {fallback.family} instead",
+            )
+        )
         return fallback.fit(y, seasonal_period)
 
 
 def forecast(task: ForecastTask) -> dict[str, Any]:
     """Fit (or select) a model and forecast; the response body without provenance."""
+    if task.specification is None:
+        return _auto_forecast(task)
     found: list[FitWarning] = []
-    spec = task.specification or benchmark_for(task.y, task.seasonal_period)
+    spec = task.specification
     fitted = fit_with_fallback(spec, task.y, task.seasonal_period, found)
     with collected_warnings(found):
         result = fitted.forecast(task.horizon, task.coverage)
     if not np.all(np.isfinite(result.point)):
         fallback = benchmark_for(task.y, task.seasonal_period)
-        found.append(FitWarning("fallback", f"{spec.family} gave non-finite forecasts; "
-                                f"answered with {fallback.family} instead"))
+        found.append(
+            FitWarning(
+                "fallback",
+                f"{spec.family} gave non-finite forecasts; answered with {fallback.family} instead",
+            )
+        )
         fitted = fallback.fit(task.y, task.seasonal_period)
         result = fitted.forecast(task.horizon, task.coverage)
     found.extend(fitted.warnings)
     body: dict[str, Any] = {"name": task.name, **render.forecast_body(result)}
     body["model"] = render.model_body(fitted.describe())
     body["selection"] = None
-    if task.specification is None:
-        found.insert(0, FitWarning(
-            "benchmark_model", f"no model was given: answered with the {spec.family} "
-            "benchmark"))
     body["warnings"] = render.warnings_body(found)
-    if "fitted" in task.include:
+    _add_in_sample(body, fitted, task.include)
+    return body
+
+
+def _add_in_sample(body: dict[str, Any], fitted: Fitted, include: tuple[str, ...]) -> None:
+    if "fitted" in include:
         body["fitted"] = render.floats(fitted.fitted_values())
-    if "residuals" in task.include:
+    if "residuals" in include:
         body["residuals"] = render.floats(fitted.residuals())
+
+
+def _auto_forecast(task: ForecastTask) -> dict[str, Any]:
+    """Model "auto": diagnostics, candidates, backtest, refit, calibrated forecast."""
+    found: list[FitWarning] = []
+    with collected_warnings(found):
+        report = diagnose(task.y, task.seasonal_period)
+        chosen = select(
+            task.y,
+            task.seasonal_period,
+            task.horizon,
+            task.coverage,
+            metric=task.metric,
+            candidates=task.candidates,
+            diagnostics=report,
+        )
+    body: dict[str, Any] = {"name": task.name, **render.forecast_body(chosen.forecast)}
+    body["model"] = render.model_body(chosen.fitted.describe())
+    body["selection"] = render.plain(chosen.selection.to_dict())
+    body["warnings"] = render.warnings_body([*chosen.warnings, *found])
+    _add_in_sample(body, chosen.fitted, task.include)
+    return body
+
+
+@dataclass(frozen=True)
+class DiagnosticsTask:
+    """Everything a worker needs to answer POST /v1/diagnostics."""
+
+    y: pd.Series
+    seasonal_period: int
+    max_lag: int | None = None
+    include_components: bool = False
+
+
+def diagnostics(task: DiagnosticsTask) -> dict[str, Any]:
+    """The diagnostics report as a JSON-ready body."""
+    found: list[FitWarning] = []
+    with collected_warnings(found):
+        report = diagnose(
+            task.y,
+            task.seasonal_period,
+            max_lag=task.max_lag,
+            include_components=task.include_components,
+        )
+    body: dict[str, Any] = render.plain(report.to_dict())
+    body.setdefault("warnings", [])
+    body["warnings"] = [*body["warnings"], *render.warnings_body(found)]
+    return body
+
+
+@dataclass(frozen=True)
+class BacktestTask:
+    """Everything a worker needs to answer POST /v1/backtests."""
+
+    y: pd.Series
+    seasonal_period: int
+    specifications: tuple[Specification, ...] | None
+    horizon: int
+    origins: int
+    step: int
+    coverage: tuple[float, ...]
+    metric: str
+
+
+def backtests(task: BacktestTask) -> dict[str, Any]:
+    """Rolling-origin evaluation of the given specifications, or of the auto candidates."""
+    found: list[FitWarning] = []
+    with collected_warnings(found):
+        if task.specifications is None:
+            report = backtest_auto(
+                task.y,
+                task.seasonal_period,
+                horizon=task.horizon,
+                origins=task.origins,
+                step=task.step,
+                coverage=task.coverage,
+                metric=task.metric,
+                diagnostics=diagnose(task.y, task.seasonal_period),
+            )
+        else:
+            report = run_backtest(
+                task.y,
+                task.specifications,
+                task.seasonal_period,
+                horizon=task.horizon,
+                origins=task.origins,
+                step=task.step,
+                coverage=task.coverage,
+                metric=task.metric,
+            )
+    body: dict[str, Any] = render.plain(report.to_dict())
+    body["warnings"] = render.warnings_body(found)
     return body
