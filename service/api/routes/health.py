@@ -30,8 +30,9 @@ async def readyz(request: Request, pool: PoolDep, cache: CacheDep) -> Any:
     details = {"pool": dataclasses.asdict(pool.stats()), "cache": dataclasses.asdict(state)}
     if checks["pool"] == "ok":
         return {"status": "ready", "checks": checks, "details": details}
-    response: JSONResponse = problem_response(503, "not_ready", "the worker pool is not alive",
-                                              request)
+    response: JSONResponse = problem_response(
+        503, "not_ready", "the worker pool is not alive", request
+    )
     return response
 
 

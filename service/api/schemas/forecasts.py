@@ -22,9 +22,11 @@ class TransformIn(Strict):
 
     kind: Literal["none", "log", "boxcox"] = "none"
     parameter: float | None = Field(
-        None, description="Box-Cox lambda; estimated by maximum likelihood when absent.")
+        None, description="Box-Cox lambda; estimated by maximum likelihood when absent."
+    )
     bias_adjust: bool = Field(
-        True, description="Back-transform to the mean (true) or to the median (false).")
+        True, description="Back-transform to the mean (true) or to the median (false)."
+    )
 
 
 class ForecastRequest(Strict):
@@ -33,17 +35,23 @@ class ForecastRequest(Strict):
     series: SeriesIn
     horizon: int = Field(ge=1, description="Steps ahead to forecast.")
     coverage: list[float] = Field(
-        default_factory=lambda: [0.8, 0.95], min_length=1, max_length=10,
-        description="Central prediction-interval levels, each strictly between 0 and 1.")
+        default_factory=lambda: [0.8, 0.95],
+        min_length=1,
+        max_length=10,
+        description="Central prediction-interval levels, each strictly between 0 and 1.",
+    )
     model: Literal["auto"] | dict[str, Any] = Field(
-        "auto", description="`auto`, or a specification such as {\"family\": \"naive\"}.")
+        "auto", description='`auto`, or a specification such as {"family": "naive"}.'
+    )
     candidates: list[dict[str, Any]] | None = Field(
-        None, max_length=20, description="With `auto`: the specifications to choose among.")
+        None, max_length=20, description="With `auto`: the specifications to choose among."
+    )
     transform: Literal["none", "log", "boxcox"] | TransformIn = "none"
     regressors: list[RegressorIn] | None = Field(None, max_length=20)
     include: list[Literal["fitted", "residuals"]] = Field(default_factory=list)
     metric: Literal["mase", "smape", "rmse"] = Field(
-        "mase", description="With `auto`: the backtest score that ranks candidates.")
+        "mase", description="With `auto`: the backtest score that ranks candidates."
+    )
 
 
 class IntervalOut(BaseModel):
