@@ -8,6 +8,7 @@ held fixed and re-filtered (``fitted.refilter``) forward through the later origi
 
 from __future__ import annotations
 
+import dataclasses
 import time
 import warnings
 from collections.abc import Callable, Iterable, Sequence
@@ -101,11 +102,18 @@ class ModelBacktest:
     refilter_seconds: float
     warnings: tuple[FitWarning, ...] = ()
     failure: str | None = None
+    resolved: Any = None
+    """The complete specification the family's own search settled on (for refits)."""
 
     @property
     def ok(self) -> bool:
         """True when every origin produced a finite forecast."""
         return self.failure is None and bool(self.forecasts)
+
+    def at(self, origins: set[pd.Timestamp]) -> ModelBacktest:
+        """The same record restricted to the given origins."""
+        kept = tuple(f for f in self.forecasts if f.origin in origins)
+        return dataclasses.replace(self, forecasts=kept)
 
     def errors(self) -> np.ndarray:
         """Actual minus point, shape (origins, horizon)."""
@@ -230,6 +238,8 @@ class Task:
     plan: Plan
     coverage: tuple[float, ...]
     scale_period: int = 1
+    fit_end: int | None = None
+    """Estimate on the points before this position (default: the first origin); never later."""
 
 
 def evaluate(task: Task) -> ModelBacktest:
@@ -243,12 +253,14 @@ def evaluate(task: Task) -> ModelBacktest:
         with warnings.catch_warnings(record=True) as seen:
             warnings.simplefilter("always")
             start = time.perf_counter()
-            fitted = spec.fit(y.iloc[: plan.origins[0]], task.seasonal_period)
+            # Never estimate on points after the first origin: that would peek.
+            fit_end = min(task.fit_end or plan.origins[0], plan.origins[0])
+            fitted = spec.fit(y.iloc[:fit_end], task.seasonal_period)
             fit_seconds = time.perf_counter() - start
             label = fitted.describe().label
             start = time.perf_counter()
-            for k, origin in enumerate(plan.origins):
-                current = fitted if k == 0 else fitted.refilter(y.iloc[:origin])
+            for origin in plan.origins:
+                current = fitted if origin == fit_end else fitted.refilter(y.iloc[:origin])
                 forecasts.append(_one_origin(current, y, origin, plan.horizon, task))
             refilter_seconds = time.perf_counter() - start
         caught.extend(_as_fit_warnings(seen))
@@ -266,7 +278,15 @@ def evaluate(task: Task) -> ModelBacktest:
         fit_seconds,
         refilter_seconds,
         tuple(_unique(caught)),
+        resolved=resolved_specification(fitted),
     )
+
+
+def resolved_specification(fitted: Any) -> Any:
+    """The complete specification behind a fitted model: a family that searches (ETS keeps it
+    as ``chosen``) settles on one; the rest are complete already."""
+    chosen = getattr(fitted, "chosen", None)
+    return chosen if chosen is not None else fitted.specification
 
 
 def _one_origin(fitted: Any, y: pd.Series, origin: int, horizon: int, task: Task) -> OriginForecast:
@@ -363,6 +383,7 @@ def run(
     coverage: Sequence[float],
     map_fn: MapFn[Task, ModelBacktest] | None = None,
     periods: Sequence[int] | None = None,
+    fit_end: int | None = None,
 ) -> list[ModelBacktest]:
     """Evaluate every specification over one plan, through ``map_fn`` when given.
 
@@ -372,7 +393,7 @@ def run(
     levels = check_coverage(coverage)
     fit_periods = list(periods) if periods is not None else [seasonal_period] * len(specifications)
     tasks = [
-        Task(s, y, p, plan, levels, seasonal_period)
+        Task(s, y, p, plan, levels, seasonal_period, fit_end)
         for s, p in zip(specifications, fit_periods, strict=True)
     ]
     mapper = map_fn or map

@@ -31,6 +31,7 @@ A family that is not (yet) in the registry is skipped and listed in ``skipped``.
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -116,10 +117,15 @@ def random_walk_fallback(values: np.ndarray) -> tuple[bool, str]:
     r1 = float(np.corrcoef(d[1:], d[:-1])[0, 1]) if np.ptp(d) > 0 else 0.0
     band = 1.96 / math.sqrt(y.size)
     try:
-        result = adfuller(y, regression="c", autolag="AIC", result_object=True)
+        with warnings.catch_warnings(record=True) as seen:
+            warnings.simplefilter("always")
+            result = adfuller(y, regression="c", autolag="AIC", result_object=True)
         p_value = float(result.pvalue)
     except (ValueError, np.linalg.LinAlgError):
         return False, "unit-root test failed"
+    if seen:
+        # A singular or degenerate test regression (e.g. an exact line) decides nothing.
+        return False, f"unit-root test inconclusive: {seen[0].message}"
     verdict = p_value > 0.05 and abs(r1) <= band
     rejected = "does not reject" if p_value > 0.05 else "rejects"
     reason = (

@@ -18,6 +18,7 @@ Rules (stated for DEVELOPERS.md):
 
 from __future__ import annotations
 
+import math
 import time
 from collections.abc import Sequence
 from dataclasses import dataclass, field
@@ -140,17 +141,29 @@ def selection_plan(n: int, horizon: int, origins: int, seasonal_period: int) -> 
     return None
 
 
-def calibration_plan(n: int, horizon: int, seasonal_period: int) -> Plan | None:
-    """Up to 8 origins, a quarter-horizon apart (or 1), keeping half the series for fitting.
+def calibration_plan(
+    n: int, horizon: int, seasonal_period: int, first: int | None = None
+) -> Plan | None:
+    """Up to 8 origins for calibration; None when fewer than ``calibration.MINIMUM_ORIGINS`` fit.
 
-    Returns None when fewer than ``calibration.MINIMUM_ORIGINS`` origins fit.
+    With ``first`` (the selection's first origin) the origins lie between it and n − h, so the
+    models estimated for the selection serve unchanged; otherwise they start where at least
+    half the series is left for estimation, a quarter-horizon (or one step) apart.
     """
+    last = n - horizon
+    if first is not None:
+        span = last - first
+        if span <= 0:
+            return None
+        step = max(1, math.ceil(span / (CALIBRATION_ORIGINS - 1)))
+        origins = tuple(range(last, first - 1, -step))[::-1]
+        return Plan(origins, horizon, step) if len(origins) >= cal.MINIMUM_ORIGINS else None
     need = max(minimum_training(seasonal_period), n // 2)
     for k in range(CALIBRATION_ORIGINS, cal.MINIMUM_ORIGINS - 1, -1):
         for step in sorted({max(1, horizon // 4), 1}, reverse=True):
-            first = n - horizon - step * (k - 1)
-            if first >= need:
-                return Plan(tuple(first + step * j for j in range(k)), horizon, step)
+            start = last - step * (k - 1)
+            if start >= need:
+                return Plan(tuple(start + step * j for j in range(k)), horizon, step)
     return None
 
 
@@ -195,41 +208,52 @@ def select(
             field="horizon",
         )
     periods = _periods(specs, profile)
-    results = run(y, specs, profile.benchmark_period, plan, levels, map_fn, periods)
+    # One estimation per candidate serves both the ranking (the selection origins) and the
+    # calibration (denser origins between the first and the last): only re-filtering is added.
+    dense_plan = _dense(
+        plan, calibration_plan(len(y), horizon, profile.benchmark_period, first=plan.origins[0])
+    )
+    dense = run(y, specs, profile.benchmark_period, dense_plan, levels, map_fn, periods)
+    chosen_origins = {y.index[o] for o in plan.origins}
+    results = [r.at(chosen_origins) for r in dense]
     clock.lap("backtest")
 
-    by_label = {id(s): r for s, r in zip(specs, results, strict=True)}
     ranking = rank(results, metric)
-    working = [r for r in sorted(results, key=lambda r: r.score(metric)) if r.ok]
-    if not working:
+    order = sorted(
+        (i for i, r in enumerate(results) if r.ok), key=lambda i: (results[i].score(metric), i)
+    )
+    if not order:
         raise FitError("no candidate could be fitted to this series", field="series.values")
     failures = tuple((r.label, r.failure or "") for r in results if not r.ok)
-    bench_spec = _benchmark(specs, profile)
-    bench = by_label[id(bench_spec)]
+    bench = results[specs.index(_benchmark(specs, profile))]
     bench_score = bench.score(metric)
 
-    rule, members = "winner", [working[0]]
-    if len(working) >= 2:
-        top = working[:COMBINE_TOP]
-        mixed = combine(top)
-        if mixed.score(metric) < working[0].score(metric):
+    rule, members = "winner", [order[0]]
+    if len(order) >= 2:
+        top = order[:COMBINE_TOP]
+        mixed = combine([results[i] for i in top])
+        if mixed.score(metric) < results[order[0]].score(metric):
             rule, members = "combination", top
             ranking = (*ranking, RankEntry(mixed.label, mixed.specification, mixed.score(metric)))
             ranking = tuple(sorted(ranking, key=lambda r: r.score))
-    chosen_bt = combine(members) if len(members) > 1 else members[0]
+    chosen_bt = _merged([results[i] for i in members])
     skill = _skill(chosen_bt.score(metric), bench_score)
 
     extra: list[FitWarning] = []
-    naive_bt = by_label[id(next(s for s in specs if s.family == "naive"))]
-    over_naive = _skill(chosen_bt.score(metric), naive_bt.score(metric))
+    naive_index = next(i for i, s in enumerate(specs) if s.family == "naive")
+    over_naive = _skill(chosen_bt.score(metric), results[naive_index].score(metric))
     if profile.random_walk and (over_naive is None or over_naive < SKILL_MARGIN):
-        rule, members = "naive_guard", [naive_bt]
-        chosen_bt = members[0]
+        rule, members = "naive_guard", [naive_index]
+        chosen_bt = results[naive_index]
         skill = _skill(chosen_bt.score(metric), bench_score)
         extra.append(FitWarning("no_skill_over_naive", NO_SKILL_MESSAGE))
 
-    member_specs = [_spec_of(specs, results, m) for m in members]
-    calibration = _calibrate(y, member_specs, profile, plan, chosen_bt, levels, map_fn)
+    # The structure each family's search chose before the first origin is kept; only its
+    # parameters are estimated again on the full series: no second search.
+    member_specs = [dense[i].resolved or specs[i] for i in members]
+    calibration = _calibrate(
+        y, member_specs, profile, _merged([dense[i] for i in members]), horizon, levels, map_fn
+    )
     clock.lap("calibration")
 
     fitted = _refit(y, member_specs, profile, chosen_bt.label)
@@ -297,35 +321,39 @@ def _skill(score: float, benchmark: float) -> float | None:
     return float(1.0 - score / benchmark)
 
 
-def _spec_of(
-    specs: Sequence[Specification], results: Sequence[ModelBacktest], member: ModelBacktest
-) -> Specification:
-    for s, r in zip(specs, results, strict=True):
-        if r is member:
-            return s
-    raise LookupError(member.label)
+def _dense(plan: Plan, extra: Plan | None) -> Plan:
+    """The selection plan with the calibration origins added (same horizon)."""
+    if extra is None:
+        return plan
+    return Plan(tuple(sorted({*plan.origins, *extra.origins})), plan.horizon, plan.step)
+
+
+def _merged(members: Sequence[ModelBacktest]) -> ModelBacktest:
+    return combine(members) if len(members) > 1 else members[0]
 
 
 def _calibrate(
     y: pd.Series,
     specs: Sequence[Specification],
     profile: SeriesProfile,
-    plan: Plan,
-    chosen: ModelBacktest,
+    dense: ModelBacktest,
+    horizon: int,
     levels: tuple[float, ...],
     map_fn: MapFn[Task, ModelBacktest] | None,
 ) -> cal.Calibration:
-    """Coverage from the selection backtest, or from a longer one of the chosen model."""
-    if len(plan.origins) >= cal.MINIMUM_ORIGINS:
-        return cal.calibrate(chosen)
-    longer = calibration_plan(len(y), plan.horizon, profile.benchmark_period)
+    """Coverage and factors from the dense backtest, or from an earlier-starting one when the
+    selection origins leave too little room (short series: the extra fits are cheap there)."""
+    if len(dense.forecasts) >= cal.MINIMUM_ORIGINS:
+        return cal.calibrate(dense)
+    longer = calibration_plan(len(y), horizon, profile.benchmark_period)
     if longer is None:
-        return cal.calibrate(chosen)
-    periods = _periods(specs, profile)
-    results = run(y, specs, profile.benchmark_period, longer, levels, map_fn, periods)
+        return cal.calibrate(dense)
+    results = run(
+        y, specs, profile.benchmark_period, longer, levels, map_fn, _periods(specs, profile)
+    )
     if not all(r.ok for r in results):
-        return cal.calibrate(chosen)
-    return cal.calibrate(combine(results) if len(results) > 1 else results[0])
+        return cal.calibrate(dense)
+    return cal.calibrate(_merged(results))
 
 
 def _refit(

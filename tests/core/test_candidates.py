@@ -1,0 +1,84 @@
+"""Candidate rules: the profile of a series and the families it leads to."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from service.core.candidates import (
+    SeriesProfile,
+    candidate_rules,
+    candidates_for,
+    profile_series,
+    seasonality_test,
+)
+from service.core.models.registry import FAMILIES
+
+
+def monthly(values: np.ndarray) -> pd.Series:
+    return pd.Series(values, index=pd.date_range("2010-01-01", periods=values.size, freq="MS"))
+
+
+def profile(**changes: object) -> SeriesProfile:
+    base = {
+        "observations": 120,
+        "seasonal_period": 12,
+        "seasonal": True,
+        "positive": True,
+        "zero_share": 0.0,
+        "random_walk": False,
+    }
+    base.update(changes)
+    return SeriesProfile(**base)  # type: ignore[arg-type]
+
+
+def families(p: SeriesProfile) -> list[str]:
+    return [data["family"] for data, _ in candidate_rules(p)]
+
+
+def test_seasonality_test_sees_a_season_but_not_a_random_walk() -> None:
+    rng = np.random.default_rng(2)
+    t = np.arange(120)
+    assert seasonality_test(10 + 3 * np.sin(2 * np.pi * t / 12) + rng.normal(size=120), 12)
+    walks = [seasonality_test(rng.normal(size=120).cumsum(), 12) for _ in range(50)]
+    # A 90 % test: about one walk in ten may be called seasonal, not most of them.
+    assert sum(walks) <= 12
+
+
+def test_intermittent_threshold_is_a_share_of_zeros_of_0_3() -> None:
+    assert profile(zero_share=0.3).intermittent
+    assert not profile(zero_share=0.29).intermittent
+    assert families(profile(zero_share=0.5)) == [
+        "naive",
+        "seasonal_naive",
+        "croston",
+        "croston",
+        "mean",
+    ]
+
+
+def test_long_season_goes_to_stl_and_short_series_skip_arima() -> None:
+    long = families(profile(seasonal_period=52, observations=400))
+    assert "stl" in long and profile(seasonal_period=52).model_period == 1
+    short = families(profile(observations=30))
+    assert "arima" not in short and "ets" in short
+    assert "arima" in families(profile())
+
+
+def test_profile_reads_zeros_negatives_and_diagnostics() -> None:
+    y = monthly(np.array([0.0, 0.0, 3.0, 0.0, 5.0] * 8))
+    p = profile_series(y, 12)
+    assert p.zero_share == 0.6 and p.intermittent and not p.positive
+    negative = monthly(np.array([0.0, -1.0, 2.0, 0.0] * 10))
+    assert profile_series(negative, 1).zero_share == 0.0
+    given = {"random_walk": {"verdict": True, "reason": "said so"}}
+    walked = profile_series(monthly(np.arange(1.0, 41.0)), 1, diagnostics=given)
+    assert walked.random_walk and walked.random_walk_reason == "said so"
+
+
+def test_rules_become_registered_specifications_or_are_listed_as_skipped() -> None:
+    p = profile()
+    chosen = candidates_for(p)
+    assert all(s.family in FAMILIES for s in chosen.specifications)
+    assert len(chosen.specifications) + len(chosen.skipped) == len(candidate_rules(p))
+    assert len(chosen.reasons) == len(chosen.specifications)

@@ -1,0 +1,127 @@
+"""Automatic selection: determinism, the naive guard, seasonal series, calibration, errors."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from service.core.errors import RequestError
+from service.core.models.drift import DriftSpec
+from service.core.models.naive import NaiveSpec
+from service.core.models.seasonal_naive import SeasonalNaiveSpec
+from service.core.selection import (
+    AutoForecast,
+    backtest_auto,
+    calibration_plan,
+    select,
+    selection_plan,
+)
+
+
+def monthly(values: np.ndarray) -> pd.Series:
+    return pd.Series(values, index=pd.date_range("2005-01-01", periods=values.size, freq="MS"))
+
+
+def seasonal_series(n: int = 72, seed: int = 4) -> pd.Series:
+    rng = np.random.default_rng(seed)
+    t = np.arange(n)
+    return monthly(50 + 0.1 * t + 8 * np.sin(2 * np.pi * t / 12) + rng.normal(size=n))
+
+
+@pytest.fixture(scope="module")
+def seasonal_result() -> AutoForecast:
+    return select(seasonal_series(), 12, 12, coverage=(0.95, 0.8))
+
+
+def test_selection_is_deterministic(seasonal_result: AutoForecast) -> None:
+    again = select(seasonal_series(), 12, 12, coverage=(0.95, 0.8))
+    assert again.selection.to_dict() == seasonal_result.selection.to_dict()
+    np.testing.assert_array_equal(again.forecast.point, seasonal_result.forecast.point)
+
+
+def test_random_walk_gets_the_naive_forecast_and_the_warning() -> None:
+    rng = np.random.default_rng(100)
+    y = monthly(100 + rng.normal(size=120).cumsum())
+    result = select(y, 12, 12)
+    assert result.selection.profile.random_walk
+    assert result.selection.rule == "naive_guard"
+    assert result.fitted.describe().family == "naive"
+    codes = [w.code for w in result.warnings]
+    assert "no_skill_over_naive" in codes
+    message = next(w.message for w in result.warnings if w.code == "no_skill_over_naive")
+    assert "does not mean a useful model" in message
+    np.testing.assert_allclose(result.forecast.point, y.iloc[-1])
+
+
+def test_seasonal_series_gets_a_seasonal_model(seasonal_result: AutoForecast) -> None:
+    result = seasonal_result
+    assert result.selection.profile.seasonal
+    pattern = 8 * np.sin(2 * np.pi * np.arange(72, 84) / 12)
+    assert np.corrcoef(result.forecast.point, pattern)[0, 1] > 0.9
+    assert result.selection.skill_over_naive is not None
+
+
+def test_selection_reports_ranking_skill_and_calibration(seasonal_result: AutoForecast) -> None:
+    result = seasonal_result
+    sel = result.selection
+    data = json.loads(json.dumps(sel.to_dict(), allow_nan=False))
+    assert data["metric"] == "mase" and data["ranking"]
+    scores = [r["score"] for r in data["ranking"]]
+    assert scores == sorted(scores)
+    chosen_score = next(r.score for r in sel.ranking if r.label == sel.chosen)
+    bench_score = next(r.score for r in sel.ranking if r.label == sel.benchmark)
+    assert sel.skill_over_naive == pytest.approx(1 - chosen_score / bench_score)
+    assert sel.calibration is not None
+    assert [lv.coverage for lv in sel.calibration.levels] == [0.8, 0.95]
+    if sel.rule == "combination":
+        assert data["ranking"][0]["label"] == sel.chosen
+    lower, upper = result.forecast.intervals[1].lower, result.forecast.intervals[1].upper
+    assert np.all(lower <= result.forecast.point) and np.all(result.forecast.point <= upper)
+
+
+BENCHMARKS = (NaiveSpec(), SeasonalNaiveSpec(), DriftSpec())
+
+
+def test_selection_by_another_metric_among_given_candidates() -> None:
+    result = select(seasonal_series(), 12, 6, metric="smape", candidates=BENCHMARKS)
+    assert result.selection.metric == "smape"
+    assert result.fitted.describe().family in {"seasonal_naive", "combination"}
+    with pytest.raises(RequestError):
+        select(seasonal_series(), 12, 6, metric="accuracy")
+
+
+def test_too_short_for_any_backtest_names_the_horizon() -> None:
+    with pytest.raises(RequestError) as info:
+        select(monthly(np.arange(12.0)), 1, 6)
+    assert info.value.problems[0].field == "horizon"
+
+
+def test_plans_shrink_the_step_before_the_origins() -> None:
+    plan = selection_plan(40, horizon=6, origins=3, seasonal_period=1)
+    assert plan is not None and plan.step == 6 and plan.origins[-1] == 34
+    tight = selection_plan(24, horizon=6, origins=3, seasonal_period=1)
+    assert tight is not None and tight.step == 4 and len(tight.origins) == 3
+    assert calibration_plan(30, 6, 1) is not None
+    assert calibration_plan(16, 6, 1) is None
+    dense = calibration_plan(40, 6, 1, first=22)
+    assert dense is not None and dense.origins[0] >= 22 and dense.origins[-1] == 34
+
+
+def test_map_fn_fans_out_the_candidates() -> None:
+    calls: list[int] = []
+
+    def counting_map(fn, tasks):  # type: ignore[no-untyped-def]
+        calls.append(len(tasks))
+        return list(map(fn, tasks))
+
+    select(seasonal_series(), 12, 6, candidates=BENCHMARKS, map_fn=counting_map)
+    assert calls == [3]
+
+
+def test_backtest_auto_ranks_the_candidates() -> None:
+    report = backtest_auto(seasonal_series(), 12, horizon=6, origins=3, step=2)
+    assert report.ranking and {m.label for m in report.models} >= {"Naive"}
+    json.dumps(report.to_dict(), allow_nan=False)
