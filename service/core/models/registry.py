@@ -13,6 +13,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from service.core.errors import FieldProblem, SpecificationError
+from service.core.models.arima import ArimaSpec
 from service.core.models.base import ParameterInfo, Specification
 from service.core.models.combination import CombinationSpec
 from service.core.models.croston import CrostonSpec
@@ -32,6 +33,7 @@ _FAMILY_CLASSES: tuple[type[Any], ...] = (
     ThetaSpec,
     CrostonSpec,
     CombinationSpec,
+    ArimaSpec,
 )
 
 FAMILIES: dict[str, type[Any]] = {cls.family: cls for cls in _FAMILY_CLASSES}
