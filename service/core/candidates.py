@@ -146,7 +146,7 @@ def profile_series(
     seen_seasonal = _lookup(diagnostics, ("seasonality", "seasonal"))
     if isinstance(seen_seasonal, bool):
         seasonal = seen_seasonal and seasonal_period > 1 and finite.size >= 2 * seasonal_period + 2
-    walk = _lookup(diagnostics, ("random_walk", "verdict"))
+    walk = _lookup(diagnostics, ("random_walk", "is_random_walk"))
     reason = _lookup(diagnostics, ("random_walk", "reason"))
     if isinstance(walk, bool):
         random_walk, why = walk, str(reason or "from the diagnostics")

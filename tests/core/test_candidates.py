@@ -71,9 +71,20 @@ def test_profile_reads_zeros_negatives_and_diagnostics() -> None:
     assert p.zero_share == 0.6 and p.intermittent and not p.positive
     negative = monthly(np.array([0.0, -1.0, 2.0, 0.0] * 10))
     assert profile_series(negative, 1).zero_share == 0.0
-    given = {"random_walk": {"verdict": True, "reason": "said so"}}
+    given = {"random_walk": {"is_random_walk": True, "reason": "said so"}}
     walked = profile_series(monthly(np.arange(1.0, 41.0)), 1, diagnostics=given)
     assert walked.random_walk and walked.random_walk_reason == "said so"
+
+
+def test_profile_reads_the_verdict_of_core_diagnostics() -> None:
+    from service.core.diagnostics import diagnose
+
+    rng = np.random.default_rng(21)
+    y = monthly(100 + rng.normal(size=120).cumsum())
+    report = diagnose(y, 12)
+    p = profile_series(y, 12, diagnostics=report)
+    assert p.random_walk == report.random_walk.is_random_walk
+    assert p.random_walk_reason == report.random_walk.reason
 
 
 def test_rules_become_registered_specifications_or_are_listed_as_skipped() -> None:

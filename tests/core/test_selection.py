@@ -43,9 +43,11 @@ def test_selection_is_deterministic(seasonal_result: AutoForecast) -> None:
 
 
 def test_random_walk_gets_the_naive_forecast_and_the_warning() -> None:
+    from service.core.diagnostics import diagnose
+
     rng = np.random.default_rng(100)
     y = monthly(100 + rng.normal(size=120).cumsum())
-    result = select(y, 12, 12)
+    result = select(y, 12, 12, diagnostics=diagnose(y, 12))
     assert result.selection.profile.random_walk
     assert result.selection.rule == "naive_guard"
     assert result.fitted.describe().family == "naive"
