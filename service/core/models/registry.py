@@ -104,7 +104,7 @@ def specification_from_dict(data: Any, field: str = "model") -> Specification:
             "a model specification must be an object with a 'family'", field=field
         )
     family = data.get("family")
-    if family not in FAMILIES:
+    if not isinstance(family, str) or family not in FAMILIES:
         allowed = ", ".join(sorted(FAMILIES))
         raise SpecificationError(
             f"unknown family {family!r}; allowed: {allowed}", field=f"{field}.family"
