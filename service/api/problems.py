@@ -19,9 +19,16 @@ PROBLEM_MEDIA_TYPE = "application/problem+json"
 log = logging.getLogger("windvane.errors")
 
 
-def problem_response(status: int, code: str, detail: str, request: Request | None = None, *,
-                     title: str | None = None, errors: Sequence[dict[str, str]] = (),
-                     headers: dict[str, str] | None = None) -> JSONResponse:
+def problem_response(
+    status: int,
+    code: str,
+    detail: str,
+    request: Request | None = None,
+    *,
+    title: str | None = None,
+    errors: Sequence[dict[str, str]] = (),
+    headers: dict[str, str] | None = None,
+) -> JSONResponse:
     """A problem+json response with type, title, status, detail, instance and errors."""
     body: dict[str, Any] = {
         "type": f"/problems/{code.replace('_', '-')}",
@@ -48,8 +55,10 @@ def field_path(loc: Sequence[Any]) -> str:
     for p in parts:
         if isinstance(p, int):
             out += f"[{p}]"
-        elif str(p).startswith(("function-", "literal[", "dict[", "list[", "tagged-union")):
-            continue  # pydantic's union-branch labels say nothing to a caller
+        elif str(p).startswith(("function-", "literal[", "dict[", "list[", "tagged-union")) or (
+            str(p)[:1].isupper()
+        ):
+            continue  # pydantic's union-branch labels (types, model names) mean nothing to a caller
         else:
             out += f".{p}" if out else str(p)
     return out or "body"
@@ -61,17 +70,28 @@ async def _validation(request: Request, exc: Exception) -> JSONResponse:
     if any(e.get("type") == "json_invalid" for e in errors):
         first = next(e for e in errors if e.get("type") == "json_invalid")
         where = first.get("ctx", {}).get("error", "invalid JSON")
-        return problem_response(400, "malformed_json", f"the body is not valid JSON: {where}",
-                                request, title="Malformed JSON",
-                                errors=[{"field": "body", "message": str(where)}])
+        return problem_response(
+            400,
+            "malformed_json",
+            f"the body is not valid JSON: {where}",
+            request,
+            title="Malformed JSON",
+            errors=[{"field": "body", "message": str(where)}],
+        )
     seen: dict[str, str] = {}
     for e in errors:
         path = field_path(e.get("loc", ()))
         seen.setdefault(path, _message(e))
     listed = [{"field": f, "message": m} for f, m in seen.items()]
     first = listed[0]
-    return problem_response(422, "invalid_request", f"{first['field']}: {first['message']}",
-                            request, title="Invalid request", errors=listed)
+    return problem_response(
+        422,
+        "invalid_request",
+        f"{first['field']}: {first['message']}",
+        request,
+        title="Invalid request",
+        errors=listed,
+    )
 
 
 def _message(error: dict[str, Any]) -> str:
@@ -91,40 +111,64 @@ async def _domain(request: Request, exc: Exception) -> JSONResponse:
 
 async def _http(request: Request, exc: Exception) -> JSONResponse:
     assert isinstance(exc, StarletteHTTPException)
-    codes = {404: "not_found", 405: "method_not_allowed", 413: "body_too_large",
-             401: "unauthorized", 415: "unsupported_media_type"}
+    codes = {
+        404: "not_found",
+        405: "method_not_allowed",
+        413: "body_too_large",
+        401: "unauthorized",
+        415: "unsupported_media_type",
+    }
     detail = exc.detail if isinstance(exc.detail, str) else HTTPStatus(exc.status_code).phrase
     if exc.status_code == 404 and detail == "Not Found":
         detail = f"no route {request.url.path}"
     if exc.status_code == 405 and detail == "Method Not Allowed":
         detail = f"{request.method} is not allowed on {request.url.path}"
-    return problem_response(exc.status_code, codes.get(exc.status_code, "http_error"), detail,
-                            request, headers=getattr(exc, "headers", None))
+    return problem_response(
+        exc.status_code,
+        codes.get(exc.status_code, "http_error"),
+        detail,
+        request,
+        headers=getattr(exc, "headers", None),
+    )
 
 
 async def _busy(request: Request, exc: Exception) -> JSONResponse:
     assert isinstance(exc, PoolBusy)
-    return problem_response(503, "overloaded", str(exc), request, title="Service busy",
-                            headers={"Retry-After": str(exc.retry_after)})
+    return problem_response(
+        503,
+        "overloaded",
+        str(exc),
+        request,
+        title="Service busy",
+        headers={"Retry-After": str(exc.retry_after)},
+    )
 
 
 async def _budget(request: Request, exc: Exception) -> JSONResponse:
     assert isinstance(exc, BudgetExceeded)
-    return problem_response(503, "time_budget_exceeded", str(exc), request,
-                            title="Time budget exceeded", headers={"Retry-After": "5"})
+    return problem_response(
+        503,
+        "time_budget_exceeded",
+        str(exc),
+        request,
+        title="Time budget exceeded",
+        headers={"Retry-After": "5"},
+    )
 
 
 async def _worker_lost(request: Request, exc: Exception) -> JSONResponse:
     assert isinstance(exc, (WorkerCrashed, PoolClosed))
     code = "worker_crashed" if isinstance(exc, WorkerCrashed) else "shutting_down"
-    return problem_response(503, code, str(exc), request, title="Worker unavailable",
-                            headers={"Retry-After": "1"})
+    return problem_response(
+        503, code, str(exc), request, title="Worker unavailable", headers={"Retry-After": "1"}
+    )
 
 
 async def _unexpected(request: Request, exc: Exception) -> JSONResponse:
     log.exception("unhandled error on %s %s", request.method, request.url.path)
-    return problem_response(500, "internal_error",
-                            "the server failed to answer; the error was logged", request)
+    return problem_response(
+        500, "internal_error", "the server failed to answer; the error was logged", request
+    )
 
 
 def install_problem_handlers(app: FastAPI) -> None:

@@ -12,12 +12,14 @@ import numpy as np
 import pandas as pd
 
 from service.core.backtest import backtest as run_backtest
+from service.core.candidates import candidates_for, profile_series
 from service.core.diagnostics import diagnose
 from service.core.errors import WindvaneError
 from service.core.models.base import Fitted, FitWarning, Specification
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
 from service.core.selection import backtest_auto, select
+from service.core.transforms import TransformedSpec, transform_from_value
 from service.runtime import render
 
 
@@ -86,13 +88,27 @@ def fit_with_fallback(
         return fallback.fit(y, seasonal_period)
 
 
-def forecast(task: ForecastTask) -> dict[str, Any]:
-    """Fit (or select) a model and forecast; the response body without provenance."""
-    if task.specification is None:
-        return _auto_forecast(task)
+@dataclass(frozen=True)
+class FittedBundle:
+    """What the fit store keeps for an explicit specification: the model and its warnings."""
+
+    fitted: Fitted
+    warnings: tuple[FitWarning, ...]
+
+
+def fit_explicit(task: ForecastTask) -> FittedBundle:
+    """Fit the task's specification (with its transform), falling back on numerical failure."""
+    assert task.specification is not None
     found: list[FitWarning] = []
-    spec = task.specification
+    spec = with_transform(task.specification, task.transform)
     fitted = fit_with_fallback(spec, task.y, task.seasonal_period, found)
+    return FittedBundle(fitted, (*found, *fitted.warnings))
+
+
+def forecast_from(bundle: FittedBundle, task: ForecastTask) -> dict[str, Any]:
+    """Forecast from an already fitted model: a new horizon or coverage needs no refit."""
+    found = list(bundle.warnings)
+    fitted = bundle.fitted
     with collected_warnings(found):
         result = fitted.forecast(task.horizon, task.coverage)
     if not np.all(np.isfinite(result.point)):
@@ -100,18 +116,39 @@ def forecast(task: ForecastTask) -> dict[str, Any]:
         found.append(
             FitWarning(
                 "fallback",
-                f"{spec.family} gave non-finite forecasts; answered with {fallback.family} instead",
+                f"{fitted.specification.family} gave non-finite forecasts; answered with "
+                f"{fallback.family} instead",
             )
         )
         fitted = fallback.fit(task.y, task.seasonal_period)
         result = fitted.forecast(task.horizon, task.coverage)
-    found.extend(fitted.warnings)
     body: dict[str, Any] = {"name": task.name, **render.forecast_body(result)}
     body["model"] = render.model_body(fitted.describe())
     body["selection"] = None
     body["warnings"] = render.warnings_body(found)
     _add_in_sample(body, fitted, task.include)
     return body
+
+
+def fit_and_forecast(task: ForecastTask) -> tuple[dict[str, Any], FittedBundle]:
+    """Fit, then forecast; the bundle goes back to the server for the fit store."""
+    bundle = fit_explicit(task)
+    return forecast_from(bundle, task), bundle
+
+
+def forecast(task: ForecastTask) -> dict[str, Any]:
+    """Fit (or select) a model and forecast; the response body without provenance."""
+    if task.specification is None:
+        return _auto_forecast(task)
+    return fit_and_forecast(task)[0]
+
+
+def with_transform(spec: Specification, transform: dict[str, Any] | None) -> Specification:
+    """The specification fitted on the log or Box-Cox scale when a transform is asked for."""
+    chosen = transform_from_value(transform or None)
+    if chosen.kind == "none":
+        return spec
+    return TransformedSpec(spec, chosen)  # type: ignore[return-value]
 
 
 def _add_in_sample(body: dict[str, Any], fitted: Fitted, include: tuple[str, ...]) -> None:
@@ -126,13 +163,19 @@ def _auto_forecast(task: ForecastTask) -> dict[str, Any]:
     found: list[FitWarning] = []
     with collected_warnings(found):
         report = diagnose(task.y, task.seasonal_period)
+        candidates = task.candidates
+        if transform_from_value(task.transform or None).kind != "none":
+            if candidates is None:
+                profile = profile_series(task.y, task.seasonal_period, report)
+                candidates = candidates_for(profile).specifications
+            candidates = tuple(with_transform(c, task.transform) for c in candidates)
         chosen = select(
             task.y,
             task.seasonal_period,
             task.horizon,
             task.coverage,
             metric=task.metric,
-            candidates=task.candidates,
+            candidates=candidates,
             diagnostics=report,
         )
     body: dict[str, Any] = {"name": task.name, **render.forecast_body(chosen.forecast)}

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import asyncio
 from typing import Any
 
 from fastapi import APIRouter, Request, Response
@@ -13,8 +14,13 @@ from service.api.dependencies import PoolDep, SettingsDep
 from service.api.schemas.common import Problem
 from service.api.schemas.forecasts import ForecastRequest, ForecastResponse
 from service.core.checks import check_coverage, check_positive_int
+from service.core.errors import RequestError
+from service.core.models.base import as_dict
+from service.core.transforms import transform_from_value
 from service.runtime import jobs
-from service.runtime.keys import data_key, runtime_versions
+from service.runtime.cache import Cache
+from service.runtime.keys import data_key, fit_key, runtime_versions
+from service.runtime.telemetry import Telemetry
 
 router = APIRouter(prefix="/v1", tags=["forecasts"])
 
@@ -53,6 +59,17 @@ def forecast_task(body: ForecastRequest, settings: Any) -> tuple[jobs.ForecastTa
         candidates = tuple(
             specification(c, f"candidates[{i}]") for i, c in enumerate(body.candidates)
         )
+    transform = body.transform
+    wire_transform = (
+        {"kind": transform} if isinstance(transform, str) else transform.model_dump(by_alias=True)
+    )
+    chosen = transform_from_value(wire_transform)  # a bad transform is a 422 before any work
+    if chosen.kind != "none" and not bool((series.y.dropna() > 0).all()):
+        raise RequestError(
+            f"the {chosen.kind} transform needs strictly positive values", field="transform"
+        )
+    if body.regressors and (spec is None or spec.family != "arima"):
+        raise RequestError("regressors are accepted by the arima family only", field="regressors")
     task = jobs.ForecastTask(
         y=series.y,
         seasonal_period=series.seasonal_period,
@@ -63,8 +80,30 @@ def forecast_task(body: ForecastRequest, settings: Any) -> tuple[jobs.ForecastTa
         include=tuple(body.include),
         candidates=candidates,
         metric=body.metric,
+        transform=wire_transform,
     )
     return task, series
+
+
+async def _computed(request: Request, pool: Any, task: jobs.ForecastTask) -> dict[str, Any]:
+    """Run the work; an explicit specification's fitted model is kept in the fit store so
+    that a new horizon or coverage on the same data needs no refit."""
+    if task.specification is None:
+        return dict(await pool.run(jobs.forecast, task))
+    cache: Cache = request.app.state.cache
+    telemetry: Telemetry = request.app.state.telemetry
+    key = fit_key(
+        task.y, task.seasonal_period, as_dict(task.specification), {"transform": task.transform}
+    )
+    stored = await asyncio.to_thread(cache.load_fitted, key)
+    if cache.enabled:
+        telemetry.record_cache("fitted", stored.result)
+    if stored.hit and isinstance(stored.value, jobs.FittedBundle):
+        return dict(await pool.run(jobs.forecast_from, stored.value, task))
+    body, bundle = await pool.run(jobs.fit_and_forecast, task)
+    if cache.enabled:
+        await asyncio.to_thread(cache.save_fitted, key, bundle)
+    return dict(body)
 
 
 @router.post(
@@ -82,7 +121,7 @@ async def create_forecast(
     key = caching.response_key(body.model_dump(mode="json"), series.y, series.seasonal_period)
     family = task.specification.family if task.specification is not None else "auto"
     found = await caching.answer(
-        request, response, key, family, len(series.y), lambda: pool.run(jobs.forecast, task)
+        request, response, key, family, len(series.y), lambda: _computed(request, pool, task)
     )
     # A new dict each time: the cached body itself is never changed.
     return {

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any, Literal
 
-from pydantic import BaseModel, Field
+from pydantic import BaseModel, ConfigDict, Field
 
 from service.api.schemas.common import Provenance, SeriesIn, Strict, WarningOut
 
@@ -20,11 +20,15 @@ class RegressorIn(Strict):
 class TransformIn(Strict):
     """A variance-stabilising transform applied before fitting and undone after."""
 
+    model_config = ConfigDict(extra="forbid", populate_by_name=True)
+
     kind: Literal["none", "log", "boxcox"] = "none"
-    parameter: float | None = Field(
-        None, description="Box-Cox lambda; estimated by maximum likelihood when absent."
+    lambda_: float | None = Field(
+        None,
+        alias="lambda",
+        description="Box-Cox lambda; estimated by maximum likelihood when absent.",
     )
-    bias_adjust: bool = Field(
+    bias_adjusted: bool = Field(
         True, description="Back-transform to the mean (true) or to the median (false)."
     )
 

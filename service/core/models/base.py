@@ -121,7 +121,9 @@ def as_dict(spec: Any) -> dict[str, Any]:
 
 def _jsonable(value: Any) -> Any:
     if dataclasses.is_dataclass(value) and not isinstance(value, type):
-        return as_dict(value)
+        if hasattr(value, "family"):
+            return as_dict(value)
+        return {f.name: _jsonable(getattr(value, f.name)) for f in dataclasses.fields(value)}
     if isinstance(value, tuple):
         return [_jsonable(v) for v in value]
     return value
