@@ -157,12 +157,17 @@ def information_criteria(loglik: float, k: int, n: int) -> tuple[float, float, f
 
 
 def css_estimate(
-    w: np.ndarray, xd: np.ndarray | None, orders: ArimaOrders, regressor_names: tuple[str, ...]
+    w: np.ndarray,
+    xd: np.ndarray | None,
+    orders: ArimaOrders,
+    regressor_names: tuple[str, ...],
+    score_from: int = 0,
 ) -> Estimate:
     """Conditional sum of squares fit (residuals conditioned on the first p + mP values).
 
-    A few milliseconds per order through ``scipy.signal.lfilter``; the log-likelihood is scaled
-    to all differenced observations so that orders with different conditioning compare.
+    A few milliseconds per order through ``scipy.signal.lfilter``. Squares are summed from
+    ``score_from`` on (at least p + mP), so that orders of one search are scored on the same
+    observations; the log-likelihood is scaled to all differenced observations.
     """
     w = _filled(w)
     n = w.size
@@ -172,15 +177,16 @@ def css_estimate(
         beta0 = np.linalg.lstsq(xd, w, rcond=None)[0]
     x0 = np.r_[beta0, np.zeros(orders.arma_count)]
     ncond = orders.p + orders.m * orders.P
+    skip = max(0, score_from - ncond)
 
     def residuals(x: np.ndarray) -> np.ndarray:
         u = w - xd @ x[:k_exog] if xd is not None else w
         ar_poly, ma_poly = lag_polynomials(orders, x[k_exog:])
         v = np.convolve(u, ar_poly, mode="valid")
-        return np.asarray(signal.lfilter([1.0], ma_poly, v))
+        return np.asarray(signal.lfilter([1.0], ma_poly, v))[skip:]
 
     names = coefficient_names(orders, regressor_names)
-    if x0.size and n - ncond > x0.size:
+    if x0.size and n - max(ncond, score_from) > x0.size:
         with np.errstate(all="ignore"):
             solution = optimize.least_squares(residuals, x0, method="lm", max_nfev=100 * x0.size)
         x, iterations, converged = solution.x, int(solution.nfev), bool(solution.success)

@@ -4,8 +4,9 @@ d and D come from unit-root and seasonal-strength tests; the stepwise walk over
 (p, q, P, Q, constant) is driven by conditional-sum-of-squares fits (milliseconds each),
 then the plausible candidates are fitted by exact maximum likelihood and the walk is
 continued exactly around the exact winner. A candidate is dropped without an exact fit
-only when its CSS AICc is worse than the best by more than ``margin``: CSS and exact
-AICc differ by a few points (more when an MA root nears the unit circle), not by tens.
+only when its CSS AICc is worse than the CSS AICc of the exact best by more than ``margin``:
+CSS is scored on one window for all orders, so its differences track the exact ones to a
+few points (more when an MA root nears the unit circle).
 """
 
 from __future__ import annotations
@@ -75,9 +76,9 @@ class SearchLimits:
     max_order: int = 5
     max_d: int = 2
     max_D: int = 1
-    margin: float = 10.0
+    margin: float = 6.0
     finalists: int = 3
-    exact_maxiter: int = 50
+    exact_maxiter: int = 30
     screen: bool = True
 
 
@@ -287,13 +288,20 @@ class _Walk:
         x = design_matrix(orders, self.regressors, 0, self.values.size)
         return None if x is None else difference(x, self.d, self.D, self.m)
 
+    def _score_from(self) -> int:
+        """One scoring window for every CSS fit: after the largest conditioning in the bounds,
+        kept to at most a third of the differenced series."""
+        hi = self.bounds.high
+        largest = hi[0] + self.m * hi[2]
+        return min(largest, (self.values.size - self.d - self.m * self.D) // 3)
+
     def _w(self) -> np.ndarray:
         return difference(self.values, self.d, self.D, self.m)
 
     def css_score(self, orders: ArimaOrders) -> float:
         if orders not in self.css:
             self.css[orders] = css_estimate(
-                self._w(), self._design(orders), orders, self.regressor_names
+                self._w(), self._design(orders), orders, self.regressor_names, self._score_from()
             )
         return self.css[orders].aicc
 
@@ -366,8 +374,8 @@ class _Walk:
         while improved:
             improved = False
             for other in self.neighbours(best):
-                # Dominated: CSS says it is far worse than the exact best; skip the exact fit.
-                if self.css_score(other) > self.exact_score(best) + self.limits.margin:
+                # Dominated: CSS puts it far behind the exact best; skip the exact fit.
+                if self.css_score(other) > self.css_score(best) + self.limits.margin:
                     continue
                 if self.exact_score(other) < self.exact_score(best):
                     best, improved = other, True

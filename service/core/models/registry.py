@@ -22,6 +22,7 @@ from service.core.models.ets import EtsSpec
 from service.core.models.mean import MeanSpec
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
+from service.core.models.stl import StlSpec
 from service.core.models.theta import ThetaSpec
 
 _FAMILY_CLASSES: tuple[type[Any], ...] = (
@@ -34,6 +35,7 @@ _FAMILY_CLASSES: tuple[type[Any], ...] = (
     CrostonSpec,
     CombinationSpec,
     ArimaSpec,
+    StlSpec,
 )
 
 FAMILIES: dict[str, type[Any]] = {cls.family: cls for cls in _FAMILY_CLASSES}
