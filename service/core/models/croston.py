@@ -131,8 +131,10 @@ class CrostonFitted:
 
     def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast:
         """Flat rate; bounds from the empirical one-step error quantiles, never below zero."""
-        point = np.full(horizon, self.rate())
-        errors = self.residuals().to_numpy()
+        values = self.y.to_numpy(dtype=float)
+        state = croston_filter(values, self.specification.alpha)
+        point = np.full(horizon, self._factor * state.size / state.interval)
+        errors = values - state.fitted * self._factor
         errors = errors[np.isfinite(errors)]
         intervals = []
         for c in coverage:
