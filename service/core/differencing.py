@@ -16,7 +16,7 @@ from service.core.applicability import NotApplicable, plain_float
 from service.core.checks import check_positive_int
 from service.core.filling import check_series, fill_gaps
 from service.core.seasonality import Decomposition, decompose, seasonal_strength
-from service.core.stationarity import TestResult, adf_test, applicability, kpss_test
+from service.core.stationarity import HypothesisTest, adf_test, applicability, kpss_test
 
 SEASONAL_THRESHOLD = 0.64
 MAX_REGULAR = 2
@@ -63,15 +63,16 @@ class DifferencingOrders:
     seasonal: int
     seasonal_period: int
     steps: tuple[DifferencingStep, ...]
-    adf_after: TestResult | NotApplicable
-    kpss_after: TestResult | NotApplicable
+    adf_after: HypothesisTest | NotApplicable
+    kpss_after: HypothesisTest | NotApplicable
     notes: tuple[str, ...]
 
     @property
     def stationary_after(self) -> bool | None:
         """Whether ADF rejects and KPSS does not on the differenced series (None if untestable)."""
-        if isinstance(self.adf_after, TestResult) and isinstance(self.kpss_after, TestResult):
-            return self.adf_after.rejects and not self.kpss_after.rejects
+        adf, kpss = self.adf_after, self.kpss_after
+        if isinstance(adf, HypothesisTest) and isinstance(kpss, HypothesisTest):
+            return adf.rejects and not kpss.rejects
         return None
 
     def to_dict(self) -> dict[str, Any]:
@@ -97,7 +98,13 @@ def differencing_orders(y: pd.Series, seasonal_period: int) -> DifferencingOrder
     check_positive_int(seasonal_period, "series.seasonal_period")
     filled = fill_gaps(y)
     x = filled.values
-    decomposition = decompose(x, seasonal_period) if x.size else NotApplicable("no values")
+    decomposition: Decomposition | NotApplicable
+    if x.size == 0:
+        decomposition = NotApplicable("the series has no observed values")
+    elif not np.any(x != x[0]):
+        decomposition = NotApplicable("the series is constant")
+    else:
+        decomposition = decompose(x, seasonal_period)
     return orders_from(x, seasonal_period, decomposition, filled.note())
 
 

@@ -24,7 +24,7 @@ from service.core.autocorrelation import (
     ljung_box,
     primary_ljung_box_lag,
 )
-from service.core.stationarity import LEVEL, TestResult, adf_test
+from service.core.stationarity import LEVEL, HypothesisTest, adf_test
 
 RULE = (
     "difference until ADF (constant) rejects a unit root at 5 % (at most twice); a random walk "
@@ -75,9 +75,18 @@ def isolated(lags: tuple[int, ...]) -> bool:
 
 
 def random_walk(
-    x: np.ndarray, seasonal_period: int, level: TestResult | NotApplicable | None = None
+    x: np.ndarray, seasonal_period: int, level: HypothesisTest | NotApplicable | None = None
 ) -> RandomWalkVerdict | NotApplicable:
     """The random-walk verdict of a gap-free series (``level``: its ADF test, if already run)."""
+    if x.size > 2 and not np.any(np.diff(x) != x[1] - x[0]):
+        return RandomWalkVerdict(
+            False,
+            False,
+            None,
+            "The differences are constant: the series is a deterministic straight line.",
+            {},
+            (),
+        )
     level = adf_test(x, "c") if level is None else level
     if isinstance(level, NotApplicable):
         return level
@@ -92,15 +101,6 @@ def random_walk(
             (),
         )
     steps = np.diff(x)
-    if not np.any(steps != steps[0]):
-        return RandomWalkVerdict(
-            False,
-            False,
-            1,
-            "The differences are constant: the series is a deterministic straight line.",
-            evidence,
-            (),
-        )
     first = adf_test(steps, "c")
     if isinstance(first, NotApplicable):
         return NotApplicable(f"the differenced series cannot be tested: {first.reason}")
@@ -175,7 +175,7 @@ def _drift(steps: np.ndarray) -> dict[str, Any]:
     }
 
 
-def _adf_evidence(test: TestResult) -> dict[str, Any]:
+def _adf_evidence(test: HypothesisTest) -> dict[str, Any]:
     return {
         "statistic": plain_float(test.statistic),
         "p_value": plain_float(test.p_value),

@@ -5,8 +5,7 @@ two inner passes, one robustness pass (so that a spike stays in the remainder in
 leaking into the seasonal values a year away, which flagged its neighbours as outliers), and
 loess jumps of a tenth of each window (the defaults of the original Fortran implementation);
 statsmodels' defaults (five inner passes, every point smoothed) cost 3 x as much.
-Non-seasonal series
-get a LOWESS trend over a tenth of the series instead.
+Non-seasonal series get a LOWESS trend over a tenth of the series instead.
 """
 
 from __future__ import annotations
