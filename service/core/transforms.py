@@ -14,7 +14,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import Any, ClassVar
+from typing import Any, ClassVar, cast
 
 import numpy as np
 import pandas as pd
@@ -163,10 +163,13 @@ def fit_transformed(spec: Any, y: pd.Series, seasonal_period: int, transform: Tr
     values = y.to_numpy(dtype=float)
     lam = resolve_lambda(transform, values)
     if lam is None:
-        return spec.fit(y, seasonal_period)  # type: ignore[no-any-return]
+        return cast(Fitted, spec.fit(y, seasonal_period))
     z = pd.Series(boxcox(values, lam), index=y.index, name=y.name)
     inner = spec.fit(z, seasonal_period)
-    return TransformedFitted(TransformedSpec(spec, transform), y, lam, inner, list(inner.warnings))
+    fitted = TransformedFitted(
+        TransformedSpec(spec, transform), y, lam, inner, list(inner.warnings)
+    )
+    return cast(Fitted, fitted)
 
 
 @dataclass
