@@ -286,7 +286,19 @@ def resolved_specification(fitted: Any) -> Any:
     """The complete specification behind a fitted model: a family that searches (ETS keeps it
     as ``chosen``) settles on one; the rest are complete already."""
     chosen = getattr(fitted, "chosen", None)
-    return chosen if chosen is not None else fitted.specification
+    if chosen is not None:
+        return chosen
+    orders = getattr(fitted, "orders", None)
+    spec = fitted.specification
+    if orders is not None and dataclasses.is_dataclass(spec) and hasattr(spec, "order"):
+        # ARIMA keeps the searched orders beside its (possibly order-less) specification.
+        return dataclasses.replace(
+            spec,
+            order=(orders.p, orders.d, orders.q),
+            seasonal_order=(orders.P, orders.D, orders.Q),
+            include_constant=orders.constant,
+        )
+    return spec
 
 
 def _one_origin(fitted: Any, y: pd.Series, origin: int, horizon: int, task: Task) -> OriginForecast:

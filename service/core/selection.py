@@ -187,8 +187,13 @@ def select(
     candidates: Sequence[Specification] | None = None,
     diagnostics: Any | None = None,
     map_fn: MapFn[Task, ModelBacktest] | None = None,
+    thorough: bool = False,
 ) -> AutoForecast:
-    """Model "auto": choose by backtest, refit on the full series, forecast, calibrate."""
+    """Model "auto": choose by backtest, refit on the full series, forecast, calibrate.
+
+    ``thorough`` adds the (slow) stepwise ARIMA search to the candidates; ``map_fn`` fans
+    the candidate evaluations out (the runtime passes its pool's map).
+    """
     clock = _Clock()
     check_positive_int(horizon, "horizon")
     check_positive_int(origins, "origins")
@@ -196,7 +201,7 @@ def select(
     check_metric(metric)
     levels = check_coverage(coverage)
     profile = profile_series(y, seasonal_period, diagnostics)
-    chosen_set = candidates_for(profile) if candidates is None else _given(candidates)
+    chosen_set = candidates_for(profile, thorough) if candidates is None else _given(candidates)
     specs = _with_benchmarks(list(chosen_set.specifications), profile)
     clock.lap("profile")
 
@@ -359,11 +364,20 @@ def _calibrate(
 def _refit(
     y: pd.Series, specs: Sequence[Specification], profile: SeriesProfile, label: str
 ) -> Fitted:
-    """The chosen specification(s) estimated on the full series."""
+    """The chosen specification(s) estimated on the full series.
+
+    A combination whose members share one period becomes the registry's combination family;
+    members needing different periods (STL beside non-seasonal models) use a local adapter.
+    """
+    from service.core.models.registry import FAMILIES
+
     periods = _periods(specs, profile)
+    if len(specs) == 1:
+        return specs[0].fit(y, periods[0])
+    if "combination" in FAMILIES and len(set(periods)) == 1:
+        combined: Fitted = FAMILIES["combination"](members=tuple(specs)).fit(y, periods[0])
+        return combined
     fits = [s.fit(y, p) for s, p in zip(specs, periods, strict=True)]
-    if len(fits) == 1:
-        return fits[0]
     return CombinedFitted(tuple(fits), label)
 
 
@@ -378,13 +392,14 @@ def backtest_auto(
     metric: str = "mase",
     diagnostics: Any | None = None,
     map_fn: MapFn[Task, ModelBacktest] | None = None,
+    thorough: bool = False,
 ) -> Any:
     """POST /v1/backtests with specifications "auto": the candidates ``select`` would try."""
     from service.core.backtest import BacktestReport, plan_origins
 
     check_metric(metric)
     profile = profile_series(y, seasonal_period, diagnostics)
-    specs = _with_benchmarks(list(candidates_for(profile).specifications), profile)
+    specs = _with_benchmarks(list(candidates_for(profile, thorough).specifications), profile)
     plan = plan_origins(len(y), horizon, origins, step, profile.benchmark_period)
     levels = check_coverage(coverage)
     models = run(y, specs, profile.benchmark_period, plan, levels, map_fn, _periods(specs, profile))

@@ -32,8 +32,8 @@ def profile(**changes: object) -> SeriesProfile:
     return SeriesProfile(**base)  # type: ignore[arg-type]
 
 
-def families(p: SeriesProfile) -> list[str]:
-    return [data["family"] for data, _ in candidate_rules(p)]
+def families(p: SeriesProfile, thorough: bool = True) -> list[str]:
+    return [data["family"] for data, _ in candidate_rules(p, thorough)]
 
 
 def test_seasonality_test_sees_a_season_but_not_a_random_walk() -> None:
@@ -63,6 +63,7 @@ def test_long_season_goes_to_stl_and_short_series_skip_arima() -> None:
     short = families(profile(observations=30))
     assert "arima" not in short and "ets" in short
     assert "arima" in families(profile())
+    assert "arima" not in families(profile(), thorough=False)
 
 
 def test_profile_reads_zeros_negatives_and_diagnostics() -> None:

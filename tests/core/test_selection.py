@@ -127,3 +127,22 @@ def test_backtest_auto_ranks_the_candidates() -> None:
     report = backtest_auto(seasonal_series(), 12, horizon=6, origins=3, step=2)
     assert report.ranking and {m.label for m in report.models} >= {"Naive"}
     json.dumps(report.to_dict(), allow_nan=False)
+
+
+def test_combination_averages_points_and_bounds() -> None:
+    from service.core.averaging import CombinedFitted, combine
+    from service.core.backtest import backtest
+
+    y = seasonal_series()
+    report = backtest(y, list(BENCHMARKS), 12, horizon=4, origins=2, step=2, coverage=(0.8,))
+    mixed = combine(report.models)
+    first = [m.forecasts[0] for m in report.models]
+    np.testing.assert_allclose(mixed.forecasts[0].point, np.mean([f.point for f in first], 0))
+    np.testing.assert_allclose(
+        mixed.forecasts[0].upper[0.8], np.mean([f.upper[0.8] for f in first], 0)
+    )
+    fitted = CombinedFitted(tuple(s.fit(y, 12) for s in BENCHMARKS), "mix")
+    forecast = fitted.forecast(3, (0.8,))
+    parts = [s.fit(y, 12).forecast(3, (0.8,)).point for s in BENCHMARKS]
+    np.testing.assert_allclose(forecast.point, np.mean(parts, axis=0))
+    assert fitted.describe().family == "combination"
