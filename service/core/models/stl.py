@@ -108,10 +108,34 @@ class StlFitted:
         return pd.Series(resid, index=self.y.index, name="residuals")
 
     def refilter(self, y: pd.Series) -> StlFitted:
-        """STL re-run on the new history (a smoother, nothing estimated); base held fixed."""
-        seasonal, notes = _seasonal_component(y, self.seasonal_period, self.specification.robust)
+        """Seasonal component and base held fixed: no re-decomposition, so nothing peeks ahead.
+
+        Timestamps of the fit keep their seasonal value; later (or earlier) ones repeat the
+        last fitted cycle, as the forecast does.
+        """
+        seasonal = self._seasonal_on(y.index)
         base = self.base.refilter(y - seasonal)
-        return StlFitted(self.specification, y, self.seasonal_period, seasonal, base, 0.0, notes)
+        return StlFitted(self.specification, y, self.seasonal_period, seasonal, base, 0.0, [])
+
+    def _seasonal_on(self, index: pd.DatetimeIndex) -> pd.Series:
+        own = self.seasonal.index
+        combined = own.union(index)
+        steps = combined.get_indexer(index) - combined.get_loc(own[0])
+        if own.freq is not None and len(combined) != len(
+            pd.date_range(combined[0], combined[-1], freq=own.freq)
+        ):
+            raise SeriesError(
+                "the history must continue the fitted series' timestamps", field="series"
+            )
+        known = self.seasonal.to_numpy(dtype=float)
+        n, m = known.size, self.seasonal_period
+        cycle = known[-m:]
+        values = np.where(
+            (steps >= 0) & (steps < n),
+            known[np.clip(steps, 0, n - 1)],
+            cycle[(steps - (n - m)) % m],
+        )
+        return pd.Series(values, index=index, name="seasonal")
 
     def describe(self) -> Description:
         """The base model's description under an ``STL(m) + base`` label."""
