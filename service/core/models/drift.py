@@ -40,12 +40,18 @@ class DriftFitted(SimpleFitted):
 
     label = "Drift"
 
+    def _steps(self, horizon: int) -> np.ndarray:
+        """Steps from the last observation: missing values kept at the end widen the gap."""
+        finite = np.flatnonzero(np.isfinite(self.y.to_numpy(dtype=float)))
+        gap = len(self.y) - 1 - int(finite[-1])
+        return np.arange(1, horizon + 1, dtype=float) + gap
+
     def _point(self, horizon: int) -> np.ndarray:
-        h = np.arange(1, horizon + 1)
+        h = self._steps(horizon)
         return last_observed(self.y.to_numpy(dtype=float)) + self.parameters["drift"] * h
 
     def _sd(self, horizon: int) -> np.ndarray:
-        h = np.arange(1, horizon + 1, dtype=float)
+        h = self._steps(horizon)
         return self.sigma * np.sqrt(h * (1.0 + h / (self.n_estimated - 1)))
 
     def _fitted_array(self) -> np.ndarray:
