@@ -24,9 +24,6 @@ from service.core.models import registry
 from service.core.models.base import Fitted, Forecast
 
 PERIOD = 12
-# Families whose refilter re-estimates a two-sided decomposition on the new history (STL's
-# LOESS), so in-sample fits of the shared part move; their forecasts still must continue.
-RE_DECOMPOSED = frozenset({"stl"})
 HORIZON = 8
 COVERAGE = (0.8, 0.95)
 
@@ -152,8 +149,6 @@ def test_refilter_on_a_longer_history(case: dict[str, Any]) -> None:
     assert np.all(np.isfinite(fc.point))
     fitted = longer.fitted_values()
     assert fitted.index.equals(y.index)
-    if case["family"] in RE_DECOMPOSED:
-        return
     # Held-fixed parameters: the shared part of the history is fitted exactly as before.
     assert_allclose(
         fitted.to_numpy()[: len(y) - PERIOD], short.fitted_values().to_numpy(), equal_nan=True
