@@ -18,6 +18,7 @@ from service.core.errors import WindvaneError
 from service.core.models.base import Fitted, FitWarning, Specification
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
+from service.core.regressors import RegressorSet
 from service.core.selection import backtest_auto, select
 from service.core.transforms import TransformedSpec, transform_from_value
 from service.runtime import render
@@ -37,7 +38,7 @@ class ForecastTask:
     candidates: tuple[Specification, ...] | None = None
     metric: str = "mase"
     transform: dict[str, Any] = field(default_factory=dict)
-    regressors: tuple[dict[str, Any], ...] | None = None
+    regressors: RegressorSet | None = None
 
 
 @contextmanager
@@ -100,6 +101,12 @@ def fit_explicit(task: ForecastTask) -> FittedBundle:
     """Fit the task's specification (with its transform), falling back on numerical failure."""
     assert task.specification is not None
     found: list[FitWarning] = []
+    if task.regressors is not None:
+        with collected_warnings(found):
+            fitted = task.specification.fit(  # type: ignore[call-arg]
+                task.y, task.seasonal_period, regressors=task.regressors.history
+            )
+        return FittedBundle(fitted, (*found, *fitted.warnings))
     spec = with_transform(task.specification, task.transform)
     fitted = fit_with_fallback(spec, task.y, task.seasonal_period, found)
     return FittedBundle(fitted, (*found, *fitted.warnings))
@@ -110,7 +117,12 @@ def forecast_from(bundle: FittedBundle, task: ForecastTask) -> dict[str, Any]:
     found = list(bundle.warnings)
     fitted = bundle.fitted
     with collected_warnings(found):
-        result = fitted.forecast(task.horizon, task.coverage)
+        if task.regressors is not None:
+            result = fitted.forecast(  # type: ignore[call-arg]
+                task.horizon, task.coverage, future_regressors=task.regressors.future
+            )
+        else:
+            result = fitted.forecast(task.horizon, task.coverage)
     if not np.all(np.isfinite(result.point)):
         fallback = benchmark_for(task.y, task.seasonal_period)
         found.append(

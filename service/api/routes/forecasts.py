@@ -16,6 +16,7 @@ from service.api.schemas.forecasts import ForecastRequest, ForecastResponse
 from service.core.checks import check_coverage, check_positive_int
 from service.core.errors import RequestError
 from service.core.models.base import as_dict
+from service.core.regressors import regressors_from_wire
 from service.core.transforms import transform_from_value
 from service.runtime import jobs
 from service.runtime.cache import Cache
@@ -68,8 +69,16 @@ def forecast_task(body: ForecastRequest, settings: Any) -> tuple[jobs.ForecastTa
         raise RequestError(
             f"the {chosen.kind} transform needs strictly positive values", field="transform"
         )
-    if body.regressors and (spec is None or spec.family != "arima"):
-        raise RequestError("regressors are accepted by the arima family only", field="regressors")
+    regressors = None
+    if body.regressors:
+        if spec is None or spec.family != "arima":
+            raise RequestError(
+                "regressors are accepted by the arima family only", field="regressors"
+            )
+        if chosen.kind != "none":
+            raise RequestError("regressors cannot be combined with a transform", field="transform")
+        wire = [r.model_dump() for r in body.regressors]
+        regressors = regressors_from_wire(wire, series.y.index, horizon)
     task = jobs.ForecastTask(
         y=series.y,
         seasonal_period=series.seasonal_period,
@@ -81,6 +90,7 @@ def forecast_task(body: ForecastRequest, settings: Any) -> tuple[jobs.ForecastTa
         candidates=candidates,
         metric=body.metric,
         transform=wire_transform,
+        regressors=regressors,
     )
     return task, series
 
@@ -92,9 +102,11 @@ async def _computed(request: Request, pool: Any, task: jobs.ForecastTask) -> dic
         return dict(await pool.run(jobs.forecast, task))
     cache: Cache = request.app.state.cache
     telemetry: Telemetry = request.app.state.telemetry
-    key = fit_key(
-        task.y, task.seasonal_period, as_dict(task.specification), {"transform": task.transform}
-    )
+    options: dict[str, Any] = {"transform": task.transform}
+    if task.regressors is not None:
+        history = task.regressors.history
+        options["regressors"] = {str(c): history[c].tolist() for c in history.columns}
+    key = fit_key(task.y, task.seasonal_period, as_dict(task.specification), options)
     stored = await asyncio.to_thread(cache.load_fitted, key)
     if cache.enabled:
         telemetry.record_cache("fitted", stored.result)
