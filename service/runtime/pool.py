@@ -326,6 +326,9 @@ async def _receive(worker: _Worker, timeout: float) -> Any:
         await asyncio.wait_for(readable, timeout)
     finally:
         loop.remove_reader(fd)
+        # uvloop (uvicorn's loop) leaves a watched fd non-blocking: a reply larger than the
+        # socket buffer then failed recv() with BlockingIOError, reported as a crashed worker.
+        os.set_blocking(fd, True)
     # The worker writes a whole message at once; reading it back is a memory copy.
     return worker.conn.recv()
 
