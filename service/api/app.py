@@ -12,7 +12,7 @@ from service.api.auth import install_api_keys
 from service.api.middleware import BodyLimitMiddleware, RequestIdMiddleware
 from service.api.observe import ObserveMiddleware
 from service.api.problems import install_problem_handlers
-from service.api.routes import backtests, diagnostics, forecasts, health, models
+from service.api.routes import backtests, batches, diagnostics, forecasts, health, models
 from service.config import Settings
 from service.runtime.cache import Cache
 from service.runtime.logs import request_logger
@@ -74,6 +74,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(health.router)
     app.include_router(models.router)
     app.include_router(forecasts.router)
+    app.include_router(batches.router)
     app.include_router(diagnostics.router)
     app.include_router(backtests.router)
     install_api_keys(app, settings)  # innermost: request ids reach its 401 problems

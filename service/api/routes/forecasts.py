@@ -129,6 +129,13 @@ async def create_forecast(
     response: Response,
 ) -> dict[str, Any]:
     """Fit the given model (or choose one) and return point forecasts with intervals."""
+    return await answer_forecast(body, pool, settings, request, response)
+
+
+async def answer_forecast(
+    body: ForecastRequest, pool: Any, settings: Any, request: Request, response: Response
+) -> dict[str, Any]:
+    """One forecast through validation, the caches and the pool (also used by batches)."""
     task, series = forecast_task(body, settings)
     key = caching.response_key(body.model_dump(mode="json"), series.y, series.seasonal_period)
     family = task.specification.family if task.specification is not None else "auto"
