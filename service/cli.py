@@ -4,9 +4,16 @@ from __future__ import annotations
 
 import argparse
 import json
+import signal
 import sys
 from pathlib import Path
+from types import FrameType
 from typing import Any
+
+
+def _exit_after_drain(signum: int, frame: FrameType | None) -> None:
+    """A SIGTERM stop is the expected end of a server, so its exit status is success."""
+    raise SystemExit(0)
 
 
 def _serve(args: argparse.Namespace) -> int:
@@ -22,6 +29,8 @@ def _serve(args: argparse.Namespace) -> int:
 
         # Must precede the worker processes: client_python picks its storage at import.
         prepare_multiprocess(settings.metrics_dir)
+    # uvicorn drains, then re-raises SIGTERM with the handler found here: make that exit 0.
+    signal.signal(signal.SIGTERM, _exit_after_drain)
     uvicorn.run("service.api.app:create_app", factory=True, host=settings.host,
                 port=settings.port, workers=settings.workers, loop="auto", http="auto",
                 timeout_graceful_shutdown=int(settings.shutdown_grace_seconds),

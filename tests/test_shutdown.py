@@ -1,0 +1,116 @@
+"""Graceful shutdown: on SIGTERM `windvane serve` finishes in-flight work, then exits 0."""
+
+from __future__ import annotations
+
+import re
+import signal
+import threading
+import time
+from pathlib import Path
+
+import httpx
+import numpy as np
+import pytest
+from live_server import LiveServer, running
+
+pytestmark = [pytest.mark.server, pytest.mark.slow]
+
+
+def slow_body(errors: tuple[str, ...]) -> dict[str, object]:
+    """A combination of damped seasonal ETS fits on 100 monthly years: seconds of pool work."""
+    rng = np.random.default_rng(20240611)
+    t = np.arange(1200)
+    values = 100 + 0.2 * t + 10 * np.sin(2 * np.pi * t / 12) + rng.normal(0, 2, t.size)
+    members = [
+        {"family": "ets", "error": e, "trend": "add", "damped": True, "season": s}
+        for e in errors
+        for s in ("add", "mul")
+    ]
+    return {
+        "series": {"start": "1900-01-01", "frequency": "MS", "values": values.tolist()},
+        "horizon": 24,
+        "coverage": [0.8, 0.95],
+        "model": {"family": "combination", "members": members},
+    }
+
+
+def busy_workers(server: LiveServer) -> float:
+    text = httpx.get(server.url + "/metrics", timeout=5).text
+    found = re.search(r"^windvane_pool_busy_workers(?:\{[^}]*\})? ([0-9.e+-]+)$", text, re.M)
+    return float(found.group(1)) if found else 0.0
+
+
+def wait_for_busy_pool(server: LiveServer, seconds: float = 30.0) -> None:
+    deadline = time.monotonic() + seconds
+    while time.monotonic() < deadline:
+        if busy_workers(server) >= 1:
+            return
+        time.sleep(0.02)
+    raise AssertionError("the slow forecast never reached the pool")
+
+
+def test_sigterm_lets_the_in_flight_forecast_finish_and_exits_zero(tmp_path: Path) -> None:
+    answers: list[httpx.Response | BaseException] = []
+
+    with running(tmp_path, cache="off", shutdown_grace_seconds="30") as server:
+
+        def post() -> None:
+            try:
+                answers.append(
+                    httpx.post(server.url + "/v1/forecasts", json=slow_body(("mul",)), timeout=60)
+                )
+            except BaseException as exc:  # handed to the test thread below
+                answers.append(exc)
+
+        sender = threading.Thread(target=post)
+        sender.start()
+        # The gauge proves the request is being worked on, so SIGTERM lands mid-request.
+        wait_for_busy_pool(server)
+        signalled = time.monotonic()
+        server.process.send_signal(signal.SIGTERM)
+        # The listening socket closes at once: new connections are refused while draining.
+        time.sleep(0.3)
+        with pytest.raises(httpx.TransportError):
+            httpx.get(server.url + "/healthz", timeout=2)
+        sender.join(timeout=60)
+        exit_code = server.process.wait(timeout=60)
+        drained = time.monotonic() - signalled
+
+    assert len(answers) == 1, server.log_text()
+    response = answers[0]
+    assert isinstance(response, httpx.Response), f"{response!r}\n{server.log_text()}"
+    assert response.status_code == 200, response.text
+    body = response.json()
+    assert len(body["point"]) == 24
+    assert [i["coverage"] for i in body["intervals"]] == [0.8, 0.95]
+    assert exit_code == 0, server.log_text()
+    assert drained < 30, "the drain took the whole grace period"
+    assert "Traceback" not in server.log_text()
+
+
+def test_a_request_longer_than_the_grace_period_does_not_hold_the_exit(tmp_path: Path) -> None:
+    # A 1 s grace period against ~5 s of work: the process leaves without waiting for it.
+    outcome: list[object] = []
+    with running(tmp_path, cache="off", shutdown_grace_seconds="1") as server:
+
+        def post() -> None:
+            try:
+                outcome.append(
+                    httpx.post(
+                        server.url + "/v1/forecasts", json=slow_body(("add", "mul")), timeout=60
+                    ).status_code
+                )
+            except httpx.TransportError as exc:
+                outcome.append(exc)
+
+        sender = threading.Thread(target=post)
+        sender.start()
+        wait_for_busy_pool(server)
+        signalled = time.monotonic()
+        server.process.send_signal(signal.SIGTERM)
+        server.process.wait(timeout=30)
+        waited = time.monotonic() - signalled
+        sender.join(timeout=30)
+
+    assert waited < 4, f"exit took {waited:.1f} s with a 1 s grace period"
+    assert outcome, "the client thread never returned"
