@@ -128,9 +128,20 @@ def _num(value: float) -> float | None:
     return float(value) if np.isfinite(value) else None
 
 
+def selection_training(seasonal_period: int) -> int:
+    """Fewest points before the first selection origin: max(10, 3m) for seasonal series."""
+    if seasonal_period > 1:
+        return max(minimum_training(seasonal_period), 3 * seasonal_period)
+    return minimum_training(seasonal_period)
+
+
 def selection_plan(n: int, horizon: int, origins: int, seasonal_period: int) -> Plan | None:
-    """The widest honest plan: step = horizon if it fits, else smaller, then fewer origins."""
-    need = minimum_training(seasonal_period)
+    """The widest honest plan: step = horizon if it fits, else smaller, then fewer origins.
+
+    Seasonal candidates get three full seasons before the first origin: with two, AICc
+    rejects every seasonal model for its initial states and the ranking says nothing.
+    """
+    need = selection_training(seasonal_period)
     for k in range(origins, 0, -1):
         for step in range(horizon, 0, -1):
             first = n - horizon - step * (k - 1)
@@ -139,6 +150,19 @@ def selection_plan(n: int, horizon: int, origins: int, seasonal_period: int) -> 
             if k == 1:
                 break
     return None
+
+
+def _feasible_plan(n: int, horizon: int, origins: int, period: int) -> tuple[Plan, bool]:
+    """The selection plan at the requested horizon, else at the longest horizon that fits."""
+    for h in range(horizon, 0, -1):
+        plan = selection_plan(n, h, origins, period)
+        if plan is not None:
+            return plan, h < horizon
+    raise RequestError(
+        f"{n} points are too few to compare models; at least "
+        f"{selection_training(period) + 1} are needed",
+        field="series.values",
+    )
 
 
 def calibration_plan(
@@ -205,18 +229,13 @@ def select(
     specs = _with_benchmarks(list(chosen_set.specifications), profile)
     clock.lap("profile")
 
-    plan = selection_plan(len(y), horizon, origins, profile.benchmark_period)
-    if plan is None:
-        raise RequestError(
-            f"{len(y)} points are too few to backtest a horizon of {horizon}; "
-            f"at least {minimum_training(profile.benchmark_period) + horizon} are needed",
-            field="horizon",
-        )
+    plan, shortened = _feasible_plan(len(y), horizon, origins, profile.benchmark_period)
     periods = _periods(specs, profile)
     # One estimation per candidate serves both the ranking (the selection origins) and the
     # calibration (denser origins between the first and the last): only re-filtering is added.
     dense_plan = _dense(
-        plan, calibration_plan(len(y), horizon, profile.benchmark_period, first=plan.origins[0])
+        plan,
+        calibration_plan(len(y), plan.horizon, profile.benchmark_period, first=plan.origins[0]),
     )
     dense = run(y, specs, profile.benchmark_period, dense_plan, levels, map_fn, periods)
     chosen_origins = {y.index[o] for o in plan.origins}
@@ -245,6 +264,14 @@ def select(
     skill = _skill(chosen_bt.score(metric), bench_score)
 
     extra: list[FitWarning] = []
+    if shortened:
+        extra.append(
+            FitWarning(
+                "backtest_horizon_shortened",
+                f"the series is too short to backtest {horizon} steps ahead; candidates were "
+                f"compared {plan.horizon} steps ahead instead",
+            )
+        )
     naive_index = next(i for i, s in enumerate(specs) if s.family == "naive")
     over_naive = _skill(chosen_bt.score(metric), results[naive_index].score(metric))
     if profile.random_walk and (over_naive is None or over_naive < SKILL_MARGIN):
@@ -257,7 +284,7 @@ def select(
     # parameters are estimated again on the full series: no second search.
     member_specs = [dense[i].resolved or specs[i] for i in members]
     calibration = _calibrate(
-        y, member_specs, profile, _merged([dense[i] for i in members]), horizon, levels, map_fn
+        y, member_specs, profile, _merged([dense[i] for i in members]), plan.horizon, levels, map_fn
     )
     clock.lap("calibration")
 

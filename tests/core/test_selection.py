@@ -95,10 +95,19 @@ def test_selection_by_another_metric_among_given_candidates() -> None:
         select(seasonal_series(), 12, 6, metric="accuracy")
 
 
-def test_too_short_for_any_backtest_names_the_horizon() -> None:
+def test_too_short_for_any_comparison_names_the_values() -> None:
     with pytest.raises(RequestError) as info:
-        select(monthly(np.arange(12.0)), 1, 6)
-    assert info.value.problems[0].field == "horizon"
+        select(monthly(np.arange(10.0)), 1, 6)
+    assert info.value.problems[0].field == "series.values"
+
+
+def test_short_series_is_compared_at_a_shorter_horizon_with_a_warning() -> None:
+    rng = np.random.default_rng(8)
+    y = monthly(20 + 0.5 * np.arange(16.0) + rng.normal(size=16))
+    result = select(y, 1, 12, candidates=BENCHMARKS[::2])
+    assert result.selection.horizon == 6
+    assert "backtest_horizon_shortened" in [w.code for w in result.warnings]
+    assert result.forecast.point.size == 12
 
 
 def test_plans_shrink_the_step_before_the_origins() -> None:

@@ -1,0 +1,109 @@
+"""Speed of model "auto" on a 200-point monthly series, split by stage, with baselines.
+
+Run: python -m tests.benchmarks.selection_speed
+
+Measured in one run (the machine is shared, so only the ratios travel):
+- auto, cold (first call in a fresh process after imports) and warm, by stage: diagnostics,
+  profile, backtest (every candidate fitted once and re-filtered), calibration, refit, forecast;
+- baselines: one ETS AICc search on the full series, and the winner's 3-origin backtest by
+  refitting at every origin against re-filtering;
+- the candidate fan-out through a 2-process pool passed as ``map_fn``, against serial.
+"""
+
+from __future__ import annotations
+
+import os
+import time
+import warnings
+from concurrent.futures import ProcessPoolExecutor
+
+import numpy as np
+import pandas as pd
+
+N, PERIOD, HORIZON = 200, 12, 24
+LEVELS = (0.8, 0.95)
+
+
+def series(seed: int = 42) -> pd.Series:
+    """Trend, a yearly season and a wandering level: the kind of series auto is for."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(N)
+    values = 300 + 0.6 * t + 25 * np.sin(2 * np.pi * t / PERIOD) + rng.normal(0, 5, N).cumsum()
+    return pd.Series(values, index=pd.date_range("2008-01-01", periods=N, freq="MS"))
+
+
+def timed_auto(y: pd.Series, map_fn: object = None) -> tuple[float, dict[str, float], str]:
+    from service.core.diagnostics import diagnose
+    from service.core.selection import select
+
+    start = time.perf_counter()
+    report = diagnose(y, PERIOD)
+    diagnostics_seconds = time.perf_counter() - start
+    result = select(y, PERIOD, HORIZON, LEVELS, diagnostics=report, map_fn=map_fn)  # type: ignore[arg-type]
+    total = time.perf_counter() - start
+    return total, {"diagnostics": diagnostics_seconds, **result.seconds}, result.selection.chosen
+
+
+def refit_vs_refilter(y: pd.Series) -> tuple[float, float]:
+    """The winner-sized cost: 3 origins by refitting each time, and by re-filtering."""
+    from service.core.backtest import plan_origins
+    from service.core.models.ets import EtsSpec
+
+    spec = EtsSpec("add", "add", True, "add")
+    plan = plan_origins(len(y), HORIZON, 3, HORIZON, PERIOD)
+    start = time.perf_counter()
+    for origin in plan.origins:
+        spec.fit(y.iloc[:origin], PERIOD).forecast(HORIZON, LEVELS)
+    refit = time.perf_counter() - start
+    start = time.perf_counter()
+    fitted = spec.fit(y.iloc[: plan.origins[0]], PERIOD)
+    for origin in plan.origins:
+        fitted.refilter(y.iloc[:origin]).forecast(HORIZON, LEVELS)
+    return refit, time.perf_counter() - start
+
+
+def main() -> None:
+    start = time.perf_counter()
+    import service.core.selection  # noqa: F401  (imports statsmodels and the families)
+
+    imports = time.perf_counter() - start
+    y = series()
+    warnings.simplefilter("ignore")
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
+    print(f"cores seen: {cores}; load average {os.getloadavg()[0]:.2f}; imports {imports:.2f} s")
+
+    cold, stages, chosen = timed_auto(y)
+    warm, warm_stages, _ = timed_auto(y)
+    print(f"\nauto, n = {N}, m = {PERIOD}, h = {HORIZON}: chosen {chosen}")
+    print(f"{'stage':14s} {'cold s':>8s} {'warm s':>8s}")
+    for name in stages:
+        print(f"{name:14s} {stages[name]:8.3f} {warm_stages[name]:8.3f}")
+    print(f"{'total':14s} {cold:8.3f} {warm:8.3f}   (target <= 1 s cold)")
+
+    from service.core.models.ets import EtsSpec
+
+    start = time.perf_counter()
+    EtsSpec().fit(y, PERIOD)
+    ets_search = time.perf_counter() - start
+    refit, refilter = refit_vs_refilter(y)
+    print("\nbaselines measured in this run")
+    ratio = warm / ets_search
+    print(f"ETS AICc search, full series    {ets_search:8.3f} s  auto / search = {ratio:.2f}")
+    print(f"3-origin backtest, refitting     {refit:8.3f} s")
+    ratio = refit / refilter
+    print(f"3-origin backtest, re-filtering  {refilter:8.3f} s  refit / refilter = {ratio:.2f}")
+
+    with ProcessPoolExecutor(max_workers=2) as pool:
+        list(pool.map(abs, range(4)))  # start the workers outside the timing
+        parallel, par_stages, _ = timed_auto(y, map_fn=pool.map)
+    print("\ncandidate fan-out (warm)")
+    print(f"serial backtest stage    {warm_stages['backtest']:8.3f} s")
+    print(
+        f"2-process map_fn         {par_stages['backtest']:8.3f} s  "
+        f"serial / parallel = {warm_stages['backtest'] / par_stages['backtest']:.2f}"
+    )
+    print(f"total with the pool      {parallel:8.3f} s")
+
+
+if __name__ == "__main__":
+    main()
