@@ -21,8 +21,11 @@ def _serve(args: argparse.Namespace) -> int:
 
     from service.config import Settings
 
-    overrides = {k: v for k, v in {"host": args.host, "port": args.port,
-                                   "workers": args.workers}.items() if v is not None}
+    overrides = {
+        k: v
+        for k, v in {"host": args.host, "port": args.port, "workers": args.workers}.items()
+        if v is not None
+    }
     settings = Settings(**overrides)
     if settings.workers > 1:
         from service.runtime.telemetry import prepare_multiprocess
@@ -31,10 +34,17 @@ def _serve(args: argparse.Namespace) -> int:
         prepare_multiprocess(settings.metrics_dir)
     # uvicorn drains, then re-raises SIGTERM with the handler found here: make that exit 0.
     signal.signal(signal.SIGTERM, _exit_after_drain)
-    uvicorn.run("service.api.app:create_app", factory=True, host=settings.host,
-                port=settings.port, workers=settings.workers, loop="auto", http="auto",
-                timeout_graceful_shutdown=int(settings.shutdown_grace_seconds),
-                log_level=settings.log_level)
+    uvicorn.run(
+        "service.api.app:create_app",
+        factory=True,
+        host=settings.host,
+        port=settings.port,
+        workers=settings.workers,
+        loop="auto",
+        http="auto",
+        timeout_graceful_shutdown=int(settings.shutdown_grace_seconds),
+        log_level=settings.log_level,
+    )
     return 0
 
 
@@ -75,14 +85,16 @@ def _local(args: argparse.Namespace, path: str) -> int:
     try:
         body = answer(path, raw)
     except ValidationError as exc:
-        errors = [{"field": ".".join(map(str, e["loc"])), "message": e["msg"]}
-                  for e in exc.errors()]
+        errors = [
+            {"field": ".".join(map(str, e["loc"])), "message": e["msg"]} for e in exc.errors()
+        ]
         sys.stderr.write(json.dumps({"status": 422, "errors": errors}, indent=2) + "\n")
         return 1
     except WindvaneError as exc:
         errors = [{"field": p.field, "message": p.message} for p in exc.problems]
-        sys.stderr.write(json.dumps({"status": 422, "detail": exc.message,
-                                     "errors": errors}, indent=2) + "\n")
+        sys.stderr.write(
+            json.dumps({"status": 422, "detail": exc.message, "errors": errors}, indent=2) + "\n"
+        )
         return 1
     sys.stdout.write(json.dumps(body, indent=2) + "\n")
     return 0
@@ -103,8 +115,12 @@ def build_parser() -> argparse.ArgumentParser:
     demo = sub.add_parser("demo", help="print a demo request body")
     demo.add_argument("name", help="scenario series name (see `windvane demo list`)")
     demo.add_argument("--horizon", type=int, default=None)
-    demo.add_argument("--kind", choices=("forecast", "diagnostics", "backtest"),
-                      default="forecast", help="which endpoint the body is for")
+    demo.add_argument(
+        "--kind",
+        choices=("forecast", "diagnostics", "backtest"),
+        default="forecast",
+        help="which endpoint the body is for",
+    )
     demo.set_defaults(run=_demo)
     for name, path in (("forecast", "/v1/forecasts"), ("diagnose", "/v1/diagnostics")):
         cmd = sub.add_parser(name, help=f"answer one {path} request in process")

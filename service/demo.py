@@ -42,8 +42,14 @@ def parcels() -> DemoSeries:
     start = pd.Timestamp("2025-01-06")  # a Monday
     level = 400 + 0.35 * t
     y = level * week[t % 7] + rng.normal(0, 18, n)
-    return DemoSeries("parcels", "Eastgate depot daily parcels", start.date().isoformat(),
-                      "P1D", np.round(y, 0).tolist(), 14)
+    return DemoSeries(
+        "parcels",
+        "Eastgate depot daily parcels",
+        start.date().isoformat(),
+        "P1D",
+        np.round(y, 0).tolist(),
+        14,
+    )
 
 
 def orders() -> DemoSeries:
@@ -51,8 +57,9 @@ def orders() -> DemoSeries:
     n, rng = 156, _rng(2)
     t = np.arange(n)
     y = 1200 + 2.0 * t + 220 * np.sin(2 * np.pi * (t - 30) / 52) + rng.normal(0, 45, n)
-    return DemoSeries("orders", "North warehouse weekly orders", "2023-01-02", "P1W",
-                      np.round(y, 0).tolist(), 13)
+    return DemoSeries(
+        "orders", "North warehouse weekly orders", "2023-01-02", "P1W", np.round(y, 0).tolist(), 13
+    )
 
 
 def requests() -> DemoSeries:
@@ -64,8 +71,14 @@ def requests() -> DemoSeries:
     daily = 1 + 0.8 * np.exp(-((hour - 11) ** 2) / 18)
     weekend = np.where(day >= 5, 0.6, 1.0)
     y = rng.poisson(300 * daily * weekend)
-    return DemoSeries("requests", "Stock-check service hourly requests",
-                      "2025-03-03T00:00:00", "PT1H", y.astype(float).tolist(), 48)
+    return DemoSeries(
+        "requests",
+        "Stock-check service hourly requests",
+        "2025-03-03T00:00:00",
+        "PT1H",
+        y.astype(float).tolist(),
+        48,
+    )
 
 
 def energy() -> DemoSeries:
@@ -75,8 +88,14 @@ def energy() -> DemoSeries:
     level = 80 * (1.004**t)
     season = 1 + 0.25 * np.cos(2 * np.pi * t / 12)
     y = level * season * np.exp(rng.normal(0, 0.03, n))
-    return DemoSeries("energy", "Millbrook site monthly energy use (MWh)", "2016-01-01",
-                      "P1M", np.round(y, 2).tolist(), 12)
+    return DemoSeries(
+        "energy",
+        "Millbrook site monthly energy use (MWh)",
+        "2016-01-01",
+        "P1M",
+        np.round(y, 2).tolist(),
+        12,
+    )
 
 
 def spares() -> DemoSeries:
@@ -85,20 +104,23 @@ def spares() -> DemoSeries:
     occurs = rng.random(n) < 0.22
     sizes = rng.integers(1, 7, n)
     y = np.where(occurs, sizes, 0)
-    return DemoSeries("spares", "Spare part 7A daily demand", "2025-01-01", "P1D",
-                      y.astype(float).tolist(), 28)
+    return DemoSeries(
+        "spares", "Spare part 7A daily demand", "2025-01-01", "P1D", y.astype(float).tolist(), 28
+    )
 
 
 def fuel() -> DemoSeries:
     """A daily fuel price index: a random walk, which no model forecasts better than naive."""
     n, rng = 300, _rng(7)
     y = 100 + np.cumsum(rng.normal(0, 0.8, n))
-    return DemoSeries("fuel", "Fuel price index (daily)", "2025-01-01", "P1D",
-                      np.round(y, 3).tolist(), 14)
+    return DemoSeries(
+        "fuel", "Fuel price index (daily)", "2025-01-01", "P1D", np.round(y, 3).tolist(), 14
+    )
 
 
 SCENARIO: dict[str, Callable[[], DemoSeries]] = {
-    f.__name__: f for f in (parcels, orders, requests, energy, spares, fuel)}
+    f.__name__: f for f in (parcels, orders, requests, energy, spares, fuel)
+}
 
 
 def series_body(name: str) -> dict[str, Any]:

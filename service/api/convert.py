@@ -10,16 +10,28 @@ from service.core.models.registry import specification_from_dict
 from service.core.series import Aggregation, ParsedSeries, parse_series
 
 
-def parsed_series(series: SeriesIn, settings: Settings, min_points: int = 3,
-                  field: str = "series") -> ParsedSeries:
+def parsed_series(
+    series: SeriesIn, settings: Settings, min_points: int = 3, field: str = "series"
+) -> ParsedSeries:
     """Parse the wire series; errors name fields under ``series``."""
-    aggregate = (Aggregation(series.aggregate.frequency, series.aggregate.method)
-                 if series.aggregate else None)
+    aggregate = (
+        Aggregation(series.aggregate.frequency, series.aggregate.method)
+        if series.aggregate
+        else None
+    )
     try:
-        return parse_series(series.values, timestamps=series.timestamps, start=series.start,
-                            frequency=series.frequency, seasonal_period=series.seasonal_period,
-                            name=series.name, missing=series.missing, aggregate=aggregate,
-                            min_points=min_points, max_points=settings.max_points)
+        return parse_series(
+            series.values,
+            timestamps=series.timestamps,
+            start=series.start,
+            frequency=series.frequency,
+            seasonal_period=series.seasonal_period,
+            name=series.name,
+            missing=series.missing,
+            aggregate=aggregate,
+            min_points=min_points,
+            max_points=settings.max_points,
+        )
     except WindvaneError as exc:
         raise exc.prefixed(field) from None
 

@@ -19,8 +19,11 @@ def answer(path: str, raw: str, settings: Settings | None = None) -> dict[str, A
         request = ForecastRequest.model_validate_json(raw)
         task, series = forecast_task(request, settings)
         body = jobs.forecast(task)
-        body["provenance"] = {"data_hash": data_key(series.y).label, "cache": "off",
-                              "service_version": __version__,
-                              "library_versions": runtime_versions()}
+        body["provenance"] = {
+            "data_hash": data_key(series.y).label,
+            "cache": "off",
+            "service_version": __version__,
+            "library_versions": runtime_versions(),
+        }
         return body
     raise ValueError(f"no local answer for {path}")

@@ -81,15 +81,22 @@ class BodyLimitMiddleware:
 async def _too_large(scope: Scope, send: Send, limit: int) -> None:
     rid = scope.get("state", {}).get("request_id")
     body: dict[str, Any] = {
-        "type": "/problems/body-too-large", "title": "Content Too Large", "status": 413,
+        "type": "/problems/body-too-large",
+        "title": "Content Too Large",
+        "status": 413,
         "detail": f"the request body is larger than the limit of {limit} bytes",
-        "instance": scope.get("path", ""), "code": "body_too_large",
-        "errors": [{"field": "body", "message": f"at most {limit} bytes"}]}
+        "instance": scope.get("path", ""),
+        "code": "body_too_large",
+        "errors": [{"field": "body", "message": f"at most {limit} bytes"}],
+    }
     if rid:
         body["request_id"] = rid
     payload = json.dumps(body).encode()
-    headers = [(b"content-type", b"application/problem+json"),
-               (b"content-length", str(len(payload)).encode()), (b"connection", b"close")]
+    headers = [
+        (b"content-type", b"application/problem+json"),
+        (b"content-length", str(len(payload)).encode()),
+        (b"connection", b"close"),
+    ]
     # No x-request-id header here: RequestIdMiddleware, outside this one, adds it.
     await send({"type": "http.response.start", "status": 413, "headers": headers})
     await send({"type": "http.response.body", "body": payload})

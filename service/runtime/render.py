@@ -52,16 +52,19 @@ def forecast_body(forecast: Forecast) -> dict[str, Any]:
     return {
         "timestamps": timestamps(forecast.index),
         "point": floats(forecast.point),
-        "intervals": [{"coverage": i.coverage, "lower": floats(i.lower), "upper": floats(i.upper)}
-                      for i in forecast.intervals],
+        "intervals": [
+            {"coverage": i.coverage, "lower": floats(i.lower), "upper": floats(i.upper)}
+            for i in forecast.intervals
+        ],
     }
 
 
 def model_body(description: Description) -> dict[str, Any]:
     """The model part of a response."""
     body = plain(description)
-    body["information_criteria"] = {k: v for k, v in body["information_criteria"].items()
-                                    if v is not None}
+    body["information_criteria"] = {
+        k: v for k, v in body["information_criteria"].items() if v is not None
+    }
     return body  # type: ignore[no-any-return]
 
 
