@@ -130,7 +130,7 @@ def specification_from_dict(data: Any, field: str = "model") -> Specification:
             continue
         kwargs[key] = _coerce(known[key], value, f"{field}.{key}")
     try:
-        return cls(**kwargs)  # type: ignore[no-any-return]
+        return cls(**kwargs)
     except SpecificationError:
         raise
     except (TypeError, ValueError) as exc:
