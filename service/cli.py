@@ -85,10 +85,13 @@ def _local(args: argparse.Namespace, path: str) -> int:
     try:
         body = answer(path, raw)
     except ValidationError as exc:
-        errors = [
-            {"field": ".".join(map(str, e["loc"])), "message": e["msg"]} for e in exc.errors()
-        ]
-        sys.stderr.write(json.dumps({"status": 422, "errors": errors}, indent=2) + "\n")
+        from service.api.problems import field_path
+
+        # The same field paths as the HTTP problems ("series.values[2]", "body"), and 400
+        # for a body that is not JSON at all.
+        errors = [{"field": field_path(e["loc"]), "message": e["msg"]} for e in exc.errors()]
+        status = 400 if any(e["type"] == "json_invalid" for e in exc.errors()) else 422
+        sys.stderr.write(json.dumps({"status": status, "errors": errors}, indent=2) + "\n")
         return 1
     except WindvaneError as exc:
         errors = [{"field": p.field, "message": p.message} for p in exc.problems]

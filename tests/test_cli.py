@@ -113,3 +113,25 @@ def test_demo_bodies_for_each_endpoint_kind(capsys: pytest.CaptureFixture[str]) 
         body = json.loads(capsys.readouterr().out)
         assert body["series"]["frequency"] == "P1M"
         assert ("horizon" in body) == (kind != "diagnostics")
+
+
+def test_forecast_reports_malformed_json_as_400_on_the_body(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    path = tmp_path / "cut.json"
+    path.write_text(json.dumps(demo.request_body("fuel"))[:40], encoding="utf-8")
+    assert main(["forecast", str(path)]) == 1
+    report = json.loads(capsys.readouterr().err)
+    assert report["status"] == 400
+    assert report["errors"][0]["field"] == "body"
+
+
+def test_forecast_names_list_items_as_the_http_problems_do(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    body = demo.request_body("fuel")
+    body["coverage"] = [0.8, "wide"]
+    path = tmp_path / "bad.json"
+    path.write_text(json.dumps(body), encoding="utf-8")
+    assert main(["forecast", str(path)]) == 1
+    assert json.loads(capsys.readouterr().err)["errors"][0]["field"] == "coverage[1]"
