@@ -21,6 +21,16 @@ from service.api.app import create_app
 from service.config import Settings
 
 SettingsFactory = Callable[..., Settings]
+
+
+def pytest_configure(config: pytest.Config) -> None:
+    """One BLAS thread, as in the pool's workers: statsmodels' many tiny linear-algebra calls
+    ran 5-20 times slower multi-threaded on these two shared cores."""
+    from threadpoolctl import threadpool_limits
+
+    config._windvane_blas = threadpool_limits(1)  # type: ignore[attr-defined]
+
+
 ClientFactory = Callable[..., AbstractContextManager[TestClient]]
 SharedClients = Callable[..., TestClient]
 
