@@ -288,8 +288,12 @@ def resolved_specification(fitted: Any) -> Any:
     chosen = getattr(fitted, "chosen", None)
     if chosen is not None:
         return chosen
-    orders = getattr(fitted, "orders", None)
+    members = getattr(fitted, "members", None)
     spec = fitted.specification
+    if members and dataclasses.is_dataclass(spec) and hasattr(spec, "members"):
+        # A combination resolves member by member (each ETS member settled its own season).
+        return dataclasses.replace(spec, members=tuple(resolved_specification(m) for m in members))
+    orders = getattr(fitted, "orders", None)
     if orders is not None and dataclasses.is_dataclass(spec) and hasattr(spec, "order"):
         # ARIMA keeps the searched orders beside its (possibly order-less) specification.
         return dataclasses.replace(

@@ -79,6 +79,9 @@ class Selection:
     candidates: CandidateSet
     profile: SeriesProfile
     failures: tuple[tuple[str, str], ...] = ()
+    candidate_seconds: tuple[tuple[str, float, float], ...] = ()
+    """(label, fit seconds, re-filter + forecast seconds) per candidate; for logs only, kept
+    out of ``to_dict`` so that identical requests give identical responses."""
 
     def to_dict(self) -> dict[str, Any]:
         """JSON form."""
@@ -307,6 +310,7 @@ def select(
         candidates=chosen_set,
         profile=profile,
         failures=failures,
+        candidate_seconds=tuple((r.label, r.fit_seconds, r.refilter_seconds) for r in dense),
     )
     warnings_out = tuple(extra) + tuple(fitted.warnings)
     return AutoForecast(fitted, forecast, selection, warnings_out, clock.laps)

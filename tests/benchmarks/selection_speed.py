@@ -22,6 +22,7 @@ import pandas as pd
 
 N, PERIOD, HORIZON = 200, 12, 24
 LEVELS = (0.8, 0.95)
+LAST: tuple[tuple[str, float, float], ...] = ()
 
 
 def series(seed: int = 42) -> pd.Series:
@@ -41,6 +42,8 @@ def timed_auto(y: pd.Series, map_fn: object = None) -> tuple[float, dict[str, fl
     diagnostics_seconds = time.perf_counter() - start
     result = select(y, PERIOD, HORIZON, LEVELS, diagnostics=report, map_fn=map_fn)  # type: ignore[arg-type]
     total = time.perf_counter() - start
+    global LAST
+    LAST = result.selection.candidate_seconds
     return total, {"diagnostics": diagnostics_seconds, **result.seconds}, result.selection.chosen
 
 
@@ -79,6 +82,9 @@ def main() -> None:
     for name in stages:
         print(f"{name:14s} {stages[name]:8.3f} {warm_stages[name]:8.3f}")
     print(f"{'total':14s} {cold:8.3f} {warm:8.3f}   (target <= 1 s cold)")
+    print(f"\n{'candidate (warm)':64s} {'fit s':>7s} {'refilter s':>10s}")
+    for label, fit, refilter in LAST:
+        print(f"{label[:64]:64s} {fit:7.3f} {refilter:10.3f}")
 
     from service.core.models.ets import EtsSpec
 
