@@ -290,11 +290,12 @@ def resolved_specification(fitted: Any) -> Any:
         return chosen
     members = getattr(fitted, "members", None)
     spec = fitted.specification
-    if members and dataclasses.is_dataclass(spec) and hasattr(spec, "members"):
+    is_instance = dataclasses.is_dataclass(spec) and not isinstance(spec, type)
+    if members and is_instance and hasattr(spec, "members"):
         # A combination resolves member by member (each ETS member settled its own season).
         return dataclasses.replace(spec, members=tuple(resolved_specification(m) for m in members))
     orders = getattr(fitted, "orders", None)
-    if orders is not None and dataclasses.is_dataclass(spec) and hasattr(spec, "order"):
+    if orders is not None and is_instance and hasattr(spec, "order"):
         # ARIMA keeps the searched orders beside its (possibly order-less) specification.
         return dataclasses.replace(
             spec,
