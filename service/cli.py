@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import signal
 import sys
 from pathlib import Path
@@ -42,7 +43,7 @@ def _serve(args: argparse.Namespace) -> int:
         workers=settings.workers,
         loop="auto",
         http="auto",
-        timeout_graceful_shutdown=int(settings.shutdown_grace_seconds),
+        timeout_graceful_shutdown=math.ceil(settings.shutdown_grace_seconds),
         log_level=settings.log_level,
     )
     return 0
