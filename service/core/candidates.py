@@ -6,8 +6,9 @@ Rules (the table DEVELOPERS.md carries; n = observations, m = seasonal period):
     seasonal          m > 1, n >= 2m + 2, and |r_m| of the first differences exceeds
                       1.645·√((1 + 2·Σ_{k<m} r_k²)/n), the 90 % seasonality test of the M4
                       benchmarks (Makridakis et al. 2020; there on the series itself, here on
-                      its differences so a random walk is not called seasonal) - unless the
-                      diagnostics say otherwise
+                      its differences so a random walk is not called seasonal), or, given
+                      the diagnostics, STL seasonal strength >= 0.64 (the threshold of Wang,
+                      Smith & Hyndman 2006, from memory, also used for D in the ARIMA search)
     long period       seasonal and m > 24: ETS and seasonal ARIMA are slow or unstable there
     positive          every observed value > 0 (admits multiplicative ETS, left to its search)
     intermittent      no negative values and a share of zeros >= 0.3
@@ -26,8 +27,9 @@ Rules (the table DEVELOPERS.md carries; n = observations, m = seasonal period):
                                  the season is long). Left out of the default search: on this
                                  machine the stepwise search took 12 s (non-seasonal, n = 114)
                                  to 110 s (seasonal, n = 84) against a 1 s budget for auto
-      and long period          + stl with ets base, stl with arima base (instead of the
-                                 seasonal variants of ets and arima, which run with m = 1)
+      and long period          + stl with ets base (and, when thorough, stl with arima
+                                 base), instead of the seasonal variants of ets and arima,
+                                 which then run with m = 1
 
 A family that is not (yet) in the registry is skipped and listed in ``skipped``.
 """
@@ -46,6 +48,7 @@ import pandas as pd
 from service.core.errors import SpecificationError
 
 INTERMITTENT_ZERO_SHARE = 0.3
+SEASONAL_STRENGTH = 0.64
 LONG_PERIOD = 24
 SHORT_POINTS = 30
 SHORT_SEASONS = 3
@@ -147,9 +150,11 @@ def profile_series(
     values = y.to_numpy(dtype=float)
     finite = values[np.isfinite(values)]
     seasonal = seasonality_test(values, seasonal_period)
-    seen_seasonal = _lookup(diagnostics, ("seasonality", "seasonal"))
-    if isinstance(seen_seasonal, bool):
-        seasonal = seen_seasonal and seasonal_period > 1 and finite.size >= 2 * seasonal_period + 2
+    strength = _lookup(diagnostics, ("seasonality", "seasonal_strength"))
+    enough = seasonal_period > 1 and finite.size >= 2 * seasonal_period + 2
+    if isinstance(strength, (int, float)) and not isinstance(strength, bool):
+        # A smooth long season barely shows in the differences; STL strength sees it.
+        seasonal = seasonal or (enough and float(strength) >= SEASONAL_STRENGTH)
     walk = _lookup(diagnostics, ("random_walk", "is_random_walk"))
     reason = _lookup(diagnostics, ("random_walk", "reason"))
     if isinstance(walk, bool):
@@ -237,7 +242,8 @@ def candidate_rules(
         out.append(({"family": "arima"}, "ARIMA, stepwise AICc search" + note))
     if profile.long_period:
         out.append(({"family": "stl", "base": {"family": "ets"}}, "long season: STL + ETS"))
-        out.append(({"family": "stl", "base": {"family": "arima"}}, "long season: STL + ARIMA"))
+        if thorough:
+            out.append(({"family": "stl", "base": {"family": "arima"}}, "long season: STL + ARIMA"))
     return out
 
 

@@ -2,18 +2,27 @@
 
 Rules (stated for DEVELOPERS.md):
 - Within a family the family's own search decides (ETS by AICc over the taxonomy, ARIMA by
-  the stepwise AICc search, ...), run on the data before the first origin only.
+  the stepwise AICc search, Theta, STL + ETS for seasons longer than 24, Croston/SBA for
+  intermittent series), run on the data before the first origin only.
 - Across families: ``origins`` (default 3) rolling origins at the requested horizon, ``step``
-  apart (``horizon`` when the series allows it, shrinking to 1, then fewer origins), scored by
-  ``metric`` (mase | smape | rmse | mae). Each candidate is fitted once and re-filtered forward.
+  apart (``horizon`` when the series allows it, shrinking to 1, then fewer origins), with at
+  least max(10, 3m) points before the first origin (10 when non-seasonal); when even one
+  origin does not fit, the longest horizon that fits is used, with the warning
+  ``backtest_horizon_shortened``. Scored by ``metric`` (mase, default | smape | rmse | mae).
+  Each candidate is estimated once, before the first origin, and re-filtered forward.
 - Combination: the equal-weight mean of the top 3 working candidates replaces the winner when
   its backtest score is lower than the winner's.
-- Naive guard: when the series is judged a random walk and the best candidate's skill over the
-  benchmark is below 0.05, the naive forecast is returned with ``no_skill_over_naive``.
+- Naive guard: when the series is judged a random walk and the chosen model's score is not at
+  least 5 % better than the naive forecast's (1 − score/score(naive) < 0.05), the naive
+  forecast is returned with ``no_skill_over_naive``.
 - skill_over_naive = 1 − score(chosen) / score(benchmark), the benchmark being seasonal naive
   for a seasonal series and naive otherwise.
-- The chosen specification is then refitted on the full series; its intervals are rescaled by
-  split-conformal factors when the calibration backtest has >= 5 origins (see calibration.py).
+- Calibration: the same estimates are re-filtered through up to 8 origins between the first
+  selection origin and n − h; with >= 5 origins the intervals are rescaled by per-level
+  split-conformal factors (calibration.py). Short series fall back to origins starting at
+  half the series, fitted there, and to the model's own intervals below 5 origins.
+- The structure each family's search chose (ETS components, ARIMA orders, combination
+  members) is then re-estimated on the full series for the forecast: no second search.
 """
 
 from __future__ import annotations

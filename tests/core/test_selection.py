@@ -155,3 +155,28 @@ def test_combination_averages_points_and_bounds() -> None:
     parts = [s.fit(y, 12).forecast(3, (0.8,)).point for s in BENCHMARKS]
     np.testing.assert_allclose(forecast.point, np.mean(parts, axis=0))
     assert fitted.describe().family == "combination"
+
+
+def test_long_weekly_season_goes_to_stl_through_the_diagnostics() -> None:
+    from service.core.diagnostics import diagnose
+
+    rng = np.random.default_rng(3)
+    t = np.arange(260)
+    values = 100 + 10 * np.sin(2 * np.pi * t / 52) + rng.normal(size=260) * 2
+    y = pd.Series(values, index=pd.date_range("2015-01-05", periods=260, freq="W-MON"))
+    result = select(y, 52, 13, diagnostics=diagnose(y, 52))
+    assert result.selection.profile.seasonal and result.selection.profile.long_period
+    families = {r.specification["family"] for r in result.selection.ranking}
+    assert "stl" in families
+    pattern = 10 * np.sin(2 * np.pi * np.arange(260, 273) / 52)
+    assert np.corrcoef(result.forecast.point, pattern)[0, 1] > 0.8
+
+
+def test_intermittent_demand_is_compared_with_croston() -> None:
+    rng = np.random.default_rng(12)
+    demand = np.where(rng.random(120) < 0.4, rng.integers(1, 9, 120), 0).astype(float)
+    result = select(monthly(demand), 12, 6)
+    assert result.selection.profile.intermittent
+    labels = {r.label for r in result.selection.ranking}
+    assert {"Croston", "SBA"} <= labels
+    assert np.all(result.forecast.point >= 0)
