@@ -18,9 +18,10 @@ from typing import Any, TypeVar
 import numpy as np
 import pandas as pd
 
-from service.core.checks import check_coverage, check_positive_int
-from service.core.errors import FieldProblem, RequestError
+from service.core.checks import check_coverage
+from service.core.errors import RequestError
 from service.core.models.base import FitWarning, Specification, as_dict
+from service.core.origins import Plan, plan_origins
 from service.core.scoring import (
     check_metric,
     interval_scores,
@@ -32,37 +33,6 @@ T = TypeVar("T")
 R = TypeVar("R")
 MapFn = Callable[[Callable[[T], R], Sequence[T]], Iterable[R]]
 """Like the builtin ``map``: the runtime may pass its pool's map to fan candidates out."""
-
-
-def minimum_training(seasonal_period: int) -> int:
-    """Fewest points before the first origin: two full seasons plus two, and never under 10."""
-    return max(10, 2 * seasonal_period + 2)
-
-
-@dataclass(frozen=True)
-class Plan:
-    """Where the rolling origins sit: positions of the first forecast step, ascending."""
-
-    origins: tuple[int, ...]
-    horizon: int
-    step: int
-
-
-def plan_origins(n: int, horizon: int, origins: int, step: int, seasonal_period: int = 1) -> Plan:
-    """Origins at n−h, n−h−step, ...; too little data before the first -> RequestError."""
-    check_positive_int(horizon, "horizon")
-    check_positive_int(origins, "origins")
-    check_positive_int(step, "step")
-    first = n - horizon - step * (origins - 1)
-    need = minimum_training(seasonal_period)
-    if first < need:
-        message = (
-            f"{n} points leave {first} before the first origin, fewer than the {need} needed "
-            f"for origins={origins}, horizon={horizon}, step={step}; lower one of them"
-        )
-        problems = [FieldProblem(name, message) for name in ("origins", "horizon", "step")]
-        raise RequestError(message, problems=problems)
-    return Plan(tuple(first + step * k for k in range(origins)), horizon, step)
 
 
 @dataclass(frozen=True)

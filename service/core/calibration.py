@@ -20,9 +20,7 @@ import numpy as np
 from service.core.backtest import ModelBacktest
 from service.core.intervals import Interval
 from service.core.models.base import Forecast
-
-MINIMUM_ORIGINS = 5
-"""Fewer origins than this and the model's own intervals are returned unadjusted."""
+from service.core.origins import MINIMUM_ORIGINS
 
 FACTOR_BOUNDS = (0.5, 3.0)
 """Our guard: a handful of correlated origins may not halve or more than triple a model's width."""

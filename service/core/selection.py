@@ -27,7 +27,6 @@ Rules (stated for DEVELOPERS.md):
 
 from __future__ import annotations
 
-import math
 import time
 from collections.abc import Sequence
 from dataclasses import dataclass, field
@@ -41,10 +40,8 @@ from service.core.averaging import CombinedFitted, combine
 from service.core.backtest import (
     MapFn,
     ModelBacktest,
-    Plan,
     RankEntry,
     Task,
-    minimum_training,
     rank,
     run,
 )
@@ -59,11 +56,11 @@ from service.core.models.base import (
 )
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
+from service.core.origins import MINIMUM_ORIGINS, calibration_plan, dense_plan, feasible_plan
 from service.core.scoring import check_metric
 
 SKILL_MARGIN = 0.05
 COMBINE_TOP = 3
-CALIBRATION_ORIGINS = 8
 NO_SKILL_MESSAGE = (
     "The series behaves like a random walk and no candidate beat the naive forecast by 5 % in "
     "the backtest, so the naive forecast (the last value) is returned. A low error here does "
@@ -140,69 +137,6 @@ def _num(value: float) -> float | None:
     return float(value) if np.isfinite(value) else None
 
 
-def selection_training(seasonal_period: int) -> int:
-    """Fewest points before the first selection origin: max(10, 3m) for seasonal series."""
-    if seasonal_period > 1:
-        return max(minimum_training(seasonal_period), 3 * seasonal_period)
-    return minimum_training(seasonal_period)
-
-
-def selection_plan(n: int, horizon: int, origins: int, seasonal_period: int) -> Plan | None:
-    """The widest honest plan: step = horizon if it fits, else smaller, then fewer origins.
-
-    Seasonal candidates get three full seasons before the first origin: with two, AICc
-    rejects every seasonal model for its initial states and the ranking says nothing.
-    """
-    need = selection_training(seasonal_period)
-    for k in range(origins, 0, -1):
-        for step in range(horizon, 0, -1):
-            first = n - horizon - step * (k - 1)
-            if first >= need:
-                return Plan(tuple(first + step * j for j in range(k)), horizon, step)
-            if k == 1:
-                break
-    return None
-
-
-def _feasible_plan(n: int, horizon: int, origins: int, period: int) -> tuple[Plan, bool]:
-    """The selection plan at the requested horizon, else at the longest horizon that fits."""
-    for h in range(horizon, 0, -1):
-        plan = selection_plan(n, h, origins, period)
-        if plan is not None:
-            return plan, h < horizon
-    raise RequestError(
-        f"{n} points are too few to compare models; at least "
-        f"{selection_training(period) + 1} are needed",
-        field="series.values",
-    )
-
-
-def calibration_plan(
-    n: int, horizon: int, seasonal_period: int, first: int | None = None
-) -> Plan | None:
-    """Up to 8 origins for calibration; None when fewer than ``calibration.MINIMUM_ORIGINS`` fit.
-
-    With ``first`` (the selection's first origin) the origins lie between it and n − h, so the
-    models estimated for the selection serve unchanged; otherwise they start where at least
-    half the series is left for estimation, a quarter-horizon (or one step) apart.
-    """
-    last = n - horizon
-    if first is not None:
-        span = last - first
-        if span <= 0:
-            return None
-        step = max(1, math.ceil(span / (CALIBRATION_ORIGINS - 1)))
-        origins = tuple(range(last, first - 1, -step))[::-1]
-        return Plan(origins, horizon, step) if len(origins) >= cal.MINIMUM_ORIGINS else None
-    need = max(minimum_training(seasonal_period), n // 2)
-    for k in range(CALIBRATION_ORIGINS, cal.MINIMUM_ORIGINS - 1, -1):
-        for step in sorted({max(1, horizon // 4), 1}, reverse=True):
-            start = last - step * (k - 1)
-            if start >= need:
-                return Plan(tuple(start + step * j for j in range(k)), horizon, step)
-    return None
-
-
 def _periods(specs: Sequence[Specification], profile: SeriesProfile) -> list[int]:
     """Seasonal naive and STL see the true period; the rest the profile's model period."""
     out = []
@@ -241,15 +175,15 @@ def select(
     specs = _with_benchmarks(list(chosen_set.specifications), profile)
     clock.lap("profile")
 
-    plan, shortened = _feasible_plan(len(y), horizon, origins, profile.benchmark_period)
+    plan, shortened = feasible_plan(len(y), horizon, origins, profile.benchmark_period)
     periods = _periods(specs, profile)
     # One estimation per candidate serves both the ranking (the selection origins) and the
     # calibration (denser origins between the first and the last): only re-filtering is added.
-    dense_plan = _dense(
+    evaluation_plan = dense_plan(
         plan,
         calibration_plan(len(y), plan.horizon, profile.benchmark_period, first=plan.origins[0]),
     )
-    dense = run(y, specs, profile.benchmark_period, dense_plan, levels, map_fn, periods)
+    dense = run(y, specs, profile.benchmark_period, evaluation_plan, levels, map_fn, periods)
     chosen_origins = {y.index[o] for o in plan.origins}
     results = [r.at(chosen_origins) for r in dense]
     clock.lap("backtest")
@@ -366,13 +300,6 @@ def _skill(score: float, benchmark: float) -> float | None:
     return float(1.0 - score / benchmark)
 
 
-def _dense(plan: Plan, extra: Plan | None) -> Plan:
-    """The selection plan with the calibration origins added (same horizon)."""
-    if extra is None:
-        return plan
-    return Plan(tuple(sorted({*plan.origins, *extra.origins})), plan.horizon, plan.step)
-
-
 def _merged(members: Sequence[ModelBacktest]) -> ModelBacktest:
     return combine(members) if len(members) > 1 else members[0]
 
@@ -388,7 +315,7 @@ def _calibrate(
 ) -> cal.Calibration:
     """Coverage and factors from the dense backtest, or from an earlier-starting one when the
     selection origins leave too little room (short series: the extra fits are cheap there)."""
-    if len(dense.forecasts) >= cal.MINIMUM_ORIGINS:
+    if len(dense.forecasts) >= MINIMUM_ORIGINS:
         return cal.calibrate(dense)
     longer = calibration_plan(len(y), horizon, profile.benchmark_period)
     if longer is None:
@@ -435,7 +362,8 @@ def backtest_auto(
     thorough: bool = False,
 ) -> Any:
     """POST /v1/backtests with specifications "auto": the candidates ``select`` would try."""
-    from service.core.backtest import BacktestReport, plan_origins
+    from service.core.backtest import BacktestReport
+    from service.core.origins import plan_origins
 
     check_metric(metric)
     profile = profile_series(y, seasonal_period, diagnostics)

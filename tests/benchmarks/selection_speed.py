@@ -49,8 +49,8 @@ def timed_auto(y: pd.Series, map_fn: object = None) -> tuple[float, dict[str, fl
 
 def refit_vs_refilter(y: pd.Series) -> tuple[float, float]:
     """The winner-sized cost: 3 origins by refitting each time, and by re-filtering."""
-    from service.core.backtest import plan_origins
     from service.core.models.ets import EtsSpec
+    from service.core.origins import plan_origins
 
     spec = EtsSpec("add", "add", True, "add")
     plan = plan_origins(len(y), HORIZON, 3, HORIZON, PERIOD)

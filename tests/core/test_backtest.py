@@ -10,11 +10,12 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from service.core.backtest import backtest, plan_origins
+from service.core.backtest import backtest
 from service.core.errors import RequestError
 from service.core.models.drift import DriftSpec
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
+from service.core.origins import plan_origins
 
 HAND = [3.0, 5.0, 4.0, 6.0, 8.0, 7.0, 6.0, 7.0, 8.0, 7.0, 9.0, 8.0]
 

@@ -12,13 +12,8 @@ from service.core.errors import RequestError
 from service.core.models.drift import DriftSpec
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
-from service.core.selection import (
-    AutoForecast,
-    backtest_auto,
-    calibration_plan,
-    select,
-    selection_plan,
-)
+from service.core.origins import calibration_plan, selection_plan
+from service.core.selection import AutoForecast, backtest_auto, select
 
 
 def monthly(values: np.ndarray) -> pd.Series:
