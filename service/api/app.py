@@ -26,6 +26,21 @@ DESCRIPTION = (
 )
 
 
+def description(settings: Settings) -> str:
+    """The OpenAPI description, with the limits this instance enforces."""
+    return (
+        f"{DESCRIPTION}\n\n"
+        "Limits (from the settings; over a limit is a 413 or 422 problem, a full queue or "
+        "an exceeded time budget a 503 with Retry-After):\n\n"
+        f"- points per series: {settings.max_points} (`WINDVANE_MAX_POINTS`)\n"
+        f"- forecast horizon: {settings.max_horizon} (`WINDVANE_MAX_HORIZON`)\n"
+        f"- request body: {settings.max_body_bytes} bytes (`WINDVANE_MAX_BODY_BYTES`)\n"
+        f"- requests per batch: {settings.max_batch_series} (`WINDVANE_MAX_BATCH_SERIES`)\n"
+        f"- CPU time per request: {settings.fit_seconds:g} s (`WINDVANE_FIT_SECONDS`)\n"
+        f"- requests waiting for a worker: {settings.queue_size} (`WINDVANE_QUEUE_SIZE`)"
+    )
+
+
 def create_app(settings: Settings | None = None) -> FastAPI:
     """A new app with its own settings, pool and routes; nothing is built at import time."""
     settings = settings or Settings()
@@ -63,7 +78,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app = FastAPI(
         title="Windvane",
         version=__version__,
-        description=DESCRIPTION,
+        description=description(settings),
         lifespan=lifespan,
         docs_url="/docs",
         redoc_url=None,

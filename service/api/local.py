@@ -5,7 +5,11 @@ from __future__ import annotations
 from typing import Any
 
 from service import __version__
+from service.api.routes.backtests import backtest_task
+from service.api.routes.diagnostics import diagnostics_task
 from service.api.routes.forecasts import forecast_task
+from service.api.schemas.backtests import BacktestRequest
+from service.api.schemas.diagnostics import DiagnosticsRequest
 from service.api.schemas.forecasts import ForecastRequest
 from service.config import Settings
 from service.runtime import jobs
@@ -26,4 +30,14 @@ def answer(path: str, raw: str, settings: Settings | None = None) -> dict[str, A
             "library_versions": runtime_versions(),
         }
         return body
+    if path == "/v1/diagnostics":
+        diagnostics = diagnostics_task(DiagnosticsRequest.model_validate_json(raw), settings)
+        found = jobs.diagnostics(diagnostics)
+        found["data_hash"] = data_key(diagnostics.y).label
+        return found
+    if path == "/v1/backtests":
+        backtest = backtest_task(BacktestRequest.model_validate_json(raw), settings)
+        found = jobs.backtests(backtest)
+        found["data_hash"] = data_key(backtest.y).label
+        return found
     raise ValueError(f"no local answer for {path}")

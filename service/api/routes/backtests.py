@@ -2,10 +2,11 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Annotated, Any
 
-from fastapi import APIRouter
+from fastapi import APIRouter, Body
 
+from service.api import examples
 from service.api.convert import parsed_series, specification
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.routes.forecasts import PROBLEMS
@@ -18,12 +19,26 @@ from service.runtime.keys import data_key
 router = APIRouter(prefix="/v1", tags=["backtests"])
 
 
-@router.post("/backtests", summary="Backtest models on a series", responses=PROBLEMS)
+@router.post(
+    "/backtests",
+    summary="Backtest models on a series",
+    responses={**PROBLEMS, **examples.response_example("backtest")},
+)
 async def create_backtest(
-    body: BacktestRequest, pool: PoolDep, settings: SettingsDep
+    body: Annotated[BacktestRequest, Body(openapi_examples=examples.request_examples("backtest"))],
+    pool: PoolDep,
+    settings: SettingsDep,
 ) -> dict[str, Any]:
     """Rolling-origin evaluation: per model and per step MAE, RMSE, MASE, sMAPE, interval
     coverage and scaled interval score, with a ranking by the chosen metric."""
+    task = backtest_task(body, settings)
+    result = await pool.run(jobs.backtests, task)
+    result["data_hash"] = data_key(task.y).label
+    return result
+
+
+def backtest_task(body: BacktestRequest, settings: Any) -> jobs.BacktestTask:
+    """Check the request and build the worker's task."""
     series = parsed_series(body.series, settings)
     specs = None
     if body.models != "auto":
@@ -40,6 +55,4 @@ async def create_backtest(
         coverage=check_coverage(body.coverage),
         metric=body.metric,
     )
-    result = await pool.run(jobs.backtests, task)
-    result["data_hash"] = data_key(series.y).label
-    return result
+    return task

@@ -4,10 +4,11 @@ from __future__ import annotations
 
 import asyncio
 import json
-from typing import Any
+from typing import Annotated, Any
 
-from fastapi import APIRouter, Request, Response
+from fastapi import APIRouter, Body, Request, Response
 
+from service.api import examples
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.problems import problem_response
 from service.api.routes.forecasts import PROBLEMS, answer_forecast
@@ -26,7 +27,10 @@ router = APIRouter(prefix="/v1", tags=["forecasts"])
     responses=PROBLEMS,
 )
 async def create_batch(
-    body: BatchRequest, pool: PoolDep, settings: SettingsDep, request: Request
+    body: Annotated[BatchRequest, Body(openapi_examples=examples.request_examples("batch"))],
+    pool: PoolDep,
+    settings: SettingsDep,
+    request: Request,
 ) -> dict[str, Any]:
     """Answer each request as POST /v1/forecasts would; a failing one becomes a problem item
     and the others still succeed. At most as many run at once as the pool has workers."""

@@ -2,10 +2,11 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Annotated, Any
 
-from fastapi import APIRouter
+from fastapi import APIRouter, Body
 
+from service.api import examples
 from service.api.convert import parsed_series
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.routes.forecasts import PROBLEMS
@@ -16,16 +17,29 @@ from service.runtime.keys import data_key
 router = APIRouter(prefix="/v1", tags=["diagnostics"])
 
 
-@router.post("/diagnostics", summary="Diagnose a series", responses=PROBLEMS)
+@router.post(
+    "/diagnostics",
+    summary="Diagnose a series",
+    responses={**PROBLEMS, **examples.response_example("diagnostics")},
+)
 async def create_diagnostics(
-    body: DiagnosticsRequest, pool: PoolDep, settings: SettingsDep
+    body: Annotated[
+        DiagnosticsRequest, Body(openapi_examples=examples.request_examples("diagnostics"))
+    ],
+    pool: PoolDep,
+    settings: SettingsDep,
 ) -> dict[str, Any]:
     """Stationarity, differencing, autocorrelation, seasonality, outliers and whether the
     series is a random walk, each verdict with its evidence and a plain-sentence finding."""
+    task = diagnostics_task(body, settings)
+    result = await pool.run(jobs.diagnostics, task)
+    result["data_hash"] = data_key(task.y).label
+    return result
+
+
+def diagnostics_task(body: DiagnosticsRequest, settings: Any) -> jobs.DiagnosticsTask:
+    """Check the request and build the worker's task."""
     series = parsed_series(body.series, settings)
-    task = jobs.DiagnosticsTask(
+    return jobs.DiagnosticsTask(
         series.y, series.seasonal_period, body.max_lag, "components" in body.include
     )
-    result = await pool.run(jobs.diagnostics, task)
-    result["data_hash"] = data_key(series.y).label
-    return result

@@ -3,12 +3,12 @@
 from __future__ import annotations
 
 import asyncio
-from typing import Any
+from typing import Annotated, Any
 
-from fastapi import APIRouter, Request, Response
+from fastapi import APIRouter, Body, Request, Response
 
 from service import __version__
-from service.api import caching
+from service.api import caching, examples
 from service.api.convert import parsed_series, specification
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.schemas.common import Problem
@@ -119,10 +119,13 @@ async def _computed(request: Request, pool: Any, task: jobs.ForecastTask) -> dic
 
 
 @router.post(
-    "/forecasts", summary="Forecast a series", response_model=ForecastResponse, responses=PROBLEMS
+    "/forecasts",
+    summary="Forecast a series",
+    response_model=ForecastResponse,
+    responses={**PROBLEMS, **examples.response_example("forecast")},
 )
 async def create_forecast(
-    body: ForecastRequest,
+    body: Annotated[ForecastRequest, Body(openapi_examples=examples.request_examples("forecast"))],
     pool: PoolDep,
     settings: SettingsDep,
     request: Request,
