@@ -16,6 +16,7 @@ import numpy as np
 from scipy import optimize, signal
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 
+from service.core.arma_likelihood import DENSE_LIMIT, ArmaShape, dense_fit
 from service.core.models.base import FitWarning
 
 
@@ -242,10 +243,60 @@ def exact_estimate(
     n = int(np.isfinite(w).sum())
     if not names:
         return _white_noise(w, orders, n)
-    seasonal = (orders.P, 0, orders.Q, orders.m) if orders.P or orders.Q else (0, 0, 0, 0)
     start_params = None
     if start is not None and start.converged and admissible(start):
         start_params = np.asarray(start.values, dtype=float)
+    if w.size <= DENSE_LIMIT:
+        return _dense_estimate(w, xd, orders, names, start_params, maxiter, tight)
+    return _filter_estimate(w, xd, orders, names, start_params, maxiter, tight)
+
+
+def _dense_estimate(
+    w: np.ndarray,
+    xd: np.ndarray | None,
+    orders: ArimaOrders,
+    names: tuple[str, ...],
+    start_params: np.ndarray | None,
+    maxiter: int,
+    tight: bool,
+) -> Estimate:
+    """Exact likelihood through the autocovariance matrix: same optimum as the filter, 2-5 x
+    cheaper per fit at n = 200 (tests/benchmarks/arima.py)."""
+    k_exog = len(names) - orders.arma_count
+    arma0 = np.zeros(orders.arma_count) if start_params is None else start_params[k_exog:]
+    shape = ArmaShape(orders.p, orders.q, orders.P, orders.Q, orders.m)
+    found = dense_fit(shape, w, xd, arma0, maxiter, tight)
+    n = int(np.isfinite(w).sum())
+    values = tuple(float(v) for v in np.r_[found.beta, found.arma])
+    aic, aicc, bic = information_criteria(found.loglik, len(values) + 1, n)
+    return Estimate(
+        orders,
+        names,
+        values,
+        found.sigma2,
+        found.loglik,
+        n,
+        aic,
+        aicc,
+        bic,
+        "exact",
+        found.converged,
+        found.evaluations,
+    )
+
+
+def _filter_estimate(
+    w: np.ndarray,
+    xd: np.ndarray | None,
+    orders: ArimaOrders,
+    names: tuple[str, ...],
+    start_params: np.ndarray | None,
+    maxiter: int,
+    tight: bool,
+) -> Estimate:
+    """Exact likelihood by SARIMAX's Kalman filter: for series too long for a dense matrix."""
+    n = int(np.isfinite(w).sum())
+    seasonal = (orders.P, 0, orders.Q, orders.m) if orders.P or orders.Q else (0, 0, 0, 0)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:

@@ -1,0 +1,196 @@
+"""Exact Gaussian likelihood of a stationary ARMA through its autocovariance matrix.
+
+The same likelihood as a Kalman filter with a stationary start (what SARIMAX computes on
+the differenced series), but a few dense LAPACK calls per evaluation instead of a filter
+step per observation: about 0.3 ms at n = 200 against 3-6 ms. The regression coefficients
+and σ² are concentrated out by generalised least squares, so the optimiser sees only the
+ARMA coefficients, kept stationary and invertible by Monahan's (1984) transform. The
+dense Cholesky costs O(n³): beyond ``DENSE_LIMIT`` observations callers use the filter.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import linalg, optimize, signal
+from scipy.linalg import lapack
+from statsmodels.tsa.statespace.tools import (
+    constrain_stationary_univariate,
+    unconstrain_stationary_univariate,
+)
+
+DENSE_LIMIT = 600
+
+
+@dataclass(frozen=True)
+class ArmaShape:
+    """Orders of the four lag polynomials and the seasonal period."""
+
+    p: int
+    q: int
+    P: int
+    Q: int
+    m: int
+
+
+@dataclass(frozen=True)
+class DenseFit:
+    """Maximum-likelihood ARMA coefficients, the concentrated regression and σ², and how it went."""
+
+    arma: np.ndarray
+    beta: np.ndarray
+    sigma2: float
+    loglik: float
+    converged: bool
+    evaluations: int
+
+
+def autocovariances(ar_poly: np.ndarray, ma_poly: np.ndarray, nobs: int) -> np.ndarray:
+    """γ(0..nobs-1) of φ(L)x = θ(L)e with unit innovation variance (Brockwell & Davis 3.3).
+
+    Solves for the first max(p, q) + 1 lags exactly, then runs the AR recursion.
+    """
+    p, q = ar_poly.size - 1, ma_poly.size - 1
+    k = max(p, q) + 1
+    impulse = np.zeros(k)
+    impulse[0] = 1.0
+    psi = signal.lfilter(ma_poly, ar_poly, impulse)
+    b = np.array([ma_poly[j:] @ psi[: q + 1 - j] if j <= q else 0.0 for j in range(k)])
+    rows, cols = np.meshgrid(np.arange(k), np.arange(p + 1), indexing="ij")
+    a = np.zeros((k, k))
+    np.add.at(a, (rows, np.abs(rows - cols)), ar_poly[cols])
+    gamma = np.zeros(max(nobs, k))
+    gamma[:k] = np.linalg.solve(a, b)
+    if nobs > k and p:
+        # lfilter's state for past outputs γ(k-1), ..., γ(k-p) of the all-pole recursion.
+        past = gamma[k - 1 :: -1][:p]
+        zi = np.array([-(ar_poly[j + 1 :] @ past[: p - j]) for j in range(p)])
+        gamma[k:] = signal.lfilter([1.0], ar_poly, np.zeros(nobs - k), zi=zi)[0]
+    return gamma[:nobs]
+
+
+def polynomials(shape: ArmaShape, arma: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """φ(L)Φ(L^m) and θ(L)Θ(L^m) in increasing powers (SARIMAX sign conventions)."""
+    p, q, P, Q, m = shape.p, shape.q, shape.P, shape.Q, shape.m
+    seasonal_ar = np.zeros(m * P + 1)
+    seasonal_ar[0] = 1.0
+    seasonal_ar[m::m] = -arma[p + q : p + q + P]
+    seasonal_ma = np.zeros(m * Q + 1)
+    seasonal_ma[0] = 1.0
+    seasonal_ma[m::m] = arma[p + q + P :]
+    ar = np.concatenate(([1.0], -arma[:p]))
+    ma = np.concatenate(([1.0], arma[p : p + q]))
+    return np.convolve(ar, seasonal_ar), np.convolve(ma, seasonal_ma)
+
+
+def _blocks(shape: ArmaShape) -> tuple[tuple[int, int, float], ...]:
+    """(start, length, sign) of each polynomial block; MA blocks flip sign (θ = -φ form)."""
+    out, at = [], 0
+    for length, sign in ((shape.p, 1.0), (shape.q, -1.0), (shape.P, 1.0), (shape.Q, -1.0)):
+        out.append((at, length, sign))
+        at += length
+    return tuple(out)
+
+
+def constrain(shape: ArmaShape, free: np.ndarray) -> np.ndarray:
+    """Unconstrained optimiser values to stationary AR and invertible MA coefficients."""
+    out = np.empty_like(free)
+    for at, length, sign in _blocks(shape):
+        if length:
+            out[at : at + length] = sign * constrain_stationary_univariate(free[at : at + length])
+    return out
+
+
+def unconstrain(shape: ArmaShape, arma: np.ndarray) -> np.ndarray:
+    """Inverse of ``constrain`` (the coefficients must be admissible)."""
+    out = np.empty_like(arma)
+    for at, length, sign in _blocks(shape):
+        if length:
+            block = sign * arma[at : at + length]
+            out[at : at + length] = unconstrain_stationary_univariate(block)
+    return out
+
+
+@dataclass(frozen=True)
+class _Profile:
+    loglik: float
+    beta: np.ndarray
+    sigma2: float
+
+
+def profile(
+    shape: ArmaShape, arma: np.ndarray, w: np.ndarray, x: np.ndarray | None, finite: np.ndarray
+) -> _Profile:
+    """Log-likelihood with β and σ² at their GLS optimum for these ARMA coefficients."""
+    ar_poly, ma_poly = polynomials(shape, arma)
+    gamma = autocovariances(ar_poly, ma_poly, w.size)
+    cov = linalg.toeplitz(gamma)
+    if not finite.all():
+        cov = cov[np.ix_(finite, finite)]
+    # LAPACK directly: the checked wrappers cost as much as the factorisation at n = 200.
+    factor, info = lapack.dpotrf(cov, lower=1, clean=1, overwrite_a=1)
+    if info != 0:
+        raise np.linalg.LinAlgError("autocovariance matrix not positive definite")
+    rhs = w[finite, None] if x is None else np.column_stack((w[finite], x[finite]))
+    solved, info = lapack.dtrtrs(factor, rhs, lower=1)
+    if info != 0:
+        raise np.linalg.LinAlgError("singular autocovariance factor")
+    z = solved[:, 0]
+    beta = np.zeros(0)
+    if x is not None:
+        zx = solved[:, 1:]
+        beta = np.linalg.solve(zx.T @ zx, zx.T @ z)
+        z = z - zx @ beta
+    n = z.size
+    sigma2 = float(z @ z) / n
+    logdet = 2.0 * float(np.sum(np.log(np.diag(factor))))
+    loglik = -0.5 * n * (math.log(2.0 * math.pi * sigma2) + 1.0) - 0.5 * logdet
+    return _Profile(loglik, beta, sigma2)
+
+
+def dense_fit(
+    shape: ArmaShape,
+    w: np.ndarray,
+    x: np.ndarray | None,
+    start: np.ndarray,
+    maxiter: int,
+    tight: bool,
+) -> DenseFit:
+    """Maximise the exact likelihood over the ARMA coefficients from an admissible ``start``.
+
+    Raises ArithmeticError when the likelihood cannot be evaluated.
+    """
+    w = np.asarray(w, dtype=float)
+    finite = np.isfinite(w)
+    w = np.where(finite, w, 0.0)
+    n = int(finite.sum())
+    evaluations = 0
+
+    def objective(free: np.ndarray) -> float:
+        nonlocal evaluations
+        evaluations += 1
+        try:
+            found = profile(shape, constrain(shape, free), w, x, finite)
+        except (np.linalg.LinAlgError, ValueError):
+            return 1e10
+        return -found.loglik / n if math.isfinite(found.loglik) else 1e10
+
+    free0 = unconstrain(shape, np.asarray(start, dtype=float))
+    converged = True
+    if free0.size:
+        options = {"maxiter": maxiter, "gtol": 1e-8 if tight else 1e-5}
+        if tight:
+            options["ftol"] = 1e-13
+        with np.errstate(all="ignore"):
+            solution = optimize.minimize(objective, free0, method="L-BFGS-B", options=options)
+        free0, converged = solution.x, bool(solution.success)
+    arma = constrain(shape, free0)
+    try:
+        found = profile(shape, arma, w, x, finite)
+    except (np.linalg.LinAlgError, ValueError) as exc:
+        raise ArithmeticError(f"exact likelihood failed: {exc}") from exc
+    if not math.isfinite(found.loglik):
+        raise ArithmeticError("non-finite exact log-likelihood")
+    return DenseFit(arma, found.beta, found.sigma2, found.loglik, converged, evaluations)
