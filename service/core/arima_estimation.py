@@ -186,10 +186,15 @@ def css_estimate(
         v = np.convolve(u, ar_poly, mode="valid")
         return np.asarray(signal.lfilter([1.0], ma_poly, v))[skip:]
 
+    def jacobian(x: np.ndarray) -> np.ndarray:
+        return _css_jacobian(w, xd, orders, x, skip)
+
     names = coefficient_names(orders, regressor_names)
     if x0.size and n - max(ncond, score_from) > x0.size:
         with np.errstate(all="ignore"):
-            solution = optimize.least_squares(residuals, x0, method="lm", max_nfev=100 * x0.size)
+            solution = optimize.least_squares(
+                residuals, x0, jac=jacobian, method="lm", max_nfev=100 * x0.size
+            )
         x, iterations, converged = solution.x, int(solution.nfev), bool(solution.success)
     else:
         x, iterations, converged = x0, 0, True
@@ -213,6 +218,50 @@ def css_estimate(
         bool(valid),
         iterations,
     )
+
+
+def _css_jacobian(
+    w: np.ndarray, xd: np.ndarray | None, orders: ArimaOrders, x: np.ndarray, skip: int
+) -> np.ndarray:
+    """Analytic derivatives of the CSS residuals, one filter per coefficient: numerical ones
+    took k + 1 residual evaluations per step and made each CSS fit 4-8 x slower."""
+    k_exog = 0 if xd is None else xd.shape[1]
+    arma = x[k_exog:]
+    p, q, P, Q, m = orders.p, orders.q, orders.P, orders.Q, orders.m
+    u = w - xd @ x[:k_exog] if xd is not None else w
+    ar_poly, ma_poly = lag_polynomials(orders, arma)
+    e = signal.lfilter([1.0], ma_poly, np.convolve(u, ar_poly, mode="valid"))
+    regular_ar = np.r_[1.0, -arma[:p]]
+    seasonal_ar = np.zeros(m * P + 1)
+    seasonal_ar[0] = 1.0
+    seasonal_ar[m::m] = -arma[p + q : p + q + P]
+    regular_ma = np.r_[1.0, arma[p : p + q]]
+    seasonal_ma = np.zeros(m * Q + 1)
+    seasonal_ma[0] = 1.0
+    seasonal_ma[m::m] = arma[p + q + P :]
+    columns = []
+    for k in range(k_exog):
+        dv = np.convolve(-xd[:, k], ar_poly, mode="valid")  # type: ignore[index]
+        columns.append(signal.lfilter([1.0], ma_poly, dv))
+
+    # d(ar_poly)/dφ_i = -L^i Φ(L^m), d(ar_poly)/dΦ_j = -L^(mj) φ(L): padded to ar_poly's length
+    # so that the 'valid' convolution has the residuals' length.
+    def by_ar(shift: int, other: np.ndarray) -> np.ndarray:
+        dpoly = np.zeros(ar_poly.size)
+        dpoly[shift : shift + other.size] = -other
+        return np.asarray(signal.lfilter([1.0], ma_poly, np.convolve(u, dpoly, mode="valid")))
+
+    # θ(L)Θ(L^m) e = v, so d e = -(d ma_poly / ma_poly) e.
+    def by_ma(shift: int, other: np.ndarray) -> np.ndarray:
+        dpoly = np.zeros(shift + other.size)
+        dpoly[shift:] = other
+        return -np.asarray(signal.lfilter(dpoly, ma_poly, e))
+
+    columns += [by_ar(i, seasonal_ar) for i in range(1, p + 1)]
+    columns += [by_ma(i, seasonal_ma) for i in range(1, q + 1)]
+    columns += [by_ar(m * j, regular_ar) for j in range(1, P + 1)]
+    columns += [by_ma(m * j, regular_ma) for j in range(1, Q + 1)]
+    return np.column_stack(columns)[skip:]
 
 
 def admissible(estimate: Estimate) -> bool:

@@ -29,9 +29,14 @@ from service.core.arima_estimation import (
     exact_estimate,
 )
 from service.core.differencing import DifferencingOrders, orders_from
-from service.core.errors import FitError
+from service.core.errors import FitError, SpecificationError
 from service.core.models.base import FitWarning
 from service.core.seasonality import decompose
+
+EFFORTS: dict[str, str] = {
+    "thorough": "CSS-screened stepwise walk, then an exact walk around the exact winner",
+    "quick": "stepwise walk on CSS AICc, exact fits of the two best CSS orders only",
+}
 
 
 @dataclass(frozen=True)
@@ -80,6 +85,7 @@ class SearchLimits:
     finalists: int = 3
     exact_maxiter: int = 30
     screen: bool = True
+    quick_finalists: int = 2
 
 
 def choose_differencing(y: np.ndarray, seasonal_period: int) -> DifferencingChoice:
@@ -115,8 +121,18 @@ def search_orders(
     regressors: np.ndarray | None = None,
     regressor_names: tuple[str, ...] = (),
     limits: SearchLimits | None = None,
+    effort: str = "thorough",
 ) -> OrderSearchResult:
-    """Choose a seasonal ARIMA order for ``y`` by AICc; given orders stay fixed."""
+    """Choose a seasonal ARIMA order for ``y`` by AICc; given orders stay fixed.
+
+    ``effort="thorough"`` screens by CSS, then walks exactly around the exact winner;
+    ``"quick"`` walks on CSS AICc alone and fits only the best two CSS orders exactly
+    (Hyndman & Khandakar 2008, sec. 3.2's approximation): see ``EFFORTS`` for cost and accuracy.
+    """
+    if effort not in EFFORTS:
+        raise SpecificationError(
+            f"search effort must be one of {list(EFFORTS)}, got {effort!r}", field="model.search"
+        )
     limits = limits or SearchLimits()
     m = seasonal_period if seasonal_period > 1 else 1
     values = np.asarray(y, dtype=float)
@@ -163,7 +179,12 @@ def search_orders(
     )
     starts = _starting_points(order, seasonal_order, seasonal_ok, m)
     clock = time.perf_counter()
-    if limits.screen:
+    if effort == "quick":
+        walk.css_walk(starts)
+        stages["screening"] = time.perf_counter() - clock
+        clock = time.perf_counter()
+        winner = walk.quick_stage()
+    elif limits.screen:
         walk.css_walk(starts)
         stages["screening"] = time.perf_counter() - clock
         clock = time.perf_counter()
@@ -381,6 +402,20 @@ class _Walk:
                     best, improved = other, True
                     break
         return self._winner(best)
+
+    def quick_stage(self) -> Estimate:
+        """Exact fits of the best CSS orders only (a few ms each); the lowest exact AICc wins."""
+        ranked = sorted(self.css, key=lambda o: self.css[o].aicc)
+        for orders in ranked[: self.limits.quick_finalists]:
+            self.exact_score(orders)
+        fitted = [o for o, est in self.exact.items() if est is not None]
+        if not fitted:
+            # Both finalists failed: fall back to the exact walk's safety net, one at a time.
+            for orders in ranked[self.limits.quick_finalists :]:
+                if math.isfinite(self.exact_score(orders)):
+                    fitted = [orders]
+                    break
+        return self._winner(min(fitted, key=self.exact_score) if fitted else ranked[0])
 
     def _winner(self, best: ArimaOrders) -> Estimate:
         winner = self.exact.get(best)
