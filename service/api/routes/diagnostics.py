@@ -39,7 +39,11 @@ async def create_diagnostics(
 
 def diagnostics_task(body: DiagnosticsRequest, settings: Any) -> jobs.DiagnosticsTask:
     """Check the request and build the worker's task."""
-    series = parsed_series(body.series, settings)
+    # The core interpolates on its own and says so; it must see which values were missing.
+    wire = body.series
+    if wire.missing == "interpolate":
+        wire = wire.model_copy(update={"missing": "keep"})
+    series = parsed_series(wire, settings)
     return jobs.DiagnosticsTask(
         series.y, series.seasonal_period, body.max_lag, "components" in body.include
     )
