@@ -6,10 +6,13 @@ from collections.abc import Iterator
 
 import numpy as np
 import pytest
+from statsmodels.tsa.statespace.sarimax import SARIMAX
 from threadpoolctl import threadpool_limits
 
 from service.core.arima_estimation import ArimaOrders, css_estimate, difference
 from service.core.arima_search import SearchLimits, search_orders
+from service.core.arma_likelihood import ArmaShape, profile
+from service.core.errors import SpecificationError
 
 
 @pytest.fixture(autouse=True)
@@ -75,3 +78,26 @@ def test_difference_removes_d_plus_m_times_big_d_points() -> None:
     x = np.arange(40.0) ** 2
     assert difference(x, 1, 1, 12).size == 40 - 13
     assert np.allclose(difference(x, 2, 0, 1), 2.0)
+
+
+def test_quick_search_recovers_the_ar2_with_two_exact_fits() -> None:
+    result = search_orders(ar2(), 1, effort="quick")
+    assert (result.orders.p, result.orders.d, result.orders.q) == (2, 0, 0)
+    assert result.estimate.method == "exact"
+    assert sum(row.exact_aicc is not None for row in result.table) <= 2
+
+
+def test_unknown_search_effort_names_the_field() -> None:
+    with pytest.raises(SpecificationError) as caught:
+        search_orders(ar2(), 1, effort="fast")
+    assert caught.value.problems[0].field == "model.search"
+
+
+def test_dense_likelihood_matches_the_kalman_filter() -> None:
+    # Same exact likelihood two ways: autocovariance matrix and SARIMAX's stationary filter.
+    w = ar2() - 10
+    shape = ArmaShape(1, 1, 0, 0, 1)
+    arma = np.array([0.4, 0.3])
+    found = profile(shape, arma, w, None, np.isfinite(w))
+    model = SARIMAX(w, order=(1, 0, 1), trend="n", concentrate_scale=True)
+    assert found.loglik == pytest.approx(model.loglike(arma), abs=1e-8)

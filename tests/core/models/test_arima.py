@@ -35,8 +35,11 @@ def test_fixed_seasonal_order_matches_sarimax_on_the_differenced_series() -> Non
     fitted = ArimaSpec(order=(1, 1, 0), seasonal_order=(0, 1, 1)).fit(y, 12)
     w = np.diff(y.to_numpy())[12:] - np.diff(y.to_numpy())[:-12]
     direct = SARIMAX(w, order=(1, 0, 0), seasonal_order=(0, 0, 1, 12)).fit(disp=False)
-    assert_allclose(fitted.estimate.values, direct.params[:2], atol=1e-3)
-    assert_allclose(fitted.estimate.sigma2, direct.params[2], rtol=1e-3)
+    # The seasonal MA sits at the unit-root boundary (-0.999), where the likelihood is flat:
+    # the two optimisers agree to 1e-5 in log-likelihood, a little less in the coefficients.
+    assert_allclose(fitted.estimate.loglik, direct.llf, atol=1e-4)
+    assert_allclose(fitted.estimate.values, direct.params[:2], atol=2e-3)
+    assert_allclose(fitted.estimate.sigma2, direct.params[2], rtol=2e-3)
     assert fitted.describe().label == "ARIMA(1,1,0)x(0,1,1)12"
 
 
@@ -177,3 +180,12 @@ def test_searched_orders_on_a_short_seasonal_series_warn_and_stay_non_seasonal()
     fitted = ArimaSpec().fit(monthly(26), 12)
     assert fitted.orders.P == fitted.orders.Q == fitted.orders.D == 0
     assert any(w.code == "seasonal_terms_skipped" for w in fitted.warnings)
+
+
+def test_quick_search_is_a_catalogued_choice_and_fits() -> None:
+    fitted = ArimaSpec(search="quick").fit(monthly(), 12)
+    assert fitted.search is not None
+    assert sum(row.exact_aicc is not None for row in fitted.search.table) <= 2
+    with pytest.raises(SpecificationError) as caught:
+        ArimaSpec(search="fast")
+    assert caught.value.problems[0].field == "model.search"
