@@ -22,7 +22,7 @@ from scipy import optimize, stats
 
 from service.core.errors import FitError, SpecificationError
 from service.core.intervals import Interval, normal_quantile
-from service.core.models.base import Description, Fitted, FitWarning, Forecast
+from service.core.models.base import Description, Fitted, FitWarning, Forecast, residuals_from
 
 KINDS = ("none", "log", "boxcox")
 _VARIANCE_LEVEL = 0.8
@@ -211,11 +211,7 @@ class TransformedFitted:
 
     def residuals(self) -> pd.Series:
         """Observed minus back-transformed fit, on the original scale."""
-        return pd.Series(
-            self.y.to_numpy(dtype=float) - self.fitted_values().to_numpy(),
-            index=self.y.index,
-            name="residuals",
-        )
+        return residuals_from(self.y, self.fitted_values())
 
     def refilter(self, y: pd.Series) -> TransformedFitted:
         """The same λ and inner parameters on another history."""

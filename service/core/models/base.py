@@ -129,6 +129,13 @@ def _jsonable(value: Any) -> Any:
     return value
 
 
+def residuals_from(y: pd.Series, fitted: pd.Series) -> pd.Series:
+    """Observed minus fitted on the series' index (the residuals every family reports)."""
+    return pd.Series(
+        y.to_numpy(dtype=float) - fitted.to_numpy(dtype=float), index=y.index, name="residuals"
+    )
+
+
 def future_index(index: pd.DatetimeIndex, horizon: int) -> pd.DatetimeIndex:
     """The ``horizon`` timestamps that continue a regular index at its frequency."""
     freq = index.freq

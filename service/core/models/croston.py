@@ -26,6 +26,7 @@ from service.core.models.base import (
     as_dict,
     future_index,
     parameter,
+    residuals_from,
 )
 from service.core.models.simple import ljung_box_summary, timed
 
@@ -154,11 +155,7 @@ class CrostonFitted:
 
     def residuals(self) -> pd.Series:
         """Observed minus one-step fitted."""
-        return pd.Series(
-            self.y.to_numpy(dtype=float) - self.fitted_values().to_numpy(),
-            index=self.y.index,
-            name="residuals",
-        )
+        return residuals_from(self.y, self.fitted_values())
 
     def refilter(self, y: pd.Series) -> CrostonFitted:
         """The same α and conventions on another history."""

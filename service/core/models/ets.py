@@ -29,6 +29,7 @@ from service.core.models.base import (
     as_dict,
     future_index,
     parameter,
+    residuals_from,
 )
 from service.core.models.library_warnings import captured
 from service.core.models.simple import ljung_box_summary
@@ -462,11 +463,7 @@ class EtsFitted:
 
     def residuals(self) -> pd.Series:
         """Observed minus one-step fitted, on the data scale (also for multiplicative error)."""
-        return pd.Series(
-            self.y.to_numpy(dtype=float) - self.fitted_values().to_numpy(),
-            index=self.y.index,
-            name="residuals",
-        )
+        return residuals_from(self.y, self.fitted_values())
 
     def refilter(self, y: pd.Series) -> EtsFitted:
         """The same smoothing parameters and initial states run through another history."""
