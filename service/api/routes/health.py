@@ -14,13 +14,31 @@ from service.api.problems import problem_response
 router = APIRouter(tags=["operations"])
 
 
-@router.get("/healthz", summary="Liveness")
+@router.get(
+    "/healthz",
+    summary="Liveness",
+    responses={200: {"content": {"application/json": {"example": {"status": "ok"}}}}},
+)
 async def healthz() -> dict[str, str]:
     """The process answers; says nothing about its dependencies."""
     return {"status": "ok"}
 
 
-@router.get("/readyz", summary="Readiness", responses={503: {"description": "Not ready"}})
+READY_EXAMPLE = {
+    "status": "ready",
+    "checks": {"pool": "ok", "cache": "ok"},
+    "details": {"pool": {"workers": 2, "busy": 0, "queued": 0}, "cache": {"enabled": True}},
+}
+
+
+@router.get(
+    "/readyz",
+    summary="Readiness",
+    responses={
+        200: {"content": {"application/json": {"example": READY_EXAMPLE}}},
+        503: {"description": "Not ready", "content": {"application/problem+json": {}}},
+    },
+)
 async def readyz(request: Request, pool: PoolDep, cache: CacheDep) -> Any:
     """Ready when the worker pool is alive; a cache that could not be written is a detail."""
     checks = {"pool": "ok" if pool.alive() else "broken"}
@@ -36,7 +54,19 @@ async def readyz(request: Request, pool: PoolDep, cache: CacheDep) -> Any:
     return response
 
 
-@router.get("/metrics", summary="Prometheus metrics", response_class=PlainTextResponse)
+METRICS_EXAMPLE = (
+    "# HELP windvane_requests_total HTTP requests by route template, method and status code.\n"
+    "# TYPE windvane_requests_total counter\n"
+    'windvane_requests_total{method="POST",route="/v1/forecasts",status="200"} 12.0\n'
+)
+
+
+@router.get(
+    "/metrics",
+    summary="Prometheus metrics",
+    response_class=PlainTextResponse,
+    responses={200: {"content": {"text/plain": {"example": METRICS_EXAMPLE}}}},
+)
 async def metrics(telemetry: TelemetryDep) -> Response:
     """The Prometheus text exposition of this server (every process when several run)."""
     return Response(telemetry.exposition(), media_type=telemetry.content_type)

@@ -11,7 +11,15 @@ from service.core.models.registry import catalogue
 router = APIRouter(prefix="/v1", tags=["models"])
 
 
-@router.get("/models", summary="Model families and their parameters")
+# One real entry of the catalogue (no statistics: the registry's field metadata).
+CATALOGUE_EXAMPLE = {"families": [c for c in catalogue() if c["family"] == "croston"]}
+
+
+@router.get(
+    "/models",
+    summary="Model families and their parameters",
+    responses={200: {"content": {"application/json": {"example": CATALOGUE_EXAMPLE}}}},
+)
 async def list_models() -> dict[str, Any]:
     """Every family Windvane can fit, with its parameters, defaults and constraints."""
     return {"families": catalogue()}
