@@ -73,8 +73,11 @@ def test_selection_reports_ranking_skill_and_calibration(seasonal_result: AutoFo
     assert sel.skill_over_naive == pytest.approx(1 - chosen_score / bench_score)
     assert sel.calibration is not None
     assert [lv.coverage for lv in sel.calibration.levels] == [0.8, 0.95]
+    labels = [r["label"] for r in data["ranking"]]
+    assert sel.chosen in labels
     if sel.rule == "combination":
-        assert data["ranking"][0]["label"] == sel.chosen
+        # Every non-benchmark candidate is a member; drift and the naive forecasts never are.
+        assert not any(f in sel.chosen for f in ("Drift", "Naive"))
     lower, upper = result.forecast.intervals[1].lower, result.forecast.intervals[1].upper
     assert np.all(lower <= result.forecast.point) and np.all(result.forecast.point <= upper)
 

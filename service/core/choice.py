@@ -1,0 +1,115 @@
+"""The selection's decision: the equal-weight combination by default, one model only on evidence.
+
+Forecast combination is the most robust finding of the forecasting competitions (Makridakis,
+Spiliotis & Assimakopoulos 2020 on M4; Petropoulos & Svetunkov 2020): picking the single best
+of a few backtest origins chases noise, averaging does not. So:
+
+- Members of the combination: every working candidate except the benchmarks (naive, seasonal
+  naive, drift, mean), e.g. ETS, Theta and the SES/Holt/damped average; equal weights.
+- A single model replaces the combination only when its pooled backtest score is at least
+  ``SINGLE_MARGIN`` (10 %) lower AND it is better at a majority of the origins: a clear margin
+  over several origins, not one lucky window.
+- Drift is a benchmark only in the default candidate set: it is never combined nor chosen
+  (it won short backtests on series with chance trends and then lost out of sample).
+- Ties (scores within ``TIE`` of each other) go to the simpler model (fewer parameters).
+
+Tried and measured (tests/benchmarks/accuracy.py): combining the top 3 by backtest score
+(mean MASE 1.129), picking the backtest winner (1.116); see the module docstring of
+selection.py for the figures of the rule kept.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from service.core.averaging import combine
+from service.core.backtest import ModelBacktest, RankEntry
+from service.core.models.base import Specification
+
+SINGLE_MARGIN = 0.10
+TIE = 0.01
+MIN_WINDOWS = 5
+"""Disjoint backtest windows needed before a single model may replace the combination."""
+BENCHMARK_FAMILIES = frozenset({"naive", "seasonal_naive", "drift", "mean"})
+NEVER_CHOSEN = frozenset({"drift"})
+"""Families left out of the choice in the default candidate set (always in the ranking)."""
+SIMPLICITY = ("naive", "seasonal_naive", "mean", "drift", "croston", "theta", "ets", "arima")
+"""Simpler first: the order ties are broken in."""
+
+
+@dataclass(frozen=True)
+class Choice:
+    """Which candidates (indices) make the forecast, by which rule, and the final ranking."""
+
+    rule: str
+    members: tuple[int, ...]
+    ranking: tuple[RankEntry, ...]
+
+
+def _simplicity(spec: Specification) -> int:
+    family = spec.family
+    return SIMPLICITY.index(family) if family in SIMPLICITY else len(SIMPLICITY)
+
+
+def origin_scores(backtest: ModelBacktest) -> np.ndarray:
+    """Mean scaled absolute error per origin (NaN actuals left out)."""
+    scaled = backtest.scaled_abs_errors()
+    out = np.full(scaled.shape[0], np.nan)
+    for k, row in enumerate(scaled):
+        finite = row[np.isfinite(row)]
+        if finite.size:
+            out[k] = float(finite.mean())
+    return out
+
+
+def wins_majority(single: ModelBacktest, other: ModelBacktest) -> bool:
+    """True when ``single`` has the lower error at more than half of the shared origins."""
+    a, b = origin_scores(single), origin_scores(other)
+    keep = np.isfinite(a) & np.isfinite(b)
+    return bool(keep.any() and np.sum(a[keep] < b[keep]) * 2 > keep.sum())
+
+
+def best_single(
+    results: Sequence[ModelBacktest],
+    specs: Sequence[Specification],
+    eligible: Sequence[int],
+    metric: str,
+) -> int:
+    """The lowest score among ``eligible``; within ``TIE`` of it the simplest model wins."""
+    best = min(results[i].score(metric) for i in eligible)
+    close = [i for i in eligible if results[i].score(metric) <= best * (1.0 + TIE)]
+    return min(close, key=lambda i: (_simplicity(specs[i]), results[i].score(metric), i))
+
+
+def choose(
+    results: Sequence[ModelBacktest],
+    specs: Sequence[Specification],
+    order: Sequence[int],
+    metric: str,
+    ranking: tuple[RankEntry, ...],
+    default_set: bool,
+    windows: int,
+) -> Choice:
+    """The combination of the non-benchmark candidates unless one model clearly beats it."""
+    eligible = [i for i in order if not (default_set and specs[i].family in NEVER_CHOSEN)] or list(
+        order
+    )
+    single = best_single(results, specs, eligible, metric)
+    pool = [i for i in order if specs[i].family not in BENCHMARK_FAMILIES]
+    if len(pool) < 2:
+        return Choice("winner", (single,), ranking)
+    mixed = combine([results[i] for i in pool])
+    mixed_score = mixed.score(metric)
+    ranking = tuple(
+        sorted(
+            (*ranking, RankEntry(mixed.label, mixed.specification, mixed_score)),
+            key=lambda r: r.score,
+        )
+    )
+    clear = results[single].score(metric) <= (1.0 - SINGLE_MARGIN) * mixed_score
+    if clear and windows >= MIN_WINDOWS and wins_majority(results[single], mixed):
+        return Choice("winner", (single,), ranking)
+    return Choice("combination", tuple(pool), ranking)
