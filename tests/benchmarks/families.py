@@ -69,9 +69,12 @@ def sarimax(
 
 
 def ets_direct(y: pd.Series, **kw: Any) -> Callable[[], Any]:
+    # The same outputs as the core: point forecasts and the 80 % and 95 % intervals.
     def run() -> Any:
-        res = ETSModel(y.to_numpy(), **kw).fit(disp=False)
-        return res.forecast(HORIZON)
+        res = ETSModel(pd.Series(y.to_numpy()), **kw).fit(disp=False)
+        n = y.size
+        prediction = res.get_prediction(start=n, end=n + HORIZON - 1)
+        return [prediction.summary_frame(alpha=1 - c) for c in COVERAGE]
 
     return run
 

@@ -329,11 +329,13 @@ def _exact_fit(
     """Re-estimate the winner with estimated initial states, started from the search solution."""
     notes = list(rough.warnings)
     estimate = rough
+    kept: ETSResults | None = None
     if rough.initialization == "heuristic":
         caught: list[FitWarning] = []
         try:
             with captured(caught, ets_label(chosen)):
-                model = ETSModel(values, **_model_kwargs(chosen, period))
+                # A RangeIndex series, as in results(): statsmodels' prediction needs an index.
+                model = ETSModel(pd.Series(values), **_model_kwargs(chosen, period))
                 start = np.asarray(model.start_params, dtype=float).copy()
                 start[: len(rough.smoothing)] = list(rough.smoothing.values())
                 result = model.fit(start_params=start, disp=False, maxiter=_EXACT_MAXITER)
@@ -349,6 +351,7 @@ def _exact_fit(
             if converged and math.isfinite(exact.llf) and exact.llf >= rough.llf:
                 estimate = exact
                 notes = list(caught)
+                kept = result
             else:
                 notes.append(
                     FitWarning(
@@ -361,7 +364,7 @@ def _exact_fit(
             notes.append(
                 FitWarning("kept_heuristic_start", f"{ets_label(chosen)}: exact fit failed ({exc})")
             )
-    return EtsFitted(
+    fitted = EtsFitted(
         specification=requested,
         chosen=chosen,
         y=y,
@@ -371,6 +374,9 @@ def _exact_fit(
         initialization=estimate.initialization,
         warnings=notes,
     )
+    # The exact fit's own results serve this history: no re-smoothing for the first forecast.
+    fitted._cached = kept
+    return fitted
 
 
 @dataclass
