@@ -94,3 +94,12 @@ def test_rules_become_registered_specifications_or_are_listed_as_skipped() -> No
     assert all(s.family in FAMILIES for s in chosen.specifications)
     assert len(chosen.specifications) + len(chosen.skipped) == len(candidate_rules(p))
     assert len(chosen.reasons) == len(chosen.specifications)
+
+
+def test_theta_joins_seasonal_fits_and_the_trend_combination_non_seasonal_ones() -> None:
+    seasonal = families(profile(), thorough=False)
+    assert "theta" in seasonal and "combination" not in seasonal
+    flat = families(profile(seasonal=False), thorough=False)
+    assert "theta" not in flat and "combination" in flat and "ets" in flat
+    # A long season is fitted with m = 1 beside STL: no theta there either.
+    assert "theta" not in families(profile(seasonal_period=52), thorough=False)
