@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 
 from service.core.backtest import ModelBacktest, OriginForecast, rank
-from service.core.choice import MIN_WINDOWS, best_single, choose, wins_majority
+from service.core.choice import MIN_WINDOWS, best_single, choose, disjoint_windows, wins_majority
 from service.core.models.drift import DriftSpec
 from service.core.models.ets import EtsSpec
 from service.core.models.naive import NaiveSpec
@@ -75,3 +75,9 @@ def test_ties_go_to_the_simpler_model_and_majority_counts_origins() -> None:
     assert best_single(results, specs, [0, 1], "mase") == 1
     assert wins_majority(backtest("a", [0, 0, 5]), backtest("b", [1, 1, 1]))
     assert not wins_majority(backtest("a", [0, 5, 5]), backtest("b", [1, 1, 1]))
+
+
+def test_disjoint_windows_count_the_non_overlapping_forecast_windows() -> None:
+    assert disjoint_windows((10, 15, 20), 5) == 3
+    assert disjoint_windows((10, 12, 14, 16, 18, 20), 5) == 2
+    assert disjoint_windows((), 5) == 0
