@@ -178,3 +178,17 @@ def test_intermittent_demand_is_compared_with_croston() -> None:
     labels = {r.label for r in result.selection.ranking}
     assert {"Croston", "SBA"} <= labels
     assert np.all(result.forecast.point >= 0)
+
+
+def test_a_trending_series_gets_the_combination_without_drift() -> None:
+    rng = np.random.default_rng(21)
+    y = monthly(20 + 0.4 * np.arange(60.0) + rng.normal(size=60))
+    result = select(y, 1, 6)
+    sel = result.selection
+    assert sel.rule == "combination"
+    assert "Drift" in {r.label for r in sel.ranking} and "Drift" not in sel.chosen
+    assert result.fitted.describe().family == "combination"
+    # ETS and the SES/Holt/damped average, re-searched on the full series, averaged.
+    assert sel.chosen.startswith("Combination(") and sel.chosen.count("ETS(") >= 4
+    slope = np.polyfit(np.arange(6), result.forecast.point, 1)[0]
+    assert 0.1 < slope < 0.8
