@@ -1,4 +1,4 @@
-"""Published checks for Theta, Croston/SBA and Box-Cox (rows of /work/shared/REFERENCES.md)."""
+"""Published checks for Theta, Croston/SBA and Box-Cox (rows of the shared REFERENCES.md)."""
 
 from __future__ import annotations
 
