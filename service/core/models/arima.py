@@ -124,7 +124,9 @@ class ArimaSpec:
         else:
             orders, start_estimate = fixed, None
         _check_size(orders, values.size, len(names))
-        estimate = _final_fit(values, exog, names, orders, start_estimate)
+        estimate = _final_fit(
+            values, exog, names, orders, start_estimate, tight=self.search == "thorough"
+        )
         notes.extend(_estimate_warnings(estimate))
         return ArimaFitted(
             specification=self,
@@ -341,20 +343,29 @@ def _final_fit(
     names: tuple[str, ...],
     orders: ArimaOrders,
     start: Estimate | None,
+    tight: bool = True,
 ) -> Estimate:
-    """The one exact fit: warm-started, tight tolerance, full iteration budget."""
+    """The one exact fit: warm-started, full iteration budget, tight tolerance when ``tight``.
+
+    Without ``tight`` (the quick search) a converged exact search estimate is kept as it is:
+    polishing it to the tight tolerance cost 0.02-0.4 s for log-likelihood gains < 1e-4.
+    """
+    if not tight and start is not None and start.method == "exact" and start.converged:
+        return start
     x = design_matrix(orders, exog, 0, values.size)
     w = difference(values, orders.d, orders.D, orders.m)
     xd = None if x is None else difference(x, orders.d, orders.D, orders.m)
     if start is None:
         start = css_estimate(w, xd, orders, names)
     try:
-        final = exact_estimate(w, xd, orders, names, start=start, maxiter=FINAL_MAXITER, tight=True)
+        final = exact_estimate(
+            w, xd, orders, names, start=start, maxiter=FINAL_MAXITER, tight=tight
+        )
     except ArithmeticError as exc:
         raise FitError(
             f"{orders.label} could not be fitted by maximum likelihood: {exc}", field="model.order"
         ) from exc
-    if start.method == "exact" and start.converged and start.loglik > final.loglik:
+    if start.method == "exact" and start.loglik > final.loglik:
         return start
     return final
 
