@@ -233,7 +233,8 @@ class ArimaFitted:
                     use_exact_diffuse=True,
                 )
                 params = np.r_[np.asarray(self.estimate.values, dtype=float), self.estimate.sigma2]
-                self._filtered = model.filter(params)
+                # No covariance of the parameters: its numerical Hessian was half the cost.
+                self._filtered = model.filter(params, cov_type="none")
         return self._filtered
 
     def forecast(
