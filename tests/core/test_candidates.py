@@ -63,7 +63,17 @@ def test_long_season_goes_to_stl_and_short_series_skip_arima() -> None:
     short = families(profile(observations=30))
     assert "arima" not in short and "ets" in short
     assert "arima" in families(profile())
-    assert "arima" not in families(profile(), thorough=False)
+    assert "arima" not in families(profile(observations=30), thorough=False)
+
+
+def test_default_candidates_search_arima_quickly_and_thorough_ones_fully() -> None:
+    default = [data for data, _ in candidate_rules(profile(), thorough=False)]
+    assert {"family": "arima", "search": "quick"} in default
+    thorough = [data for data, _ in candidate_rules(profile(), thorough=True)]
+    assert {"family": "arima"} in thorough
+    assert all(data.get("search") != "quick" for data in thorough)
+    specs = candidates_for(profile(), thorough=False).specifications
+    assert [s.search for s in specs if s.family == "arima"] == ["quick"]
 
 
 def test_profile_reads_zeros_negatives_and_diagnostics() -> None:
