@@ -79,6 +79,37 @@ def ets_direct(y: pd.Series, **kw: Any) -> Callable[[], Any]:
     return run
 
 
+def ets_search_direct(y: pd.Series) -> Callable[[], Any]:
+    """The same AICc search done directly: every candidate the core considers, fitted with
+    statsmodels' defaults, the lowest AICc forecast with its intervals."""
+    from service.core.models.ets import EtsSpec, candidates_for
+
+    options = candidates_for(EtsSpec(), y.to_numpy(dtype=float), PERIOD)
+
+    def run() -> Any:
+        best = None
+        for spec in options:
+            seasonal = None if spec.season == "none" else spec.season
+            kw = {
+                "error": spec.error,
+                "trend": None if spec.trend == "none" else spec.trend,
+                "damped_trend": bool(spec.damped) and spec.trend != "none",
+                "seasonal": seasonal,
+                "seasonal_periods": PERIOD if seasonal else None,
+            }
+            try:
+                res = ETSModel(pd.Series(y.to_numpy()), **kw).fit(disp=False)
+            except (ValueError, np.linalg.LinAlgError):
+                continue
+            if best is None or res.aicc < best.aicc:
+                best = res
+        n = y.size
+        prediction = best.get_prediction(start=n, end=n + HORIZON - 1)
+        return [prediction.summary_frame(alpha=1 - c) for c in COVERAGE]
+
+    return run
+
+
 def theta_direct(y: pd.Series) -> Callable[[], Any]:
     return lambda: ThetaModel(y.to_numpy(), period=PERIOD).fit().forecast(HORIZON)
 
@@ -140,6 +171,7 @@ def rows(y: pd.Series, demand: pd.Series) -> list[tuple[str, Callable[[], Any], 
             core({"family": "ets"}, y),
             ets_direct(y, **auto_kw),
         ),
+        ("ets auto vs the same search direct", core({"family": "ets"}, y), ets_search_direct(y)),
         ("theta", core({"family": "theta"}, y), theta_direct(y)),
         ("croston", core({"family": "croston"}, demand), croston_direct(demand)),
     ]
