@@ -398,14 +398,16 @@ def backtest(
     coverage: Sequence[float] = (0.8, 0.95),
     metric: str = "mase",
     map_fn: MapFn[Task, ModelBacktest] | None = None,
+    periods: Sequence[int] | None = None,
 ) -> BacktestReport:
-    """Rolling-origin evaluation of the given specifications (POST /v1/backtests)."""
+    """Rolling-origin evaluation of the given specifications (POST /v1/backtests);
+    ``periods`` as in ``run``."""
     check_metric(metric)
     if not specifications:
-        raise RequestError("give at least one specification", field="specifications")
+        raise RequestError("give at least one specification", field="models")
     plan = plan_origins(len(y), horizon, origins, step, seasonal_period)
     levels = check_coverage(coverage)
-    models = run(y, specifications, seasonal_period, plan, levels, map_fn)
+    models = run(y, specifications, seasonal_period, plan, levels, map_fn, periods)
     return BacktestReport(
         metric=metric,
         horizon=horizon,

@@ -385,21 +385,20 @@ def backtest_auto(
     thorough: bool = False,
 ) -> Any:
     """POST /v1/backtests with specifications "auto": the candidates ``select`` would try."""
-    from service.core.backtest import BacktestReport
-    from service.core.origins import plan_origins
+    from service.core.backtest import backtest
 
     check_metric(metric)
     profile = profile_series(y, seasonal_period, diagnostics)
     specs = _with_benchmarks(list(candidates_for(profile, thorough).specifications), profile)
-    plan = plan_origins(len(y), horizon, origins, step, profile.benchmark_period)
-    levels = check_coverage(coverage)
-    models = run(y, specs, profile.benchmark_period, plan, levels, map_fn, _periods(specs, profile))
-    return BacktestReport(
-        metric=metric,
+    return backtest(
+        y,
+        specs,
+        profile.benchmark_period,
         horizon=horizon,
+        origins=origins,
         step=step,
-        origins=tuple(y.index[o] for o in plan.origins),
-        coverage=levels,
-        models=tuple(models),
-        ranking=rank(models, metric),
+        coverage=coverage,
+        metric=metric,
+        map_fn=map_fn,
+        periods=_periods(specs, profile),
     )

@@ -114,4 +114,4 @@ def test_unknown_metric_and_empty_specifications() -> None:
         backtest(y, [NaiveSpec()], horizon=3, metric="mape")
     with pytest.raises(RequestError) as info:
         backtest(y, [], horizon=3)
-    assert info.value.problems[0].field == "specifications"
+    assert info.value.problems[0].field == "models"
