@@ -241,29 +241,19 @@ class BacktestTask:
 def backtests(task: BacktestTask) -> dict[str, Any]:
     """Rolling-origin evaluation of the given specifications, or of the auto candidates."""
     found: list[FitWarning] = []
+    options: dict[str, Any] = {
+        "horizon": task.horizon,
+        "origins": task.origins,
+        "step": task.step,
+        "coverage": task.coverage,
+        "metric": task.metric,
+    }
     with collected_warnings(found):
         if task.specifications is None:
-            report = backtest_auto(
-                task.y,
-                task.seasonal_period,
-                horizon=task.horizon,
-                origins=task.origins,
-                step=task.step,
-                coverage=task.coverage,
-                metric=task.metric,
-                diagnostics=diagnose(task.y, task.seasonal_period),
-            )
+            diagnostics = diagnose(task.y, task.seasonal_period)
+            report = backtest_auto(task.y, task.seasonal_period, diagnostics=diagnostics, **options)
         else:
-            report = run_backtest(
-                task.y,
-                task.specifications,
-                task.seasonal_period,
-                horizon=task.horizon,
-                origins=task.origins,
-                step=task.step,
-                coverage=task.coverage,
-                metric=task.metric,
-            )
+            report = run_backtest(task.y, task.specifications, task.seasonal_period, **options)
     body: dict[str, Any] = render.plain(report.to_dict())
     body["warnings"] = render.warnings_body(found)
     return body
