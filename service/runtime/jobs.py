@@ -15,6 +15,11 @@ from service.core.backtest import backtest as run_backtest
 from service.core.candidates import candidates_for, profile_series
 from service.core.diagnostics import diagnose
 from service.core.errors import WindvaneError
+
+# The families: the automatic selection looks them up in the registry only when a request
+# runs (candidate rules, refit), so without this import the first request of a process paid
+# ~0.24 s of statsmodels imports. The pool's fork server preloads this module.
+from service.core.models import registry as _registry  # noqa: F401
 from service.core.models.base import Fitted, FitWarning, Specification
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec

@@ -8,6 +8,12 @@ Measured in one run (the machine is shared, so only the ratios travel):
 - baselines: one ETS AICc search on the full series, and the winner's 3-origin backtest by
   refitting at every origin against re-filtering;
 - the candidate fan-out through a 2-process pool passed as ``map_fn``, against serial.
+
+"Cold" is the first call in a fresh process after importing what a pool worker has before its
+first request (``service.runtime.jobs``, which the fork server preloads), on one BLAS thread as
+in the workers. Before both were done here, the benchmark imported only the selection (whose
+families load lazily: 0.20-0.24 s of the cold "profile" stage) and left BLAS at its default
+threads: on this 2-core machine, loaded by other jobs, that run took 11.3 s instead of 0.8 s.
 """
 
 from __future__ import annotations
@@ -19,6 +25,7 @@ from concurrent.futures import ProcessPoolExecutor
 
 import numpy as np
 import pandas as pd
+from threadpoolctl import threadpool_limits
 
 N, PERIOD, HORIZON = 200, 12, 24
 LEVELS = (0.8, 0.95)
@@ -67,9 +74,13 @@ def refit_vs_refilter(y: pd.Series) -> tuple[float, float]:
 
 def main() -> None:
     start = time.perf_counter()
-    import service.core.selection  # noqa: F401  (imports statsmodels and the families)
+    # What a pool worker has before its first request: the fork server preloads the jobs
+    # module, which imports the selection, the diagnostics and every family.
+    import service.runtime.jobs  # noqa: F401
 
     imports = time.perf_counter() - start
+    # One BLAS thread, as in the pool's workers (several made each fit slower here).
+    threadpool_limits(1)
     y = series()
     warnings.simplefilter("ignore")
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
