@@ -62,6 +62,18 @@ def test_calibration_restores_coverage_of_too_narrow_intervals() -> None:
     assert np.mean(np.abs(fresh) <= width) == pytest.approx(0.8, abs=0.06)
 
 
+def test_too_wide_intervals_are_reported_but_never_narrowed() -> None:
+    rng = np.random.default_rng(12)
+    # The model believes sd = 2 but errors have sd = 1: its 80 % interval covers ~99 %.
+    bt = synthetic(rng.normal(scale=1.0, size=(8, 12)), half_width=2 * Z80)
+    result = calibrate(bt)
+    assert result.applied
+    assert result.levels[0].empirical > 0.95
+    # The conformal quantile is about 0.5, but the factor stops at FACTOR_BOUNDS[0] = 1.
+    assert conformal_quantile(nonconformity(bt, 0.8), 0.8) < 0.7
+    assert result.factor(0.8) == 1.0
+
+
 def test_apply_scales_each_side_and_keeps_levels_nested() -> None:
     from service.core.calibration import Calibration, LevelCalibration
 

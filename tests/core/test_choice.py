@@ -4,9 +4,17 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+import pytest
 
 from service.core.backtest import ModelBacktest, OriginForecast, rank
-from service.core.choice import MIN_WINDOWS, best_single, choose, disjoint_windows, wins_majority
+from service.core.choice import (
+    MIN_WINDOWS,
+    best_single,
+    choose,
+    disjoint_windows,
+    score_weights,
+    wins_majority,
+)
 from service.core.models.drift import DriftSpec
 from service.core.models.ets import EtsSpec
 from service.core.models.naive import NaiveSpec
@@ -50,8 +58,28 @@ def test_the_combination_is_the_default_even_when_one_member_scores_a_little_bet
     assert any(r.label.startswith("Combination(") for r in picked.ranking)
 
 
+def test_members_are_weighted_by_the_inverse_square_of_their_backtest_score() -> None:
+    picked = decide(
+        {"naive": [3, 3, 3], "drift": [2, 2, 2], "ets": [1.0, 1.0, 1.0], "theta": [2.0, 2, 2]},
+        windows=MIN_WINDOWS - 1,
+    )
+    assert picked.rule == "combination"
+    weights = dict(zip(picked.members, picked.weights, strict=True))
+    # Scores 1 and 2: weights 1 and 1/4, normalised to 0.8 and 0.2.
+    np.testing.assert_allclose([weights[2], weights[3]], [0.8, 0.2], rtol=1e-12)
+    combined = next(r for r in picked.ranking if r.label.startswith("Combination("))
+    # Both miss on the same side: 0.8 x 1 + 0.2 x 2.
+    assert combined.score == pytest.approx(1.2, rel=1e-12)
+
+
+def test_score_weights_normalise_and_a_perfect_score_takes_all() -> None:
+    np.testing.assert_allclose(score_weights([1.0, 2.0, 4.0]), [16 / 21, 4 / 21, 1 / 21])
+    assert score_weights([0.0, 1.0]) == (1.0, 0.0)
+
+
 def test_a_single_model_needs_a_clear_margin_a_majority_and_enough_windows() -> None:
-    errors = {"naive": [3, 3, 3], "drift": [5, 5, 5], "ets": [0.2, 0.2, 0.2], "theta": [2, 2, 2]}
+    # Weighted 0.9 / 0.1, the combination still misses by 0.24 against ETS's 0.2.
+    errors = {"naive": [3, 3, 3], "drift": [5, 5, 5], "ets": [0.2, 0.2, 0.2], "theta": [0.6] * 3}
     assert decide(errors, windows=MIN_WINDOWS).rule == "winner"
     assert decide(errors, windows=MIN_WINDOWS).members == (2,)
     # The same scores on too few disjoint windows are not evidence enough.

@@ -1,8 +1,9 @@
-"""Equal-weight combination of other specifications.
+"""Weighted (by default equal-weight) combination of other specifications.
 
-The point forecast is the mean of the members' points. The interval bounds are the means
-of the members' bounds at each coverage level (common practice; simple and well
-calibrated in forecasting competitions, though not the quantile of any mixture).
+The point forecast is the weighted mean of the members' points. The interval bounds are the
+weighted means of the members' bounds at each coverage level (quantile averaging: common
+practice, simple and well calibrated in forecasting competitions, though not the quantile
+of any mixture). Weights are relative: they are normalised to sum to one.
 """
 
 from __future__ import annotations
@@ -32,20 +33,50 @@ class CombinationSpec:
     """The equal-weight average of its members' forecasts."""
 
     family: ClassVar[str] = "combination"
-    summary: ClassVar[str] = "Equal-weight average of the forecasts of other specifications."
+    summary: ClassVar[str] = (
+        "Weighted (by default equal-weight) average of the forecasts of other specifications."
+    )
     constraints: ClassVar[tuple[str, ...]] = (
         "members must list at least one specification.",
-        "Interval bounds are the averages of the members' bounds at each coverage level.",
+        "weights, when given, has one non-negative number per member and a positive sum.",
+        "Interval bounds are the weighted averages of the members' bounds at each level.",
     )
 
     members: tuple[Any, ...] = parameter(
         (), "The specifications to average.", kind="specifications"
     )
+    weights: tuple[float, ...] = parameter(
+        (),
+        "Relative weight of each member, normalised to sum to one; empty for equal weights.",
+        kind="numbers",
+        minimum=0,
+    )
+
+    def __post_init__(self) -> None:
+        if self.members:
+            self.normalised_weights()
+
+    def normalised_weights(self) -> np.ndarray:
+        """One weight per member summing to one; checks the count and the sum."""
+        count = len(self.members)
+        if not self.weights:
+            return np.full(count, 1.0 / max(count, 1))
+        w = np.asarray(self.weights, dtype=float)
+        if w.size != count:
+            raise SpecificationError(
+                f"weights has {w.size} entries for {count} members", "model.weights"
+            )
+        if not np.all(np.isfinite(w)) or np.any(w < 0) or w.sum() <= 0:
+            raise SpecificationError(
+                "weights must be non-negative with a positive sum", "model.weights"
+            )
+        return w / w.sum()
 
     def fit(self, y: pd.Series, seasonal_period: int = 1) -> CombinationFitted:
         """Fit every member on the same history; a member's error names its position."""
         if not self.members:
             raise SpecificationError("members must list at least one specification", "model")
+        self.normalised_weights()
         start = timed()
         fitted = []
         for i, member in enumerate(self.members):
@@ -89,23 +120,25 @@ class CombinationFitted:
         return "Combination(" + ", ".join(m.describe().label for m in self.members) + ")"
 
     def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast:
-        """Mean of the points; mean of the bounds per coverage level."""
+        """Weighted mean of the points; weighted mean of the bounds per coverage level."""
+        w = self.specification.normalised_weights()
         parts = [m.forecast(horizon, coverage) for m in self.members]
-        point = np.mean([p.point for p in parts], axis=0)
+        point = w @ np.array([p.point for p in parts])
         intervals = tuple(
             Interval(
                 float(c),
-                np.mean([p.intervals[k].lower for p in parts], axis=0),
-                np.mean([p.intervals[k].upper for p in parts], axis=0),
+                w @ np.array([p.intervals[k].lower for p in parts]),
+                w @ np.array([p.intervals[k].upper for p in parts]),
             )
             for k, c in enumerate(coverage)
         )
         return Forecast(parts[0].index, point, intervals)
 
     def fitted_values(self) -> pd.Series:
-        """Mean of the members' one-step fits (NaN where any member has none)."""
+        """Weighted mean of the members' one-step fits (NaN where any member has none)."""
+        w = self.specification.normalised_weights()
         stacked = np.vstack([m.fitted_values().to_numpy(dtype=float) for m in self.members])
-        return pd.Series(stacked.mean(axis=0), index=self.y.index, name="fitted")
+        return pd.Series(w @ stacked, index=self.y.index, name="fitted")
 
     def residuals(self) -> pd.Series:
         """Observed minus the combined one-step fit."""
@@ -123,11 +156,15 @@ class CombinationFitted:
     def describe(self) -> Description:
         """The members' labels and parameters (prefixed by position); no joint likelihood."""
         described = [m.describe() for m in self.members]
-        params = {
-            f"members[{i}].{name}": value
-            for i, d in enumerate(described)
-            for name, value in d.parameters.items()
-        }
+        weights = self.specification.normalised_weights()
+        params = {f"weight[{i}]": float(w) for i, w in enumerate(weights)}
+        params.update(
+            {
+                f"members[{i}].{name}": value
+                for i, d in enumerate(described)
+                for name, value in d.parameters.items()
+            }
+        )
         resid = self.residuals().to_numpy()
         resid = resid[np.isfinite(resid)]
         return Description(
@@ -140,7 +177,7 @@ class CombinationFitted:
             residual_diagnostics={
                 **ljung_box_summary(resid, self.seasonal_period),
                 "members": [d.label for d in described],
-                "interval_method": "average of the members' bounds",
+                "interval_method": "weighted average of the members' bounds",
             },
             observations=len(self.y),
             fit_seconds=self.fit_seconds,

@@ -131,10 +131,23 @@ def specification_from_dict(data: Any, field: str = "model") -> Specification:
         kwargs[key] = _coerce(known[key], value, f"{field}.{key}")
     try:
         return cls(**kwargs)
-    except SpecificationError:
-        raise
+    except SpecificationError as exc:
+        raise _moved(exc, field) from exc
     except (TypeError, ValueError) as exc:
         raise SpecificationError(str(exc), field=field) from exc
+
+
+def _moved(exc: SpecificationError, field: str) -> SpecificationError:
+    """A constructor's 'model.x' fields placed under the field being parsed (e.g. candidates[1])."""
+    if field == "model":
+        return exc
+    moved = []
+    for p in exc.problems:
+        name = p.field
+        if name == "model" or name.startswith("model."):
+            name = field + name[len("model") :]
+        moved.append(FieldProblem(name, p.message))
+    return SpecificationError(exc.message, problems=moved)
 
 
 def _coerce(p: ParameterInfo, value: Any, where: str) -> Any:
@@ -169,6 +182,15 @@ def _coerce(p: ParameterInfo, value: Any, where: str) -> Any:
                 field=where,
             )
         return value
+    if kind == "numbers":
+        if not isinstance(value, list) or not all(
+            isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+            for v in value
+        ):
+            raise SpecificationError(f"{p.name} must be a list of finite numbers", field=where)
+        for i, v in enumerate(value):
+            _check_bounds(p, v, f"{where}[{i}]")
+        return tuple(float(v) for v in value)
     if kind == "integers":
         if not isinstance(value, list) or not all(
             isinstance(v, int) and not isinstance(v, bool) for v in value

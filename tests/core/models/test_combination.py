@@ -1,4 +1,4 @@
-"""Combination: equal-weight points, averaged bounds, nested errors."""
+"""Combination: equal or given weights for points and bounds, nested errors."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 
-from service.core.errors import FitError
+from service.core.errors import FitError, SpecificationError
 from service.core.models import registry
 from service.core.models.combination import CombinationSpec
 from service.core.models.drift import DriftSpec
@@ -74,3 +74,47 @@ def test_refilter_refilters_every_member() -> None:
     longer = fitted.refilter(y)
     assert longer.forecast(1, [0.8]).index[0] == y.index[-1] + y.index.freq
     assert_allclose(longer.forecast(1, [0.8]).point, (y.iloc[-1] + y.iloc[-12]) / 2)
+
+
+def test_weights_are_relative_and_apply_to_points_bounds_and_fits() -> None:
+    y = series()
+    spec = registry.specification_from_dict(
+        {
+            "family": "combination",
+            "members": [{"family": "naive"}, {"family": "drift"}],
+            "weights": [3, 1],
+        }
+    )
+    fitted = spec.fit(y, 12)
+    combined = fitted.forecast(4, [0.8])
+    a = NaiveSpec().fit(y, 12)
+    b = DriftSpec().fit(y, 12)
+    fa, fb = a.forecast(4, [0.8]), b.forecast(4, [0.8])
+    assert_allclose(combined.point, 0.75 * fa.point + 0.25 * fb.point)
+    assert_allclose(
+        combined.intervals[0].upper, 0.75 * fa.intervals[0].upper + 0.25 * fb.intervals[0].upper
+    )
+    expected = 0.75 * a.fitted_values() + 0.25 * b.fitted_values()
+    assert_allclose(fitted.fitted_values().to_numpy(), expected.to_numpy())
+    params = fitted.describe().parameters
+    assert params["weight[0]"] == pytest.approx(0.75) and params["weight[1]"] == pytest.approx(0.25)
+
+
+@pytest.mark.parametrize(
+    ("weights", "field"),
+    [
+        ([1.0], "model.weights"),
+        ([0.0, 0.0], "model.weights"),
+        ([1.0, -1.0], "model.weights[1]"),
+        (["a", 1.0], "model.weights"),
+    ],
+)
+def test_bad_weights_name_the_field(weights: list[object], field: str) -> None:
+    data = {
+        "family": "combination",
+        "members": [{"family": "naive"}, {"family": "drift"}],
+        "weights": weights,
+    }
+    with pytest.raises(SpecificationError) as err:
+        registry.specification_from_dict(data).fit(series(), 12)
+    assert err.value.problems[0].field == field
