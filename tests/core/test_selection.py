@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import json
 
 import numpy as np
@@ -153,6 +154,41 @@ def test_combination_averages_points_and_bounds() -> None:
     parts = [s.fit(y, 12).forecast(3, (0.8,)).point for s in BENCHMARKS]
     np.testing.assert_allclose(forecast.point, np.mean(parts, axis=0))
     assert fitted.describe().family == "combination"
+
+
+def test_weighted_combination_of_backtests_and_of_fitted_models() -> None:
+    from service.core.averaging import CombinedFitted, combine
+    from service.core.backtest import backtest
+
+    y = seasonal_series()
+    report = backtest(y, list(BENCHMARKS), 12, horizon=4, origins=2, step=2, coverage=(0.8,))
+    weights = [3.0, 1.0] + [0.0] * (len(BENCHMARKS) - 2)
+    mixed = combine(report.models, weights=weights)
+    first = [m.forecasts[0] for m in report.models]
+    np.testing.assert_allclose(
+        mixed.forecasts[0].point, 0.75 * first[0].point + 0.25 * first[1].point
+    )
+    assert mixed.specification["weights"][:2] == [0.75, 0.25]
+    fitted = CombinedFitted(tuple(s.fit(y, 12) for s in BENCHMARKS), "mix", tuple(weights))
+    parts = [s.fit(y, 12).forecast(3, (0.8,)) for s in BENCHMARKS[:2]]
+    forecast = fitted.forecast(3, (0.8,))
+    np.testing.assert_allclose(forecast.point, 0.75 * parts[0].point + 0.25 * parts[1].point)
+    np.testing.assert_allclose(
+        forecast.intervals[0].lower,
+        0.75 * parts[0].intervals[0].lower + 0.25 * parts[1].intervals[0].lower,
+    )
+    assert fitted.describe().parameters["weight[0]"] == 0.75
+    assert fitted.refilter(y).forecast(3, (0.8,)).point == pytest.approx(forecast.point)
+
+
+def test_auto_weights_members_by_their_backtest_scores(seasonal_result: AutoForecast) -> None:
+    selection = seasonal_result.selection
+    assert selection.rule == "combination"
+    parameters = seasonal_result.fitted.describe().parameters
+    weights = [v for k, v in parameters.items() if k.startswith("weight[")]
+    assert sum(weights) == pytest.approx(1.0) and len(weights) >= 2
+    # Members are listed best first, so their weights never increase.
+    assert all(a >= b for a, b in itertools.pairwise(weights))
 
 
 def test_long_weekly_season_goes_to_stl_through_the_diagnostics() -> None:
