@@ -254,13 +254,18 @@ def evaluate(task: Task) -> ModelBacktest:
 
 def resolved_specification(fitted: Any) -> Any:
     """The complete specification behind a fitted model: a family that searches (ETS keeps it
-    as ``chosen``) settles on one; the rest are complete already."""
+    as ``chosen``) settles on one; wrappers (combination, transform) resolve what they hold;
+    the rest are complete already."""
     chosen = getattr(fitted, "chosen", None)
     if chosen is not None:
         return chosen
     members = getattr(fitted, "members", None)
     spec = fitted.specification
     is_instance = dataclasses.is_dataclass(spec) and not isinstance(spec, type)
+    inner = getattr(fitted, "inner", None)
+    if inner is not None and is_instance and spec.family == "transformed":
+        # A model on a transformed scale resolves its base (the transform stays as asked).
+        return dataclasses.replace(spec, base=resolved_specification(inner))
     if members and is_instance and hasattr(spec, "members"):
         # A combination resolves member by member (each ETS member settled its own season).
         return dataclasses.replace(spec, members=tuple(resolved_specification(m) for m in members))

@@ -37,7 +37,7 @@ import numpy as np
 
 from service.core.averaging import combine
 from service.core.backtest import ModelBacktest, RankEntry
-from service.core.models.base import Specification
+from service.core.models.base import Specification, family_of
 
 WEIGHT_POWER = 2.0
 SINGLE_MARGIN = 0.10
@@ -64,7 +64,7 @@ class Choice:
 
 
 def _simplicity(spec: Specification) -> int:
-    family = spec.family
+    family = family_of(spec)
     return SIMPLICITY.index(family) if family in SIMPLICITY else len(SIMPLICITY)
 
 
@@ -128,11 +128,10 @@ def choose(
 ) -> Choice:
     """The weighted combination of the non-benchmark candidates unless one model clearly beats
     it."""
-    eligible = [i for i in order if not (default_set and specs[i].family in NEVER_CHOSEN)] or list(
-        order
-    )
+    never = NEVER_CHOSEN if default_set else frozenset()
+    eligible = [i for i in order if family_of(specs[i]) not in never] or list(order)
     single = best_single(results, specs, eligible, metric)
-    pool = [i for i in order if specs[i].family not in BENCHMARK_FAMILIES]
+    pool = [i for i in order if family_of(specs[i]) not in BENCHMARK_FAMILIES]
     if len(pool) < 2:
         return Choice("winner", (single,), ranking)
     weights = score_weights([results[i].score(metric) for i in pool])

@@ -62,6 +62,7 @@ from service.core.models.base import (
     FitWarning,
     Forecast,
     Specification,
+    family_of,
 )
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
@@ -149,7 +150,7 @@ def _periods(specs: Sequence[Specification], profile: SeriesProfile) -> list[int
     """Seasonal naive and STL see the true period; the rest the profile's model period."""
     out = []
     for s in specs:
-        full = s.family in ("seasonal_naive", "stl")
+        full = family_of(s) in ("seasonal_naive", "stl")
         out.append(profile.benchmark_period if full else profile.model_period)
     return out
 
@@ -231,7 +232,7 @@ def select(
                 f"compared {plan.horizon} steps ahead instead",
             )
         )
-    naive_index = next(i for i, s in enumerate(specs) if s.family == "naive")
+    naive_index = next(i for i, s in enumerate(specs) if family_of(s) == "naive")
     over_naive = _skill(chosen_bt.score(metric), results[naive_index].score(metric))
     if profile.random_walk and (over_naive is None or over_naive < SKILL_MARGIN):
         rule, members, weights = "naive_guard", [naive_index], ()
@@ -298,9 +299,10 @@ class _Clock:
 
 
 def _for_refit(spec: Specification, backtest: ModelBacktest) -> Specification:
-    """ARIMA keeps the orders its search found before the first origin (a second search costs
-    more than the rest of auto); the other families search again on the full series."""
-    if spec.family == "arima" and backtest.resolved is not None:
+    """ARIMA (on any scale) keeps the orders its search found before the first origin (a second
+    search costs more than the rest of auto); the other families search again on the full
+    series."""
+    if family_of(spec) == "arima" and backtest.resolved is not None:
         resolved: Specification = backtest.resolved
         return resolved
     return spec
@@ -314,7 +316,7 @@ def _given(candidates: Sequence[Specification]) -> CandidateSet:
 
 def _with_benchmarks(specs: list[Specification], profile: SeriesProfile) -> list[Specification]:
     """Naive, and seasonal naive when seasonal, are always evaluated: skill needs them."""
-    families = {s.family for s in specs}
+    families = {family_of(s) for s in specs}
     out = list(specs)
     if "naive" not in families:
         out.insert(0, NaiveSpec())
@@ -325,7 +327,7 @@ def _with_benchmarks(specs: list[Specification], profile: SeriesProfile) -> list
 
 def _benchmark(specs: Sequence[Specification], profile: SeriesProfile) -> Specification:
     wanted = "seasonal_naive" if profile.seasonal else "naive"
-    return next(s for s in specs if s.family == wanted)
+    return next(s for s in specs if family_of(s) == wanted)
 
 
 def _skill(score: float, benchmark: float) -> float | None:

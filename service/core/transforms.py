@@ -22,7 +22,14 @@ from scipy import optimize, stats
 
 from service.core.errors import FitError, SpecificationError
 from service.core.intervals import Interval, normal_quantile
-from service.core.models.base import Description, Fitted, FitWarning, Forecast, residuals_from
+from service.core.models.base import (
+    Description,
+    Fitted,
+    FitWarning,
+    Forecast,
+    as_dict,
+    residuals_from,
+)
 
 KINDS = ("none", "log", "boxcox")
 _VARIANCE_LEVEL = 0.8
@@ -156,6 +163,14 @@ class TransformedSpec:
     def fit(self, y: pd.Series, seasonal_period: int = 1) -> Fitted:
         """Fit the base on the transformed scale (or directly, for the 'none' transform)."""
         return fit_transformed(self.base, y, seasonal_period, self.transform)
+
+    def json_form(self) -> dict[str, Any]:
+        """The base's JSON with the transform beside it, as a request would write them."""
+        t = self.transform
+        return {
+            **as_dict(self.base),
+            "transform": {"kind": t.kind, "lambda": t.lam, "bias_adjusted": t.bias_adjusted},
+        }
 
 
 def fit_transformed(spec: Any, y: pd.Series, seasonal_period: int, transform: Transform) -> Fitted:

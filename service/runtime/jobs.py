@@ -161,11 +161,14 @@ def forecast(task: ForecastTask) -> dict[str, Any]:
 
 
 def with_transform(spec: Specification, transform: dict[str, Any] | None) -> Specification:
-    """The specification fitted on the log or Box-Cox scale when a transform is asked for."""
+    """The specification fitted on the log or Box-Cox scale when a transform is asked for.
+
+    The request's transform replaces one that an automatic candidate carries of its own."""
     chosen = transform_from_value(transform or None)
     if chosen.kind == "none":
         return spec
-    return TransformedSpec(spec, chosen)  # type: ignore[return-value]
+    base = spec.base if isinstance(spec, TransformedSpec) else spec
+    return TransformedSpec(base, chosen)  # type: ignore[return-value]
 
 
 def _add_in_sample(body: dict[str, Any], fitted: Fitted, include: tuple[str, ...]) -> None:

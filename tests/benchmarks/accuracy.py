@@ -50,6 +50,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+from threadpoolctl import threadpool_limits
 
 from service.core.candidates import seasonality_test
 from service.core.diagnostics import diagnose
@@ -409,4 +410,6 @@ def main(args: list[str]) -> None:
 
 
 if __name__ == "__main__":
-    main(sys.argv[1:])
+    # One BLAS thread, as in the service's workers (seconds are comparable with theirs).
+    with threadpool_limits(1):
+        main(sys.argv[1:])

@@ -12,6 +12,7 @@ from service.core.candidates import (
     profile_series,
     seasonality_test,
 )
+from service.core.models.base import as_dict
 from service.core.models.registry import FAMILIES
 
 
@@ -67,13 +68,27 @@ def test_long_season_goes_to_stl_and_short_series_skip_arima() -> None:
 
 
 def test_default_candidates_search_arima_quickly_and_thorough_ones_fully() -> None:
-    default = [data for data, _ in candidate_rules(profile(), thorough=False)]
+    plain = profile(positive=False)
+    default = [data for data, _ in candidate_rules(plain, thorough=False)]
     assert {"family": "arima", "search": "quick"} in default
-    thorough = [data for data, _ in candidate_rules(profile(), thorough=True)]
+    thorough = [data for data, _ in candidate_rules(plain, thorough=True)]
     assert {"family": "arima"} in thorough
     assert all(data.get("search") != "quick" for data in thorough)
-    specs = candidates_for(profile(), thorough=False).specifications
+    specs = candidates_for(plain, thorough=False).specifications
     assert [s.search for s in specs if s.family == "arima"] == ["quick"]
+
+
+def test_positive_seasonal_series_get_arima_on_the_log_scale() -> None:
+    specs = candidates_for(profile(), thorough=False).specifications
+    logged = [s for s in specs if s.family == "transformed"]
+    assert len(logged) == 1 and not any(s.family == "arima" for s in specs)
+    assert logged[0].base.family == "arima" and logged[0].transform.kind == "log"
+    form = as_dict(logged[0])
+    assert form["family"] == "arima" and form["transform"]["kind"] == "log"
+    # Not positive, or not fitted with a season: ARIMA on the original scale.
+    for other in (profile(positive=False), profile(seasonal=False), profile(seasonal_period=52)):
+        families_seen = {s.family for s in candidates_for(other).specifications}
+        assert "transformed" not in families_seen
 
 
 def test_profile_reads_zeros_negatives_and_diagnostics() -> None:
@@ -101,7 +116,8 @@ def test_profile_reads_the_verdict_of_core_diagnostics() -> None:
 def test_rules_become_registered_specifications_or_are_listed_as_skipped() -> None:
     p = profile()
     chosen = candidates_for(p)
-    assert all(s.family in FAMILIES for s in chosen.specifications)
+    # A transformed candidate wraps a registered family.
+    assert all(getattr(s, "base", s).family in FAMILIES for s in chosen.specifications)
     assert len(chosen.specifications) + len(chosen.skipped) == len(candidate_rules(p))
     assert len(chosen.reasons) == len(chosen.specifications)
 

@@ -191,6 +191,28 @@ def test_auto_weights_members_by_their_backtest_scores(seasonal_result: AutoFore
     assert all(a >= b for a, b in itertools.pairwise(weights))
 
 
+def test_transformed_candidates_keep_their_roles_and_resolved_orders() -> None:
+    from service.core.backtest import resolved_specification
+    from service.core.models.arima import ArimaSpec
+    from service.core.models.ets import EtsSpec
+    from service.core.transforms import Transform, TransformedSpec
+
+    y = seasonal_series() + 50.0
+    logged = [
+        TransformedSpec(spec, Transform("log"))
+        for spec in (NaiveSpec(), SeasonalNaiveSpec(), DriftSpec(), EtsSpec(), ArimaSpec())
+    ]
+    result = select(y, 12, 6, candidates=logged)
+    labels = result.fitted.describe().residual_diagnostics.get("members", [])
+    # Benchmarks on the log scale are still benchmarks: never members of the combination.
+    assert result.selection.rule == "combination"
+    assert not any(label.startswith(("Naive", "SeasonalNaive", "Drift")) for label in labels)
+    assert result.selection.benchmark.startswith("SeasonalNaive")
+    fitted = TransformedSpec(ArimaSpec(search="quick"), Transform("log")).fit(y, 12)
+    resolved = resolved_specification(fitted)
+    assert resolved.transform.kind == "log" and resolved.base.order is not None
+
+
 def test_long_weekly_season_goes_to_stl_through_the_diagnostics() -> None:
     from service.core.diagnostics import diagnose
 

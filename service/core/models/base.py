@@ -110,8 +110,21 @@ class Specification(Protocol):
     def fit(self, y: pd.Series, seasonal_period: int = 1) -> Fitted: ...
 
 
+def family_of(spec: Any) -> str:
+    """The model family behind a specification, looking through a transform around it."""
+    if spec.family == "transformed":
+        return family_of(spec.base)
+    return str(spec.family)
+
+
 def as_dict(spec: Any) -> dict[str, Any]:
-    """The JSON form of a specification: its family and every hyperparameter, nested."""
+    """The JSON form of a specification: its family and every hyperparameter, nested.
+
+    A wrapper that is not a family of its own (a transform around a model) gives its own
+    ``json_form``."""
+    own = getattr(spec, "json_form", None)
+    if callable(own):
+        return dict(own())
     out: dict[str, Any] = {"family": spec.family}
     for f in dataclasses.fields(spec):
         value = getattr(spec, f.name)
