@@ -69,6 +69,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             on_recycle=telemetry.record_recycle,
         )
         app.state.pool = pool
+        await pool.wait_until_ready()
         try:
             yield
         finally:

@@ -179,3 +179,14 @@ def test_spawn_start_method_works_too() -> None:
         assert small.stats().start_method == "spawn"
     finally:
         small.close()
+
+
+def test_wait_until_ready_takes_every_worker_start_up_message() -> None:
+    p = WorkPool(2, 2, budget_seconds=20.0)
+    try:
+        assert asyncio.run(p.wait_until_ready()) == 2
+        assert asyncio.run(p.wait_until_ready()) == 2  # nothing left to read: returns at once
+        # The first job finds its worker ready and does not read a start-up message as a reply.
+        assert asyncio.run(p.run(pool_jobs.add, 4, 5)) == 9
+    finally:
+        p.close()
