@@ -74,6 +74,9 @@ class ModelBacktest:
     failure: str | None = None
     resolved: Any = None
     """The complete specification the family's own search settled on (for refits)."""
+    refit: Any = None
+    """A cheaper specification for the refit on the full series, where the family offers one
+    (ETS: its search narrowed to the models still in contention)."""
 
     @property
     def ok(self) -> bool:
@@ -249,7 +252,13 @@ def evaluate(task: Task) -> ModelBacktest:
         refilter_seconds,
         tuple(_unique(caught)),
         resolved=resolved_specification(fitted),
+        refit=_refit_specification(fitted),
     )
+
+
+def _refit_specification(fitted: Any) -> Any:
+    narrowed = getattr(fitted, "refit_specification", None)
+    return narrowed() if callable(narrowed) else None
 
 
 def resolved_specification(fitted: Any) -> Any:

@@ -300,8 +300,11 @@ class _Clock:
 
 def _for_refit(spec: Specification, backtest: ModelBacktest) -> Specification:
     """ARIMA (on any scale) keeps the orders its search found before the first origin (a second
-    search costs more than the rest of auto); the other families search again on the full
-    series."""
+    search costs more than the rest of auto); ETS searches again in full, its winner's exact
+    fit warm-started from the earlier one; the other families search again."""
+    if backtest.refit is not None:
+        narrowed: Specification = backtest.refit
+        return narrowed
     if family_of(spec) == "arima" and backtest.resolved is not None:
         resolved: Specification = backtest.resolved
         return resolved

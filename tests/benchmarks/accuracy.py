@@ -383,7 +383,9 @@ def main(args: list[str]) -> None:
                 cases.append((name, moved))
     results: dict[str, dict[str, list[Score]]] = {p: {m: [] for m in METHODS} for p in panels}
     print(
-        f"{'series':22s} {'n':>5s} {'m':>3s} {'h':>3s}  " + "  ".join(f"{m:>15s}" for m in METHODS)
+        f"{'series':22s} {'n':>5s} {'m':>3s} {'h':>3s}  "
+        + "  ".join(f"{m:>15s}" for m in METHODS)
+        + "  auto s"
     )
     for panel_name, case in cases:
         row = []
@@ -395,9 +397,11 @@ def main(args: list[str]) -> None:
                 s = Score(np.nan, np.nan, dict.fromkeys(LEVELS, np.nan), np.nan, np.nan)
             results[panel_name][name].append(s)
             row.append(f"{s.mase:15.3f}")
+        auto_seconds = results[panel_name]["auto"][-1].seconds
         print(
             f"{case.name:22s} {len(case.y):5d} {case.period:3d} {case.horizon:3d}  "
-            + "  ".join(row),
+            + "  ".join(row)
+            + f"  {auto_seconds:6.2f}",
             flush=True,
         )
     print("\nMASE per series above.")

@@ -243,8 +243,43 @@ def _check_explicit(spec: EtsSpec, positive: bool, seasonal_ok: bool, period: in
         )
 
 
-def search_ets(y: pd.Series, seasonal_period: int = 1, spec: EtsSpec | None = None) -> EtsSearch:
-    """Rank the admissible ETS models for ``y`` by AICc and fit the winner exactly."""
+@dataclass(frozen=True)
+class EtsRefitSpec:
+    """The AICc search of ``base`` again, on a longer history, with an earlier exact fit as the
+    start of the winner's exact fit when the same model wins.
+
+    Not a family of its own: the selection refits an ETS candidate on the full series with it.
+    The exact fit (initial states estimated) is most of an ETS search's cost; started from the
+    estimates on the data before the first backtest origin it converges in a few iterations
+    (co2, 444 monthly points: 0.16 s against 0.71 s, the same model and likelihood to 1e-2).
+    Narrowing the search to the models within 10 AICc of the earlier best was tried too and
+    dropped: on short series (airmiles, lh) it kept out the model the full data chose."""
+
+    family: ClassVar[str] = "ets"
+
+    base: EtsSpec
+    warm_model: EtsSpec
+    warm_start: tuple[float, ...]
+    """The earlier exact estimates of ``warm_model``, in statsmodels' parameter order."""
+
+    def fit(self, y: pd.Series, seasonal_period: int = 1) -> EtsFitted:
+        """The full search, its winner's exact fit warm-started when it is ``warm_model``."""
+        warm = (self.warm_model, self.warm_start)
+        return search_ets(y, seasonal_period, self.base, warm=warm).best
+
+    def json_form(self) -> dict[str, Any]:
+        """The search it repeats, as a request would write it."""
+        return as_dict(self.base)
+
+
+def search_ets(
+    y: pd.Series,
+    seasonal_period: int = 1,
+    spec: EtsSpec | None = None,
+    warm: tuple[EtsSpec, tuple[float, ...]] | None = None,
+) -> EtsSearch:
+    """Rank the admissible ETS models for ``y`` by AICc and fit the winner exactly; ``warm``
+    gives a model's earlier exact estimates as the exact fit's start when that model wins."""
     spec = spec or EtsSpec()
     start = time.perf_counter()
     values = _checked_values(y)
@@ -272,7 +307,8 @@ def search_ets(y: pd.Series, seasonal_period: int = 1, spec: EtsSpec | None = No
         raise FitError(f"no ETS model could be fitted to this series ({reasons})", field="model")
     scored.sort(key=lambda item: item[0])
     _, chosen, rough = scored[0]
-    fitted = _exact_fit(spec, chosen, y, values, seasonal_period, rough)
+    earlier = warm[1] if warm is not None and warm[0] == chosen else None
+    fitted = _exact_fit(spec, chosen, y, values, seasonal_period, rough, earlier)
     fitted.warnings[:0] = notes if not spec.is_complete() else []
     fitted.fit_seconds = time.perf_counter() - start
     ranking = sorted(tried, key=lambda c: (c.aicc is None, c.aicc or 0.0))
@@ -441,8 +477,10 @@ def _exact_fit(
     values: np.ndarray,
     period: int,
     rough: _Estimate,
+    warm: tuple[float, ...] | None = None,
 ) -> EtsFitted:
-    """Re-estimate the winner with estimated initial states, started from the search solution."""
+    """Re-estimate the winner with estimated initial states, started from the search solution
+    (or from ``warm``, earlier exact estimates of the same model on a shorter history)."""
     notes = list(rough.warnings)
     estimate = rough
     kept: ETSResults | None = None
@@ -453,7 +491,10 @@ def _exact_fit(
                 # A RangeIndex series, as in results(): statsmodels' prediction needs an index.
                 model = _EtsModel(pd.Series(values), **_model_kwargs(chosen, period))
                 start = np.asarray(model.start_params, dtype=float).copy()
-                start[: len(rough.smoothing)] = list(rough.smoothing.values())
+                if warm is not None and len(warm) == start.size:
+                    start = np.asarray(warm, dtype=float)
+                else:
+                    start[: len(rough.smoothing)] = list(rough.smoothing.values())
                 result = model.fit(start_params=start, disp=False, maxiter=_EXACT_MAXITER)
             exact = _Estimate(
                 _smoothing_of(result),
@@ -489,6 +530,7 @@ def _exact_fit(
         initial=estimate.initial,
         initialization=estimate.initialization,
         warnings=notes,
+        estimates=tuple(float(v) for v in kept.params) if kept is not None else (),
     )
     # The exact fit's own results serve this history: no re-smoothing for the first forecast.
     fitted._cached = kept
@@ -509,12 +551,21 @@ class EtsFitted:
     fit_seconds: float = 0.0
     warnings: list[FitWarning] = field(default_factory=list)
     simulation_paths: int = SIMULATION_PATHS
+    estimates: tuple[float, ...] = ()
+    """The exact fit's parameter vector in statsmodels' order (empty when heuristic)."""
     _cached: ETSResults | None = field(default=None, init=False, repr=False, compare=False)
 
     def __getstate__(self) -> dict[str, Any]:
         state = dict(self.__dict__)
         state["_cached"] = None
         return state
+
+    def refit_specification(self) -> EtsRefitSpec | None:
+        """The same search for a longer history, warm-started from this exact fit; None when
+        nothing was searched or the initial states were not estimated."""
+        if self.specification.is_complete() or not self.estimates:
+            return None
+        return EtsRefitSpec(self.specification, self.chosen, self.estimates)
 
     @property
     def label(self) -> str:
