@@ -59,8 +59,12 @@ def test_intermittent_threshold_is_a_share_of_zeros_of_0_3() -> None:
 
 
 def test_long_season_goes_to_stl_and_short_series_skip_arima() -> None:
-    long = families(profile(seasonal_period=52, observations=400))
+    long = families(profile(seasonal_period=52, observations=400), thorough=False)
     assert "stl" in long and profile(seasonal_period=52).model_period == 1
+    # Hourly data with a daily season counts as long (m >= 24); raw ARIMA is left out there.
+    hourly = families(profile(seasonal_period=24, observations=2000), thorough=False)
+    assert "stl" in hourly and "arima" not in hourly and "arima" not in long
+    assert profile(seasonal_period=23).model_period == 23
     short = families(profile(observations=30))
     assert "arima" not in short and "ets" in short
     assert "arima" in families(profile())
