@@ -250,3 +250,20 @@ def test_a_trending_series_gets_the_combination_without_drift() -> None:
     assert sel.chosen.startswith("Combination(") and sel.chosen.count("ETS(") >= 4
     slope = np.polyfit(np.arange(6), result.forecast.point, 1)[0]
     assert 0.1 < slope < 0.8
+
+
+def test_long_series_are_estimated_on_their_latest_points_with_a_warning(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    from service.core import selection
+
+    monkeypatch.setattr(selection, "MAX_HISTORY", 60)
+    y = seasonal_series(n=90)
+    result = select(y, 12, 6)
+    assert result.selection.observations_used == 60
+    assert result.selection.to_dict()["observations_used"] == 60
+    assert "history_shortened" in {w.code for w in result.warnings}
+    assert result.forecast.index[0] == y.index[-1] + y.index.freq
+    # Four seasons are always kept, whatever the cap.
+    assert len(selection.recent_history(y, 24)) == 90
+    assert len(selection.recent_history(y.iloc[:50], 12)) == 50
