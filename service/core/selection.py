@@ -35,10 +35,11 @@ Rules (stated for DEVELOPERS.md):
 
 from __future__ import annotations
 
+import dataclasses
 import time
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 import pandas as pd
@@ -57,6 +58,7 @@ from service.core.candidates import CandidateSet, SeriesProfile, candidates_for,
 from service.core.checks import check_coverage, check_positive_int
 from service.core.choice import choose, disjoint_windows
 from service.core.errors import FitError, RequestError
+from service.core.intervals import Interval
 from service.core.models.base import (
     Fitted,
     FitWarning,
@@ -67,6 +69,7 @@ from service.core.models.base import (
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
 from service.core.origins import MINIMUM_ORIGINS, calibration_plan, dense_plan, feasible_plan
+from service.core.plausibility import implausible
 from service.core.scoring import check_metric
 
 SKILL_MARGIN = 0.05
@@ -202,6 +205,7 @@ def select(
         calibration_plan(len(y), plan.horizon, profile.benchmark_period, first=plan.origins[0]),
     )
     dense = run(y, specs, profile.benchmark_period, evaluation_plan, levels, map_fn, periods)
+    dense = [_screened(r, y) for r in dense]
     # The ranking pools the scaled errors over every origin of the dense plan: more origins
     # for the same estimates, so one lucky window decides less.
     ranked_origins = evaluation_plan.origins
@@ -275,9 +279,15 @@ def select(
     # The family's own search runs again on the full series: the backtest scored the search
     # procedure, and a structure settled on the early part alone forecast worse (mean MASE
     # 1.097 against 0.998 on the accuracy benchmark).
-    fitted = _refit(
-        y, [_for_refit(specs[i], dense[i]) for i in members], weights, profile, chosen_bt.label
+    fitted, dropped = _refit(
+        y,
+        [_for_refit(specs[i], dense[i]) for i in members],
+        weights,
+        profile,
+        chosen_bt.label,
+        (horizon, levels),
     )
+    extra.extend(dropped)
     clock.lap("refit")
     forecast = cal.apply(fitted.forecast(horizon, levels), calibration)
     clock.lap("forecast")
@@ -392,29 +402,68 @@ def _calibrate(
     return cal.calibrate(_merged(results, weights))
 
 
+def _screened(result: ModelBacktest, y: pd.Series) -> ModelBacktest:
+    """The record marked failed when a forecast at any origin left the plausible band."""
+    if not result.ok:
+        return result
+    values = y.to_numpy(dtype=float)
+    for f in result.forecasts:
+        intervals = tuple(Interval(v, f.lower[v], f.upper[v]) for v in result.levels)
+        forecast = Forecast(pd.RangeIndex(len(f.point)), f.point, intervals)
+        why = implausible(forecast, values[: y.index.get_loc(f.origin)])
+        if why is not None:
+            return dataclasses.replace(result, failure=f"{why} at {f.origin.isoformat()}")
+    return result
+
+
 def _refit(
     y: pd.Series,
     specs: Sequence[Specification],
     weights: Sequence[float],
     profile: SeriesProfile,
     label: str,
-) -> Fitted:
-    """The chosen specification(s) estimated on the full series.
+    request: tuple[int, tuple[float, ...]],
+) -> tuple[Fitted, list[FitWarning]]:
+    """The chosen specification(s) estimated on the full series, without members whose
+    forecast for ``request`` (horizon, levels) leaves the plausible band (with a warning).
 
     A combination whose members share one period becomes the registry's combination family;
     members needing different periods (STL beside non-seasonal models) use a local adapter.
     """
-    from service.core.models.registry import FAMILIES
+    from service.core.models.combination import CombinationFitted, CombinationSpec
 
     periods = _periods(specs, profile)
     if len(specs) == 1:
-        return specs[0].fit(y, periods[0])
-    if "combination" in FAMILIES and len(set(periods)) == 1:
-        spec = FAMILIES["combination"](members=tuple(specs), weights=tuple(weights))
-        combined: Fitted = spec.fit(y, periods[0])
-        return combined
+        return specs[0].fit(y, periods[0]), []
+    start = time.perf_counter()
     fits = [s.fit(y, p) for s, p in zip(specs, periods, strict=True)]
-    return CombinedFitted(tuple(fits), label, tuple(weights))
+    values = y.to_numpy(dtype=float)
+    keep, dropped = [], []
+    for i, fit in enumerate(fits):
+        why = implausible(fit.forecast(*request), values)
+        if why is None:
+            keep.append(i)
+        else:
+            name = fit.describe().label
+            dropped.append(FitWarning("member_dropped", f"{name} left out of the forecast: {why}"))
+    if not keep:
+        # Nothing plausible: the best-weighted member answers; its intervals say the rest.
+        keep, dropped = [int(np.argmax(weights))], []
+    if len(keep) == 1:
+        return fits[keep[0]], dropped
+    kept_weights = tuple(weights[i] for i in keep)
+    if len({periods[i] for i in keep}) == 1:
+        spec = CombinationSpec(members=tuple(specs[i] for i in keep), weights=kept_weights)
+        members = [fits[i] for i in keep]
+        notes = [
+            FitWarning(w.code, f"member {k}: {w.message}")
+            for k, m in enumerate(members)
+            for w in m.warnings
+        ]
+        elapsed = time.perf_counter() - start
+        combined = CombinationFitted(spec, y, periods[keep[0]], members, elapsed, notes)
+        return cast(Fitted, combined), dropped
+    return CombinedFitted(tuple(fits[i] for i in keep), label, kept_weights), dropped
 
 
 def backtest_auto(

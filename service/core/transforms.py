@@ -228,6 +228,13 @@ class TransformedFitted:
         """Observed minus back-transformed fit, on the original scale."""
         return residuals_from(self.y, self.fitted_values())
 
+    def refit_specification(self) -> TransformedSpec | None:
+        """The inner model's cheaper refit for a longer history, on the same scale; None when
+        the inner model offers none."""
+        narrowed = getattr(self.inner, "refit_specification", None)
+        inner = narrowed() if callable(narrowed) else None
+        return None if inner is None else TransformedSpec(inner, self.specification.transform)
+
     def refilter(self, y: pd.Series) -> TransformedFitted:
         """The same λ and inner parameters on another history."""
         values = y.to_numpy(dtype=float)

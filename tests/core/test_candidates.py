@@ -12,7 +12,7 @@ from service.core.candidates import (
     profile_series,
     seasonality_test,
 )
-from service.core.models.base import as_dict
+from service.core.models.base import as_dict, family_of
 from service.core.models.registry import FAMILIES
 
 
@@ -84,15 +84,25 @@ def test_default_candidates_search_arima_quickly_and_thorough_ones_fully() -> No
 
 def test_positive_seasonal_series_get_arima_on_the_log_scale() -> None:
     specs = candidates_for(profile(), thorough=False).specifications
-    logged = [s for s in specs if s.family == "transformed"]
+    logged = [s for s in specs if s.family == "transformed" and s.base.family == "arima"]
     assert len(logged) == 1 and not any(s.family == "arima" for s in specs)
-    assert logged[0].base.family == "arima" and logged[0].transform.kind == "log"
+    assert logged[0].transform.kind == "log"
     form = as_dict(logged[0])
     assert form["family"] == "arima" and form["transform"]["kind"] == "log"
     # Not positive, or not fitted with a season: ARIMA on the original scale.
-    for other in (profile(positive=False), profile(seasonal=False), profile(seasonal_period=52)):
-        families_seen = {s.family for s in candidates_for(other).specifications}
-        assert "transformed" not in families_seen
+    for other in (profile(positive=False), profile(seasonal=False)):
+        arimas = [s for s in candidates_for(other).specifications if family_of(s) == "arima"]
+        assert [s.family for s in arimas] == ["arima"]
+
+
+def test_positive_series_also_get_ets_with_additive_errors_on_the_log_scale() -> None:
+    for p in (profile(), profile(seasonal=False), profile(seasonal_period=52)):
+        specs = candidates_for(p).specifications
+        logged = [s for s in specs if s.family == "transformed" and s.base.family == "ets"]
+        assert len(logged) == 1 and logged[0].base.error == "add"
+        assert any(s.family == "ets" for s in specs)  # beside the search on the raw scale
+    plain = candidates_for(profile(positive=False)).specifications
+    assert not any(s.family == "transformed" for s in plain)
 
 
 def test_profile_reads_zeros_negatives_and_diagnostics() -> None:
