@@ -26,6 +26,9 @@ Measured (2 cores shared with other jobs, load 3-6; runs interleaved, so compare
 - quiet machine, later: ARIMA on the log scale for this positive seasonal series, cold 0.86 /
   warm 0.74 s; the ETS refit's exact fit warm-started from the backtest's (EtsRefitSpec),
   cold 0.80 / warm 0.57 s (refit 0.23 -> 0.18 s; on co2's 444 points auto 3.0 -> 1.55 s).
+- with ETS on the log scale added and the plausibility screen, five fresh processes in a row
+  on a quiet machine: cold 0.67-0.77 s (median 0.77), warm 0.57-0.75 s; single runs on this
+  virtual machine ranged 0.59-0.97 s cold, so read one run with care.
 """
 
 from __future__ import annotations
