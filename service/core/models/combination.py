@@ -30,7 +30,7 @@ from service.core.models.simple import ljung_box_summary, timed
 
 @dataclass(frozen=True)
 class CombinationSpec:
-    """The equal-weight average of its members' forecasts."""
+    """The weighted (by default equal-weight) average of its members' forecasts."""
 
     family: ClassVar[str] = "combination"
     summary: ClassVar[str] = (
