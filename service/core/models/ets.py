@@ -80,8 +80,8 @@ class _EtsModel(ETSModel):  # type: ignore[misc]
     def _loglike_internal(
         self,
         params: np.ndarray,
-        yhat: np.ndarray,
-        xhat: np.ndarray,
+        fitted_path: np.ndarray,
+        state_path: np.ndarray,
         is_fixed: np.ndarray | None = None,
         fixed_values: np.ndarray | None = None,
         use_beta_star: bool = False,
@@ -90,25 +90,31 @@ class _EtsModel(ETSModel):  # type: ignore[misc]
         if is_fixed is None or params.dtype.kind == "c":
             return float(
                 super()._loglike_internal(
-                    params, yhat, xhat, is_fixed, fixed_values, use_beta_star, use_gamma_star
+                    params,
+                    fitted_path,
+                    state_path,
+                    is_fixed,
+                    fixed_values,
+                    use_beta_star,
+                    use_gamma_star,
                 )
             )
         data = self.endog
         self._smoothing_func(
             params,
             data,
-            yhat,
-            xhat,
+            fitted_path,
+            state_path,
             np.ascontiguousarray(is_fixed, dtype=np.int64),
             fixed_values,
             use_beta_star,
             use_gamma_star,
         )
-        res = (data - yhat) / yhat if self.error == "mul" else data - yhat
+        res = (data - fitted_path) / fitted_path if self.error == "mul" else data - fitted_path
         logL = -self.nobs / 2 * (np.log(2 * np.pi * (np.add.reduce(res * res) / res.size)) + 1)
         if self.error == "mul":
-            yhat[yhat == 0] = 1e-32
-            logL -= np.add.reduce(np.log(np.abs(yhat)))
+            fitted_path[fitted_path == 0] = 1e-32
+            logL -= np.add.reduce(np.log(np.abs(fitted_path)))
         return logL
 
 
