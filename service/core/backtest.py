@@ -76,7 +76,7 @@ class ModelBacktest:
     """The complete specification the family's own search settled on (for refits)."""
     refit: Any = None
     """A cheaper specification for the refit on the full series, where the family offers one
-    (ETS: its search narrowed to the models still in contention)."""
+    (ETS: the same search, its winner's exact fit started from this fit's estimates)."""
 
     @property
     def ok(self) -> bool:
