@@ -64,9 +64,14 @@ def request(
     try:
         if chunked and body is not None:
             pieces = [body[i : i + 1000] for i in range(0, len(body), 1000)]
-            connection.request(
-                method, path, body=iter(pieces), headers=headers or {}, encode_chunked=True
-            )
+            try:
+                connection.request(
+                    method, path, body=iter(pieces), headers=headers or {}, encode_chunked=True
+                )
+            except (BrokenPipeError, ConnectionResetError):
+                # The server may answer (413) and close before the last chunk is sent; its
+                # answer is already on the socket, as a real client would read it.
+                pass
         else:
             connection.request(method, path, body=body, headers=headers or {})
         response = connection.getresponse()

@@ -455,13 +455,8 @@ def _refit(
     if len({periods[i] for i in keep}) == 1:
         spec = CombinationSpec(members=tuple(specs[i] for i in keep), weights=kept_weights)
         members = [fits[i] for i in keep]
-        notes = [
-            FitWarning(w.code, f"member {k}: {w.message}")
-            for k, m in enumerate(members)
-            for w in m.warnings
-        ]
         elapsed = time.perf_counter() - start
-        combined = CombinationFitted(spec, y, periods[keep[0]], members, elapsed, notes)
+        combined = CombinationFitted.of(spec, y, periods[keep[0]], members, elapsed)
         return cast(Fitted, combined), dropped
     return CombinedFitted(tuple(fits[i] for i in keep), label, kept_weights), dropped
 

@@ -84,12 +84,7 @@ class CombinationSpec:
                 fitted.append(member.fit(y, seasonal_period))
             except WindvaneError as exc:
                 raise _placed(exc, i) from exc
-        notes = [
-            FitWarning(w.code, f"member {i}: {w.message}")
-            for i, f in enumerate(fitted)
-            for w in f.warnings
-        ]
-        return CombinationFitted(self, y, seasonal_period, fitted, timed() - start, notes)
+        return CombinationFitted.of(self, y, seasonal_period, fitted, timed() - start)
 
 
 def _placed(exc: WindvaneError, position: int) -> WindvaneError:
@@ -113,6 +108,23 @@ class CombinationFitted:
     members: list[Fitted]
     fit_seconds: float = 0.0
     warnings: list[FitWarning] = field(default_factory=list)
+
+    @classmethod
+    def of(
+        cls,
+        spec: CombinationSpec,
+        y: pd.Series,
+        seasonal_period: int,
+        members: list[Fitted],
+        fit_seconds: float,
+    ) -> CombinationFitted:
+        """Fitted members combined, their warnings kept with the member's position."""
+        notes = [
+            FitWarning(w.code, f"member {i}: {w.message}")
+            for i, f in enumerate(members)
+            for w in f.warnings
+        ]
+        return cls(spec, y, seasonal_period, members, fit_seconds, notes)
 
     @property
     def label(self) -> str:
