@@ -64,6 +64,22 @@ class PoolClosed(RuntimeError):
     """The pool was shut down while the job waited."""
 
 
+class WorkerTraceback(Exception):
+    """The traceback of a job's exception as the worker saw it.
+
+    A job's exception is re-raised in the server chained to this one (``raise error from
+    WorkerTraceback(text)``), so a logged internal error shows the worker's frames, which
+    pickling the exception alone would lose.
+    """
+
+    def __init__(self, text: str) -> None:
+        super().__init__(text)
+        self.text = text
+
+    def __str__(self) -> str:
+        return f"\n\n(in the worker process)\n{self.text}"
+
+
 @dataclass(frozen=True)
 class PoolStats:
     """The pool's occupancy, for gauges and /readyz."""
@@ -285,7 +301,7 @@ class WorkPool:
             elapsed = time.perf_counter() - started
             self._mean_seconds = 0.8 * self._mean_seconds + 0.2 * elapsed
             if isinstance(reply, _Failure):
-                raise reply.error
+                raise reply.error from WorkerTraceback(reply.trace)
             if self.max_jobs_per_worker and worker.jobs >= self.max_jobs_per_worker:
                 recycle = "retired"
             return reply  # type: ignore[no-any-return]
@@ -390,4 +406,5 @@ def serve(conn: Connection, preload: tuple[str, ...]) -> None:
         try:
             conn.send(reply)
         except Exception as exc:  # an answer or an error that will not pickle
-            conn.send(_Failure(RuntimeError(f"the job's result could not be sent: {exc}"), ""))
+            trace = reply.trace if isinstance(reply, _Failure) else traceback.format_exc()
+            conn.send(_Failure(RuntimeError(f"the job's result could not be sent: {exc}"), trace))

@@ -42,3 +42,13 @@ def threads() -> dict[str, str | None]:
 def unpicklable() -> object:
     """A result that cannot be sent back."""
     return lambda: None
+
+
+def _divide_the_stock(parts: int) -> float:
+    """A helper whose name must show up in the server's log of a failed job."""
+    return 12.0 / parts
+
+
+def broken() -> float:
+    """A job with a programming error (not a domain refusal) two frames down."""
+    return _divide_the_stock(0)
