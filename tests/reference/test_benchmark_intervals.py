@@ -1,9 +1,9 @@
-"""Benchmark prediction intervals against the hand example of REFERENCES.md.
+"""Benchmark prediction intervals against the hand example of tests/reference/README.md.
 
 SOURCE for every check here: Hyndman & Athanasopoulos, Forecasting: Principles and
 Practice, 3rd ed., §5.5, Table 5.2 (σ̂ = √(Σe²/(T−K−M)) and the four sd formulas), applied
 to the hand series y = [10,14,8,12,11,16,9,13,13,17,10,15], T = 12, m = 4, whose values
-REFERENCES.md prints rounded to 4 decimals. Two comparisons per family: the implementation
+that README prints rounded to 4 decimals. Two comparisons per family: the implementation
 against an independent plain-Python evaluation of the formula (1e-10), and the printed
 numbers to their printed precision.
 """
@@ -92,7 +92,7 @@ def test_the_formula_to_1e10(family: str) -> None:
         )
 
 
-# SOURCE: REFERENCES.md, "Hand series for the benchmark intervals" (FPP3 §5.5 Table 5.2):
+# SOURCE: tests/reference/README.md, "Hand series for the benchmark intervals" (FPP3 Table 5.2):
 # 95 % interval at h = 1 and the sds, printed to 4 decimals (drift's first sd to 3).
 PRINTED_H1 = {
     "mean": ((6.5415, 18.1251), 2.9551),
@@ -114,7 +114,7 @@ def _half_unit(printed: float) -> float:
 
 @pytest.mark.parametrize("family", list(PRINTED_H1))
 def test_the_printed_95_interval_at_h1(family: str) -> None:
-    # SOURCE: FPP3 §5.5 Table 5.2 via the rounded values in REFERENCES.md.
+    # SOURCE: FPP3 §5.5 Table 5.2 via the rounded values in tests/reference/README.md.
     spec, hand = FAMILIES[family]
     (lower, upper), sd = PRINTED_H1[family]
     forecast = spec.fit(SERIES, seasonal_period=M).forecast(1, [0.95])
@@ -128,7 +128,7 @@ def test_the_printed_95_interval_at_h1(family: str) -> None:
 
 @pytest.mark.parametrize("family", list(PRINTED_SDS))
 def test_the_printed_sds_for_h_1_to_4(family: str) -> None:
-    # SOURCE: FPP3 §5.5 Table 5.2 via the rounded values in REFERENCES.md.
+    # SOURCE: FPP3 §5.5 Table 5.2 via the rounded values in tests/reference/README.md.
     spec, _ = FAMILIES[family]
     forecast = spec.fit(SERIES, seasonal_period=M).forecast(H, [0.95])
     sd = (forecast.intervals[0].upper - forecast.point) / Z95

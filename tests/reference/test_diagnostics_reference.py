@@ -1,6 +1,6 @@
 """Published values behind the diagnostics: critical values, chi-square quantiles, the band.
 
-Each check names its source; see the shared REFERENCES.md for the rows and tolerances.
+Each check names its source; tests/reference/README.md has the rows and tolerances.
 """
 
 from __future__ import annotations

@@ -1,4 +1,4 @@
-"""Published checks for Theta, Croston/SBA and Box-Cox (rows of the shared REFERENCES.md)."""
+"""Published checks for Theta, Croston/SBA and Box-Cox (rows of tests/reference/README.md)."""
 
 from __future__ import annotations
 
