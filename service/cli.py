@@ -80,25 +80,21 @@ def _local(args: argparse.Namespace, path: str) -> int:
     from pydantic import ValidationError
 
     from service.api.local import answer
+    from service.api.problems import domain_errors, validation_problem
     from service.core.errors import WindvaneError
 
     raw = sys.stdin.read() if args.file == "-" else Path(args.file).read_text(encoding="utf-8")
     try:
         body = answer(path, raw)
     except ValidationError as exc:
-        from service.api.problems import field_path
-
-        # The same field paths as the HTTP problems ("series.values[2]", "body"), and 400
-        # for a body that is not JSON at all.
-        errors = [{"field": field_path(e["loc"]), "message": e["msg"]} for e in exc.errors()]
-        status = 400 if any(e["type"] == "json_invalid" for e in exc.errors()) else 422
-        sys.stderr.write(json.dumps({"status": status, "errors": errors}, indent=2) + "\n")
+        # The same status, field paths and messages as the HTTP problems.
+        status, _, detail, errors = validation_problem(exc.errors())
+        report = {"status": status, "detail": detail, "errors": errors}
+        sys.stderr.write(json.dumps(report, indent=2) + "\n")
         return 1
     except WindvaneError as exc:
-        errors = [{"field": p.field, "message": p.message} for p in exc.problems]
-        sys.stderr.write(
-            json.dumps({"status": 422, "detail": exc.message, "errors": errors}, indent=2) + "\n"
-        )
+        report = {"status": 422, "detail": exc.message, "errors": domain_errors(exc)}
+        sys.stderr.write(json.dumps(report, indent=2) + "\n")
         return 1
     sys.stdout.write(json.dumps(body, indent=2) + "\n")
     return 0

@@ -5,12 +5,10 @@ from __future__ import annotations
 from typing import Any
 
 from service import __version__
-from service.api.routes.backtests import backtest_task
-from service.api.routes.diagnostics import diagnostics_task
-from service.api.routes.forecasts import forecast_task
 from service.api.schemas.backtests import BacktestRequest
 from service.api.schemas.diagnostics import DiagnosticsRequest
 from service.api.schemas.forecasts import ForecastRequest
+from service.api.tasks import backtest_task, diagnostics_task, forecast_task
 from service.config import Settings
 from service.runtime import jobs
 from service.runtime.keys import data_key, runtime_versions

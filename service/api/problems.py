@@ -12,11 +12,36 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
+from service.api.schemas.common import Problem
 from service.core.errors import WindvaneError
 from service.runtime.pool import BudgetExceeded, PoolBusy, PoolClosed, WorkerCrashed
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 log = logging.getLogger("windvane.errors")
+
+# The problem answers every POST endpoint can give, for its OpenAPI `responses`.
+PROBLEM_RESPONSES: dict[int | str, dict[str, Any]] = {
+    400: {
+        "model": Problem,
+        "description": "Malformed JSON",
+        "content": {"application/problem+json": {}},
+    },
+    413: {
+        "model": Problem,
+        "description": "Body larger than the limit",
+        "content": {"application/problem+json": {}},
+    },
+    422: {
+        "model": Problem,
+        "description": "Invalid series, option or specification",
+        "content": {"application/problem+json": {}},
+    },
+    503: {
+        "model": Problem,
+        "description": "Busy (Retry-After) or over the time budget",
+        "content": {"application/problem+json": {}},
+    },
+}
 
 
 def problem_response(
@@ -64,34 +89,22 @@ def field_path(loc: Sequence[Any]) -> str:
     return out or "body"
 
 
-async def _validation(request: Request, exc: Exception) -> JSONResponse:
-    assert isinstance(exc, RequestValidationError)
-    errors = exc.errors()
-    if any(e.get("type") == "json_invalid" for e in errors):
-        first = next(e for e in errors if e.get("type") == "json_invalid")
-        where = first.get("ctx", {}).get("error", "invalid JSON")
-        return problem_response(
-            400,
-            "malformed_json",
-            f"the body is not valid JSON: {where}",
-            request,
-            title="Malformed JSON",
-            errors=[{"field": "body", "message": str(where)}],
-        )
+def validation_problem(errors: Sequence[Any]) -> tuple[int, str, str, list[dict[str, str]]]:
+    """Status, code, detail and field errors for pydantic's errors (HTTP handler and CLI).
+
+    A body that is not JSON at all is a 400 ``malformed_json``; anything else a 422
+    ``invalid_request`` listing each field once."""
+    broken = [e for e in errors if e.get("type") == "json_invalid"]
+    if broken:
+        where = str(broken[0].get("ctx", {}).get("error", "invalid JSON"))
+        detail = f"the body is not valid JSON: {where}"
+        return 400, "malformed_json", detail, [{"field": "body", "message": where}]
     seen: dict[str, str] = {}
     for e in errors:
-        path = field_path(e.get("loc", ()))
-        seen.setdefault(path, _message(e))
+        seen.setdefault(field_path(e.get("loc", ())), _message(e))
     listed = [{"field": f, "message": m} for f, m in seen.items()]
     first = listed[0]
-    return problem_response(
-        422,
-        "invalid_request",
-        f"{first['field']}: {first['message']}",
-        request,
-        title="Invalid request",
-        errors=listed,
-    )
+    return 422, "invalid_request", f"{first['field']}: {first['message']}", listed
 
 
 def _message(error: dict[str, Any]) -> str:
@@ -103,10 +116,26 @@ def _message(error: dict[str, Any]) -> str:
     return str(error.get("msg", "invalid value"))
 
 
+def domain_errors(exc: WindvaneError, prefix: str = "") -> list[dict[str, str]]:
+    """The field errors of a domain error, each field under ``prefix`` when given."""
+    return [
+        {"field": f"{prefix}.{p.field}" if prefix else p.field, "message": p.message}
+        for p in exc.problems
+    ]
+
+
+async def _validation(request: Request, exc: Exception) -> JSONResponse:
+    assert isinstance(exc, RequestValidationError)
+    status, code, detail, errors = validation_problem(exc.errors())
+    title = "Malformed JSON" if status == 400 else "Invalid request"
+    return problem_response(status, code, detail, request, title=title, errors=errors)
+
+
 async def _domain(request: Request, exc: Exception) -> JSONResponse:
     assert isinstance(exc, WindvaneError)
-    errors = [{"field": p.field, "message": p.message} for p in exc.problems]
-    return problem_response(422, exc.code, exc.message, request, title=exc.title, errors=errors)
+    return problem_response(
+        422, exc.code, exc.message, request, title=exc.title, errors=domain_errors(exc)
+    )
 
 
 async def _http(request: Request, exc: Exception) -> JSONResponse:

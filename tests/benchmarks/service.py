@@ -184,7 +184,7 @@ def in_process_seconds(payload: dict[str, Any], repeats: int) -> float:
     """Median seconds of the same parse + fit + forecast called directly, no HTTP."""
     from threadpoolctl import threadpool_limits
 
-    from service.api.routes.forecasts import forecast_task
+    from service.api.tasks import forecast_task
     from service.config import Settings
     from service.runtime import jobs
 
@@ -228,7 +228,7 @@ def in_process_auto_seconds(repeats: int) -> float:
     """Median seconds of the same auto bodies through the worker's job, called directly."""
     from threadpoolctl import threadpool_limits
 
-    from service.api.routes.forecasts import forecast_task
+    from service.api.tasks import forecast_task
     from service.config import Settings
     from service.runtime import jobs
 

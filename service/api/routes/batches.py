@@ -10,8 +10,8 @@ from fastapi import APIRouter, Body, Request, Response
 
 from service.api import examples
 from service.api.dependencies import PoolDep, SettingsDep
-from service.api.problems import problem_response
-from service.api.routes.forecasts import PROBLEMS, answer_forecast
+from service.api.problems import PROBLEM_RESPONSES, domain_errors, problem_response
+from service.api.routes.forecasts import answer_forecast
 from service.api.schemas.batches import BatchRequest, BatchResponse, item
 from service.api.schemas.forecasts import ForecastRequest
 from service.core.errors import RequestError, WindvaneError
@@ -24,7 +24,7 @@ router = APIRouter(prefix="/v1", tags=["forecasts"])
     "/forecast-batches",
     summary="Forecast several series",
     response_model=BatchResponse,
-    responses=PROBLEMS,
+    responses=PROBLEM_RESPONSES,
 )
 async def create_batch(
     body: Annotated[BatchRequest, Body(openapi_examples=examples.request_examples("batch"))],
@@ -38,7 +38,7 @@ async def create_batch(
         raise RequestError(
             f"a batch holds at most {settings.max_batch_series} requests", field="requests"
         )
-    gate = asyncio.Semaphore(max(1, int(getattr(pool, "workers", 1))))
+    gate = asyncio.Semaphore(max(1, pool.workers))
 
     async def one(index: int, single: ForecastRequest) -> dict[str, Any]:
         async with gate:
@@ -46,10 +46,7 @@ async def create_batch(
                 found = await answer_forecast(single, pool, settings, request, Response())
                 return item(index, 200, forecast=found)
             except WindvaneError as exc:
-                problems = [
-                    {"field": f"requests[{index}].{p.field}", "message": p.message}
-                    for p in exc.problems
-                ]
+                problems = domain_errors(exc, f"requests[{index}]")
                 problem = problem_response(
                     422, exc.code, exc.message, request, title=exc.title, errors=problems
                 )

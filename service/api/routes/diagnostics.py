@@ -7,10 +7,10 @@ from typing import Annotated, Any
 from fastapi import APIRouter, Body
 
 from service.api import examples
-from service.api.convert import parsed_series
 from service.api.dependencies import PoolDep, SettingsDep
-from service.api.routes.forecasts import PROBLEMS
+from service.api.problems import PROBLEM_RESPONSES
 from service.api.schemas.diagnostics import DiagnosticsRequest
+from service.api.tasks import diagnostics_task
 from service.runtime import jobs
 from service.runtime.keys import data_key
 
@@ -20,7 +20,7 @@ router = APIRouter(prefix="/v1", tags=["diagnostics"])
 @router.post(
     "/diagnostics",
     summary="Diagnose a series",
-    responses={**PROBLEMS, **examples.response_example("diagnostics")},
+    responses={**PROBLEM_RESPONSES, **examples.response_example("diagnostics")},
 )
 async def create_diagnostics(
     body: Annotated[
@@ -35,15 +35,3 @@ async def create_diagnostics(
     result = await pool.run(jobs.diagnostics, task)
     result["data_hash"] = data_key(task.y).label
     return result
-
-
-def diagnostics_task(body: DiagnosticsRequest, settings: Any) -> jobs.DiagnosticsTask:
-    """Check the request and build the worker's task."""
-    # The core interpolates on its own and says so; it must see which values were missing.
-    wire = body.series
-    if wire.missing == "interpolate":
-        wire = wire.model_copy(update={"missing": "keep"})
-    series = parsed_series(wire, settings)
-    return jobs.DiagnosticsTask(
-        series.y, series.seasonal_period, body.max_lag, "components" in body.include
-    )

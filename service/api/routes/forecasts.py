@@ -9,99 +9,26 @@ from fastapi import APIRouter, Body, Request, Response
 
 from service import __version__
 from service.api import caching, examples
-from service.api.convert import parsed_series, specification
-from service.api.dependencies import PoolDep, SettingsDep
-from service.api.schemas.common import Problem
+from service.api.dependencies import PoolDep, SettingsDep, get_cache, get_telemetry
+from service.api.problems import PROBLEM_RESPONSES
 from service.api.schemas.forecasts import ForecastRequest, ForecastResponse
-from service.core.checks import check_coverage, check_positive_int
-from service.core.errors import RequestError
+from service.api.tasks import forecast_task
+from service.config import Settings
 from service.core.models.base import as_dict
-from service.core.regressors import regressors_from_wire
-from service.core.transforms import transform_from_value
 from service.runtime import jobs
-from service.runtime.cache import Cache
 from service.runtime.keys import data_key, fit_key, runtime_versions
-from service.runtime.telemetry import Telemetry
+from service.runtime.pool import WorkPool
 
 router = APIRouter(prefix="/v1", tags=["forecasts"])
 
-PROBLEMS: dict[int | str, dict[str, Any]] = {
-    400: {
-        "model": Problem,
-        "description": "Malformed JSON",
-        "content": {"application/problem+json": {}},
-    },
-    413: {
-        "model": Problem,
-        "description": "Body larger than the limit",
-        "content": {"application/problem+json": {}},
-    },
-    422: {
-        "model": Problem,
-        "description": "Invalid series, option or specification",
-        "content": {"application/problem+json": {}},
-    },
-    503: {
-        "model": Problem,
-        "description": "Busy (Retry-After) or over the time budget",
-        "content": {"application/problem+json": {}},
-    },
-}
 
-
-def forecast_task(body: ForecastRequest, settings: Any) -> tuple[jobs.ForecastTask, Any]:
-    """Check the request and build the worker's task; 422 problems name the field."""
-    series = parsed_series(body.series, settings)
-    horizon = check_positive_int(body.horizon, "horizon", settings.max_horizon)
-    coverage = check_coverage(body.coverage)
-    spec = None if body.model == "auto" else specification(body.model, "model")
-    candidates = None
-    if body.candidates is not None:
-        candidates = tuple(
-            specification(c, f"candidates[{i}]") for i, c in enumerate(body.candidates)
-        )
-    transform = body.transform
-    wire_transform = (
-        {"kind": transform} if isinstance(transform, str) else transform.model_dump(by_alias=True)
-    )
-    chosen = transform_from_value(wire_transform)  # a bad transform is a 422 before any work
-    if chosen.kind != "none" and not bool((series.y.dropna() > 0).all()):
-        raise RequestError(
-            f"the {chosen.kind} transform needs strictly positive values", field="transform"
-        )
-    regressors = None
-    if body.regressors:
-        if spec is None or spec.family != "arima":
-            raise RequestError(
-                "regressors are accepted by the arima family only", field="regressors"
-            )
-        if chosen.kind != "none":
-            raise RequestError("regressors cannot be combined with a transform", field="transform")
-        wire = [r.model_dump() for r in body.regressors]
-        regressors = regressors_from_wire(wire, series.y.index, horizon)
-    task = jobs.ForecastTask(
-        y=series.y,
-        seasonal_period=series.seasonal_period,
-        specification=spec,
-        horizon=horizon,
-        coverage=coverage,
-        name=series.name,
-        include=tuple(body.include),
-        candidates=candidates,
-        metric=body.metric,
-        transform=wire_transform,
-        regressors=regressors,
-    )
-    return task, series
-
-
-async def _computed(request: Request, pool: Any, task: jobs.ForecastTask) -> dict[str, Any]:
+async def _computed(request: Request, pool: WorkPool, task: jobs.ForecastTask) -> dict[str, Any]:
     """Run the work; an explicit specification's fitted model is kept in the fit store so
     that a new horizon or coverage on the same data needs no refit."""
     if task.specification is None:
         return dict(await pool.run(jobs.forecast, task))
-    cache: Cache = request.app.state.cache
-    telemetry: Telemetry = request.app.state.telemetry
+    cache = get_cache(request)
+    telemetry = get_telemetry(request)
     options: dict[str, Any] = {"transform": task.transform}
     if task.regressors is not None:
         history = task.regressors.history
@@ -122,7 +49,7 @@ async def _computed(request: Request, pool: Any, task: jobs.ForecastTask) -> dic
     "/forecasts",
     summary="Forecast a series",
     response_model=ForecastResponse,
-    responses={**PROBLEMS, **examples.response_example("forecast")},
+    responses={**PROBLEM_RESPONSES, **examples.response_example("forecast")},
 )
 async def create_forecast(
     body: Annotated[ForecastRequest, Body(openapi_examples=examples.request_examples("forecast"))],
@@ -136,7 +63,11 @@ async def create_forecast(
 
 
 async def answer_forecast(
-    body: ForecastRequest, pool: Any, settings: Any, request: Request, response: Response
+    body: ForecastRequest,
+    pool: WorkPool,
+    settings: Settings,
+    request: Request,
+    response: Response,
 ) -> dict[str, Any]:
     """One forecast through validation, the caches and the pool (also used by batches)."""
     task, series = forecast_task(body, settings)
