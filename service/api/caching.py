@@ -69,7 +69,7 @@ async def answer(
     found = cache.get_response(key)
     if cache.enabled:
         telemetry.record_cache("response", found.result)
-    if found.hit:
+    if found.hit and isinstance(found.value, dict):
         return _finish(request, response, Answer(found.value, "hit"))
     body = await _timed(telemetry, family, compute)
     if cache.enabled:

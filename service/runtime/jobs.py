@@ -168,7 +168,7 @@ def with_transform(spec: Specification, transform: dict[str, Any] | None) -> Spe
     if chosen.kind == "none":
         return spec
     base = spec.base if isinstance(spec, TransformedSpec) else spec
-    return TransformedSpec(base, chosen)  # type: ignore[return-value]
+    return TransformedSpec(base, chosen)
 
 
 def _add_in_sample(body: dict[str, Any], fitted: Fitted, include: tuple[str, ...]) -> None:

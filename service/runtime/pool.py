@@ -304,7 +304,7 @@ class WorkPool:
                 raise reply.error from WorkerTraceback(reply.trace)
             if self.max_jobs_per_worker and worker.jobs >= self.max_jobs_per_worker:
                 recycle = "retired"
-            return reply  # type: ignore[no-any-return]
+            return reply
         except (EOFError, OSError):
             recycle = "crash"
             raise WorkerCrashed(worker.process.exitcode) from None

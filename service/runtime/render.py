@@ -65,7 +65,7 @@ def model_body(description: Description) -> dict[str, Any]:
     body["information_criteria"] = {
         k: v for k, v in body["information_criteria"].items() if v is not None
     }
-    return body  # type: ignore[no-any-return]
+    return body
 
 
 def warnings_body(found: list[FitWarning]) -> list[dict[str, str]]:
