@@ -5,6 +5,8 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import os
+import secrets
 import signal
 import sys
 from pathlib import Path
@@ -28,6 +30,10 @@ def _serve(args: argparse.Namespace) -> int:
         if v is not None
     }
     settings = Settings(**overrides)
+    if settings.workers > 1 and settings.cache_secret is None:
+        # The HTTP processes share fitted models on disk only under one sealing secret; they
+        # inherit this one (a restart makes another: configure one to keep entries across).
+        os.environ["WINDVANE_CACHE_SECRET"] = secrets.token_hex(32)
     if settings.workers > 1:
         from service.runtime.telemetry import prepare_multiprocess
 

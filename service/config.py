@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Literal
 
-from pydantic import Field
+from pydantic import Field, SecretStr
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
 
@@ -45,6 +45,12 @@ class Settings(BaseSettings):
     )
     cache_max_bytes: int = Field(
         512_000_000, ge=0, description="Size bound of the on-disk cache, bytes."
+    )
+    cache_secret: SecretStr | None = Field(
+        None,
+        description="Secret that authenticates every on-disk cache entry (HMAC-SHA256); set "
+        "it when the directory is shared by replicas or kept across restarts. Without it, "
+        "fitted models are shared only by the processes of one `windvane serve`.",
     )
     cache_memory_items: int = Field(1_024, ge=0, description="Finished responses kept in memory.")
     cache_memory_bytes: int = Field(

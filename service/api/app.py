@@ -9,6 +9,7 @@ from fastapi import FastAPI
 
 from service import __version__
 from service.api.auth import install_api_keys
+from service.api.hits import ResponseHitMiddleware
 from service.api.middleware import BodyLimitMiddleware, RequestIdMiddleware
 from service.api.observe import ObserveMiddleware
 from service.api.problems import install_problem_handlers
@@ -48,13 +49,16 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     @asynccontextmanager
     async def lifespan(app: FastAPI) -> AsyncIterator[None]:
+        secret = settings.cache_secret
         app.state.cache = Cache(
             enabled=settings.cache == "on",
             directory=settings.cache_dir,
             max_bytes=settings.cache_max_bytes,
             response_entries=settings.cache_memory_items,
             response_bytes=settings.cache_memory_bytes,
+            secret=secret.get_secret_value().encode() if secret is not None else None,
         )
+        app.state.flights = {}
 
         def occupancy(stats: PoolStats) -> None:
             telemetry.record_pool(stats.workers, stats.busy, stats.queued)
@@ -93,7 +97,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(batches.router)
     app.include_router(diagnostics.router)
     app.include_router(backtests.router)
-    install_api_keys(app, settings)  # innermost: request ids reach its 401 problems
+    # Innermost, behind the key check: a cache hit needs an accepted key as well.
+    app.add_middleware(ResponseHitMiddleware)
+    install_api_keys(app, settings)  # request ids reach its 401 problems
     app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
     app.add_middleware(ObserveMiddleware, telemetry=telemetry, logger=request_logger())
     app.add_middleware(RequestIdMiddleware)

@@ -1,88 +1,180 @@
-"""The forecast route's cache and telemetry steps: key the request, look up, run, store.
+"""The forecast route's cache steps: key the request, look it up, run the work once, store.
 
-Kept out of the route so that the route reads as validation -> work -> response, and so
-the Cache-Status header (RFC 9211) and ``provenance.cache`` are always set together.
+A finished response is looked up before any series parsing: by a hash of the request
+bytes in ``hits.py`` (no parsing at all), and here by a hash of the validated request (a
+batch item, or the same request formatted differently), in memory, then on disk. Identical
+requests that arrive while one is being computed wait for it instead of computing again.
+The answer is kept as bytes with a gap for ``provenance.cache``, so that a hit only joins
+bytes, and the Cache-Status header (RFC 9211) names the layer that answered: the response
+cache, the fitted-model store, or neither.
 """
 
 from __future__ import annotations
 
+import asyncio
+import json
 import time
 from collections.abc import Awaitable, Callable
 from dataclasses import dataclass
+from functools import cache
 from typing import Any
 
 from starlette.requests import Request
-from starlette.responses import Response
 
+from service import __version__
+from service.api.schemas.forecasts import ForecastResponse
 from service.core.errors import FitError
-from service.runtime.cache import Cache
-from service.runtime.keys import Key, KeyBuilder
+from service.runtime.cache import Cache, StoredResponse
+from service.runtime.keys import Key, KeyBuilder, canonical_json, runtime_versions
 from service.runtime.pool import BudgetExceeded, WorkerCrashed
 from service.runtime.telemetry import Telemetry
 
-CACHE_NAME = "windvane"
-_STATUS = {
-    "hit": f"{CACHE_NAME}; hit",
-    "miss": f"{CACHE_NAME}; fwd=miss; stored",
-    "off": f"{CACHE_NAME}; fwd=bypass",
-}
+RESPONSES = "windvane-response"
+FITTED = "windvane-fitted"
+FORECASTS_PATH = "/v1/forecasts"
+
+# What the fitted-model store did for a computed answer: None when it was not asked (auto).
+FittedState = str | None
+Computed = tuple[StoredResponse, FittedState]
 
 
 @dataclass(frozen=True)
 class Answer:
-    """A response body (without provenance) and whether it came from the cache."""
+    """A finished response, its ``provenance.cache`` state and its Cache-Status header."""
 
-    body: dict[str, Any]
-    cache: str
+    stored: StoredResponse
+    state: str
+    status: str
+
+    def body(self) -> bytes:
+        """The JSON bytes sent to the caller."""
+        return self.stored.body(self.state)
 
 
-def response_key(request_body: dict[str, Any], y: Any, seasonal_period: int) -> Key:
-    """The whole request: canonical series bytes plus every other field as sorted JSON."""
-    options = dict(request_body)
-    wire = dict(options.pop("series", {}) or {})
-    for bulky in ("values", "timestamps", "start"):
-        wire.pop(bulky, None)  # carried by the parsed series' canonical bytes
+def cache_status(state: str, layer: str = "memory", fitted: FittedState = None) -> str:
+    """The Cache-Status value: the fitted-model store first (nearest the origin), then ours."""
+    if state == "off":
+        return f"{RESPONSES}; fwd=bypass"
+    if state == "hit":
+        return f"{RESPONSES}; hit; detail={layer}"
+    response = f"{RESPONSES}; fwd=miss; stored"
+    if fitted == "hit":
+        return f"{FITTED}; hit, {response}"
+    if fitted is not None:
+        return f"{FITTED}; fwd=miss; stored, {response}"
+    return response
+
+
+MEMORY_HIT = cache_status("hit")
+
+
+def provenance_fields() -> dict[str, Any]:
+    """The parts of ``provenance`` that depend on this deployment, not on the request."""
+    return {"service_version": __version__, "library_versions": runtime_versions()}
+
+
+@cache
+def _deployment() -> bytes:
+    return canonical_json(provenance_fields())
+
+
+def wire_key(path: str, raw: bytes, content_type: bytes, accept: bytes, query: bytes = b"") -> Key:
+    """Key of the request exactly as sent: its body bytes, the headers that shape the answer,
+    and the deployment's provenance. Hashing the bytes costs a few microseconds, where
+    re-serializing the JSON in a canonical order cost more than validating it; the same
+    request formatted differently is caught after validation (``validated_key``)."""
     return (
-        KeyBuilder("response")
-        .series(y)
-        .text("seasonal_period", str(int(seasonal_period)))
-        .json("series_options", wire)
-        .json("options", options)
-        .versions()
+        KeyBuilder("request")
+        .text("path", path)
+        .raw("query", query)
+        .raw("content_type", content_type)
+        .raw("accept", accept)
+        .raw("body", raw)
+        .raw("provenance", _deployment())
         .finish()
     )
 
 
-async def answer(
-    request: Request,
-    response: Response,
-    key: Key,
-    family: str,
-    observations: int,
-    compute: Callable[[], Awaitable[dict[str, Any]]],
-) -> Answer:
-    """The cached body for ``key``, or ``compute()`` run once, timed and stored."""
+def validated_key(body: dict[str, Any], accept: str) -> Key:
+    """Key of the validated request (defaults filled in): batch items share it."""
+    return (
+        KeyBuilder("validated request")
+        .text("path", FORECASTS_PATH)
+        .text("accept", accept)
+        .json("body", body)
+        .raw("provenance", _deployment())
+        .finish()
+    )
+
+
+def stored_response(
+    body: dict[str, Any], provenance: dict[str, Any], observations: int
+) -> StoredResponse:
+    """Check ``body`` against the response schema and serialize it once, as FastAPI would,
+    with ``provenance`` last and a gap where its ``cache`` state goes."""
+    checked = ForecastResponse.model_validate(
+        {**body, "provenance": {**provenance, "cache": "hit"}}
+    )
+    plain = checked.model_dump(mode="json")
+    fixed = plain.pop("provenance")
+    del fixed["cache"]
+    head = _json(plain)[:-1] + b',"provenance":{"cache":"'
+    rest = _json(fixed)[1:]
+    tail = b'"' + (b"," + rest if rest != b"}" else rest) + b"}"
+    model = plain.get("model") or {}
+    label = str(model["label"]) if isinstance(model, dict) and model.get("label") else None
+    return StoredResponse(head, tail, label, observations)
+
+
+def _json(value: Any) -> bytes:
+    """Starlette's JSONResponse rendering."""
+    return json.dumps(
+        value, ensure_ascii=False, allow_nan=False, indent=None, separators=(",", ":")
+    ).encode("utf-8")
+
+
+async def answer(request: Request, key: Key, compute: Callable[[], Awaitable[Computed]]) -> Answer:
+    """The stored answer for ``key`` (memory, then disk), or ``compute()`` run once."""
     cache: Cache = request.app.state.cache
     telemetry: Telemetry = request.app.state.telemetry
-    telemetry.record_series_length(observations)
-    request.state.series_length = observations
-    found = cache.get_response(key)
-    if cache.enabled:
+    if not cache.enabled:
+        stored, _ = await compute()
+        return _finish(request, telemetry, Answer(stored, "off", cache_status("off")))
+    flights: dict[str, asyncio.Future[None]] = request.app.state.flights
+    while True:
+        found = cache.get_response(key)
+        if found.hit:
+            break
+        running = flights.get(key.digest)
+        if running is None:
+            break
+        # An identical request is being computed: wait for it rather than compute again.
+        await asyncio.shield(running)
+    if found.hit and found.value is not None:
+        telemetry.record_cache("response", "hit")
+        return _finish(request, telemetry, Answer(found.value, "hit", MEMORY_HIT))
+    done: asyncio.Future[None] = asyncio.get_running_loop().create_future()
+    flights[key.digest] = done
+    try:
+        found = await asyncio.to_thread(cache.load_response, key)
         telemetry.record_cache("response", found.result)
-    if found.hit and isinstance(found.value, dict):
-        return _finish(request, response, Answer(found.value, "hit"))
-    body = await _timed(telemetry, family, compute)
-    if cache.enabled:
-        cache.put_response(key, body, size_estimate(body))
-    selection = body.get("selection")
-    if selection:
-        telemetry.record_selection(str(body.get("model", {}).get("family", "unknown")))
-    return _finish(request, response, Answer(body, "miss" if cache.enabled else "off"))
+        if found.hit and found.value is not None:
+            return _finish(
+                request, telemetry, Answer(found.value, "hit", cache_status("hit", "disk"))
+            )
+        stored, fitted = await compute()
+        cache.put_response(key, stored)
+        await asyncio.to_thread(cache.save_response, key, stored)
+        return _finish(
+            request, telemetry, Answer(stored, "miss", cache_status("miss", fitted=fitted))
+        )
+    finally:
+        del flights[key.digest]
+        done.set_result(None)
 
 
-async def _timed(
-    telemetry: Telemetry, family: str, compute: Callable[[], Awaitable[dict[str, Any]]]
-) -> dict[str, Any]:
+async def timed(telemetry: Telemetry, family: str, compute: Callable[[], Awaitable[Any]]) -> Any:
+    """Run the work, recording its time or the reason it failed, by family."""
     reasons: dict[type[BaseException], str] = {
         BudgetExceeded: "budget",
         WorkerCrashed: "crash",
@@ -90,28 +182,20 @@ async def _timed(
     }
     started = time.perf_counter()
     try:
-        body = await compute()
+        result = await compute()
     except tuple(reasons) as exc:
         reason = next(r for kind, r in reasons.items() if isinstance(exc, kind))
         telemetry.record_fit_failure(family, reason)
         raise
     telemetry.record_fit(family, time.perf_counter() - started)
-    return body
-
-
-def _finish(request: Request, response: Response, result: Answer) -> Answer:
-    response.headers["Cache-Status"] = _STATUS[result.cache]
-    request.state.cache = result.cache
-    model = result.body.get("model") or {}
-    if isinstance(model, dict) and model.get("label"):
-        request.state.model_label = str(model["label"])
     return result
 
 
-def size_estimate(body: dict[str, Any]) -> int:
-    """Rough bytes held by a body: ~32 per number kept, plus a fixed overhead."""
-    numbers = len(body.get("point", []))
-    for interval in body.get("intervals", []):
-        numbers += len(interval.get("lower", [])) + len(interval.get("upper", []))
-    numbers += len(body.get("fitted") or []) + len(body.get("residuals") or [])
-    return 32 * numbers + 4096
+def _finish(request: Request, telemetry: Telemetry, result: Answer) -> Answer:
+    request.state.cache = result.state
+    if result.stored.label:
+        request.state.model_label = result.stored.label
+    if result.stored.observations is not None:
+        request.state.series_length = result.stored.observations
+        telemetry.record_series_length(result.stored.observations)
+    return result

@@ -66,16 +66,22 @@ class BodyLimitMiddleware:
             chunks.append(chunk)
             if not message.get("more_body", False):
                 break
-        replayed = False
+        whole: Message = {"type": "http.request", "body": b"".join(chunks), "more_body": False}
+        await self.app(scope, replay(whole, receive), send)
 
-        async def replay() -> Message:
-            nonlocal replayed
-            if replayed:
-                return await receive()
-            replayed = True
-            return {"type": "http.request", "body": b"".join(chunks), "more_body": False}
 
-        await self.app(scope, replay, send)
+def replay(first: Message, receive: Receive) -> Receive:
+    """A receive that gives ``first`` again, then the rest of the stream."""
+    given = False
+
+    async def again() -> Message:
+        nonlocal given
+        if given:
+            return await receive()
+        given = True
+        return first
+
+    return again
 
 
 async def _too_large(scope: Scope, send: Send, limit: int) -> None:

@@ -1,10 +1,13 @@
-"""The two cache levels: finished responses in memory, fitted models on disk with joblib.
+"""The two cache layers: finished responses (memory and disk) and fitted models (disk).
 
-A response is keyed by the whole request and kept in an in-process LRU; a fitted model
-(specification + parameters, designed to pickle small) is keyed by data, specification and
-fit options and persisted under a 0700 directory, so a new horizon or coverage needs no
-refit. The disk level never fails a request: a bad entry is a miss, a bad directory turns
-the level off with a warning.
+Layer 1 holds finished responses as JSON bytes, keyed by the request itself (before any
+series parsing), in an in-process LRU and on disk, so that HTTP processes, replicas sharing
+the directory and restarts reuse them. Layer 2 holds fitted models (specification and
+parameters, designed to pickle small) keyed by data, specification and fit options, so a new
+horizon or coverage needs no refit. Every disk entry is sealed (``runtime/sealed.py``): a
+pickle is loaded only after its keyed hash verifies. The disk never fails a request and
+never turns itself off for good: a bad entry is deleted and recomputed, a failed write is
+reported as degraded and tried again after ``RETRY_SECONDS``.
 """
 
 from __future__ import annotations
@@ -12,26 +15,29 @@ from __future__ import annotations
 import contextlib
 import logging
 import os
+import pickle
 import tempfile
 import threading
 import time
 from collections import OrderedDict
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Generic, Literal, TypeVar
 
-import joblib
-
 from service.runtime.keys import Key
+from service.runtime.sealed import BadEntry, Opened, Sealer
 
 log = logging.getLogger("windvane.cache")
 
 V = TypeVar("V")
 Result = Literal["hit", "miss", "error"]
 
-_SUFFIX = ".joblib"
+_SUFFIX = ".entry"
 # Evict down to this share of the bound, so a full store does not evict on every write.
 _EVICT_TO = 0.9
+# After a failed write, writes wait this long before being tried again.
+RETRY_SECONDS = 30.0
 
 
 @dataclass(frozen=True)
@@ -40,6 +46,7 @@ class Lookup(Generic[V]):
 
     result: Result
     value: V | None = None
+    layer: str = "memory"
 
     @property
     def hit(self) -> bool:
@@ -48,13 +55,55 @@ class Lookup(Generic[V]):
 
 
 @dataclass(frozen=True)
+class StoredResponse:
+    """A finished response as JSON bytes, ``head + cache state + tail``.
+
+    ``provenance.cache`` is the only part that differs between the answer that computed it
+    (``miss``) and later hits, so it is left as a gap filled in per request: a hit is then
+    two byte concatenations, with no parsing and no serialization.
+    """
+
+    head: bytes
+    tail: bytes
+    label: str | None = None
+    observations: int | None = None
+
+    def body(self, state: str) -> bytes:
+        """The response bytes with ``provenance.cache`` set to ``state``."""
+        return b"".join((self.head, state.encode(), self.tail))
+
+    @property
+    def size(self) -> int:
+        """Bytes held."""
+        return len(self.head) + len(self.tail) + 200
+
+    def meta(self) -> dict[str, Any]:
+        """What the disk entry keeps beside the bytes."""
+        return {"gap": len(self.head), "label": self.label, "observations": self.observations}
+
+    @classmethod
+    def from_entry(cls, opened: Opened) -> StoredResponse:
+        """Rebuild from a checked disk entry; BadEntry when its metadata does not fit."""
+        gap = opened.meta.get("gap")
+        if opened.kind != "json" or not isinstance(gap, int) or not 0 < gap < len(opened.payload):
+            raise BadEntry("not a stored response")
+        label, observations = opened.meta.get("label"), opened.meta.get("observations")
+        return cls(
+            opened.payload[:gap],
+            opened.payload[gap:],
+            label if isinstance(label, str) else None,
+            observations if isinstance(observations, int) else None,
+        )
+
+
+@dataclass(frozen=True)
 class CacheState:
-    """What /readyz reports: whether each level is on and, if the disk level is off, why."""
+    """What /readyz reports: whether each level is on and, if the disk is failing, why."""
 
     enabled: bool
     responses: int
-    fitted_entries: int
-    fitted_bytes: int
+    disk_entries: int
+    disk_bytes: int
     directory: str | None
     degraded: str | None
 
@@ -102,13 +151,23 @@ class ResponseCache(Generic[V]):
         return self._bytes
 
 
-class FitStore:
-    """Fitted models persisted with joblib, bounded in bytes, oldest-used evicted first."""
+class DiskStore:
+    """Sealed entries in a 0700 directory, bounded in bytes, oldest-used evicted first.
 
-    def __init__(self, directory: Path, max_bytes: int) -> None:
+    Reads go on whatever happens to writes (a read-only volume still serves its entries);
+    a failed write marks the store degraded and later writes wait ``retry_seconds`` before
+    trying again, so a full or read-only disk costs one failed attempt per interval.
+    """
+
+    def __init__(
+        self, directory: Path, max_bytes: int, sealer: Sealer, retry_seconds: float = RETRY_SECONDS
+    ) -> None:
         self.directory = directory
         self.max_bytes = max_bytes
+        self.sealer = sealer
+        self.retry_seconds = retry_seconds
         self.degraded: str | None = None
+        self._retry_at = 0.0
         self._lock = threading.Lock()
         # digest -> (bytes, last use); ordered oldest-used first.
         self._index: OrderedDict[str, tuple[int, float]] = OrderedDict()
@@ -117,47 +176,42 @@ class FitStore:
             prepare_directory(directory)
             self._scan()
         except OSError as exc:
-            self._degrade(f"cache directory {directory} is not usable: {exc}")
+            self._failed(f"cache directory {directory} is not usable: {exc}")
 
-    @property
-    def usable(self) -> bool:
-        """False once the directory proved unwritable: the store then does nothing."""
-        return self.degraded is None
-
-    def load(self, key: Key) -> Lookup[Any]:
-        """The fitted model stored under ``key``; a corrupt entry is removed and reported."""
-        if not self.usable:
-            return Lookup("miss")
+    def read(self, key: Key) -> Lookup[Opened]:
+        """The checked entry under ``key``; a bad one is deleted and reported as ``error``."""
         path = self._path(key)
         try:
-            entry = joblib.load(path)
+            data = path.read_bytes()
         except FileNotFoundError:
-            return Lookup("miss")
-        except Exception as exc:  # any unpickling failure means a bad entry, never a 500
-            log.warning("discarding unreadable cache entry %s: %s", path.name, exc)
-            self._discard(key)
-            return Lookup("error")
-        if not isinstance(entry, dict) or entry.get("key") != key.digest:
-            log.warning("discarding cache entry %s that belongs to another key", path.name)
-            self._discard(key)
-            return Lookup("error")
-        self._touch(key, path)
-        return Lookup("hit", entry["value"])
+            return Lookup("miss", layer="disk")
+        except OSError as exc:
+            log.warning("cannot read cache entry %s: %s", path.name, exc.strerror)
+            return Lookup("miss", layer="disk")
+        try:
+            opened = self.sealer.open(key.digest, data)
+        except BadEntry as exc:
+            log.warning("discarding cache entry %s: %s", path.name, exc)
+            self.discard(key)
+            return Lookup("error", layer="disk")
+        self._touch(key, path, len(data))
+        return Lookup("hit", opened, layer="disk")
 
-    def save(self, key: Key, value: Any) -> bool:
-        """Persist ``value`` atomically; a failing disk turns the store off instead of raising."""
-        if not self.usable:
+    def write(self, key: Key, kind: str, payload: bytes, meta: dict[str, Any]) -> bool:
+        """Seal and write atomically; a failure degrades the store until a retry succeeds."""
+        if self.degraded is not None and time.monotonic() < self._retry_at:
             return False
         path = self._path(key)
         try:
+            prepare_directory(self.directory)
             path.parent.mkdir(mode=0o700, exist_ok=True)
-            size = _write_atomically(path, {"key": key.digest, "value": value})
+            size = _write_atomically(path, self.sealer.seal(key.digest, kind, payload, meta))
         except OSError as exc:
-            self._degrade(f"cache directory {self.directory} is not writable: {exc}")
+            self._failed(f"cache directory {self.directory} is not writable: {exc}")
             return False
-        except Exception as exc:  # an object that will not pickle is skipped, not fatal
-            log.warning("not caching a fitted model that cannot be stored: %s", exc)
-            return False
+        if self.degraded is not None:
+            log.warning("cache directory %s is writable again", self.directory)
+            self.degraded = None
         with self._lock:
             old = self._index.pop(key.digest, None)
             if old is not None:
@@ -168,6 +222,15 @@ class FitStore:
         if over:
             self._evict()
         return True
+
+    def discard(self, key: Key) -> None:
+        """Remove the entry under ``key`` if there is one."""
+        with contextlib.suppress(OSError):
+            self._path(key).unlink()
+        with self._lock:
+            item = self._index.pop(key.digest, None)
+            if item is not None:
+                self._bytes -= item[0]
 
     @property
     def entries(self) -> int:
@@ -183,12 +246,13 @@ class FitStore:
     def _path(self, key: Key) -> Path:
         return self.directory / key.digest[:2] / f"{key.digest}{_SUFFIX}"
 
-    def _degrade(self, reason: str) -> None:
+    def _failed(self, reason: str) -> None:
         if self.degraded is None:
-            log.warning("%s; running without the fitted-model cache", reason)
+            log.warning("%s; writes will be tried again in %g s", reason, self.retry_seconds)
         self.degraded = reason
+        self._retry_at = time.monotonic() + self.retry_seconds
 
-    def _touch(self, key: Key, path: Path) -> None:
+    def _touch(self, key: Key, path: Path, size: int) -> None:
         now = time.time()
         # The file time carries "last used" across restarts and across processes sharing
         # the directory; failing to set it only makes eviction order less exact.
@@ -196,18 +260,8 @@ class FitStore:
             os.utime(path, (now, now))
         with self._lock:
             item = self._index.pop(key.digest, None)
-            size = item[0] if item is not None else _size_of(path)
             self._index[key.digest] = (size, now)
-            if item is None:
-                self._bytes += size
-
-    def _discard(self, key: Key) -> None:
-        with contextlib.suppress(OSError):
-            self._path(key).unlink()
-        with self._lock:
-            item = self._index.pop(key.digest, None)
-            if item is not None:
-                self._bytes -= item[0]
+            self._bytes += size - (item[0] if item is not None else 0)
 
     def _scan(self) -> None:
         """Rebuild the index from the disk (other processes may share the directory)."""
@@ -224,7 +278,8 @@ class FitStore:
             self._bytes = sum(size for _, _, size in found)
 
     def _evict(self) -> None:
-        self._scan()
+        with contextlib.suppress(OSError):
+            self._scan()
         with self._lock:
             victims = []
             total = self._bytes
@@ -234,41 +289,39 @@ class FitStore:
                 victims.append(digest)
                 total -= size
         for digest in victims:
-            self._discard(Key(digest))
+            self.discard(Key(digest))
+
+
+def _unpickled(opened: Opened) -> Any:
+    """The fitted model of a checked entry (never called on one that failed its seal)."""
+    if opened.kind != "pickle":
+        raise BadEntry("not a fitted model")
+    return pickle.loads(opened.payload)
 
 
 def prepare_directory(directory: Path) -> None:
-    """Create the cache directory 0700 (it holds pickles: trusted input) and prove it writable."""
+    """Create the cache directory 0700 and make it private if it is not."""
     directory.mkdir(mode=0o700, parents=True, exist_ok=True)
     if directory.stat().st_mode & 0o077:
         directory.chmod(0o700)
-    with tempfile.NamedTemporaryFile(dir=directory, prefix=".probe-"):
-        pass
 
 
-def _write_atomically(path: Path, entry: dict[str, Any]) -> int:
-    """Dump to a temporary file beside ``path`` and rename it over, so readers never see half."""
+def _write_atomically(path: Path, data: bytes) -> int:
+    """Write to a temporary file beside ``path`` and rename it over, so readers never see half."""
     handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=".tmp-", suffix=_SUFFIX)
-    os.close(handle)
     try:
-        joblib.dump(entry, temporary)
+        with os.fdopen(handle, "wb") as out:
+            out.write(data)
         os.replace(temporary, path)
     except BaseException:
         with contextlib.suppress(OSError):
             os.unlink(temporary)
         raise
-    return _size_of(path)
-
-
-def _size_of(path: Path) -> int:
-    try:
-        return path.stat().st_size
-    except OSError:
-        return 0
+    return len(data)
 
 
 class Cache:
-    """Both levels behind one switch: ``enabled=False`` (``WINDVANE_CACHE=off``) never hits."""
+    """Both layers behind one switch: ``enabled=False`` (``WINDVANE_CACHE=off``) never hits."""
 
     def __init__(
         self,
@@ -278,36 +331,76 @@ class Cache:
         max_bytes: int,
         response_entries: int,
         response_bytes: int,
+        secret: bytes | None = None,
+        retry_seconds: float = RETRY_SECONDS,
     ) -> None:
         self.enabled = enabled
-        self.responses: ResponseCache[Any] = ResponseCache(response_entries, response_bytes)
-        self.fits: FitStore | None = FitStore(directory, max_bytes) if enabled else None
+        self.responses: ResponseCache[StoredResponse] = ResponseCache(
+            response_entries, response_bytes
+        )
+        self.disk: DiskStore | None = (
+            DiskStore(directory, max_bytes, Sealer(secret), retry_seconds) if enabled else None
+        )
 
-    def get_response(self, key: Key) -> Lookup[Any]:
-        """A finished response for the whole request, from memory."""
+    def get_response(self, key: Key) -> Lookup[StoredResponse]:
+        """A finished response from memory (cheap: safe on the event loop)."""
         return self.responses.get(key) if self.enabled else Lookup("miss")
 
-    def put_response(self, key: Key, value: Any, size: int) -> None:
+    def put_response(self, key: Key, value: StoredResponse) -> None:
         """Keep a finished response in memory."""
         if self.enabled:
-            self.responses.put(key, value, size)
+            self.responses.put(key, value, value.size)
+
+    def load_response(self, key: Key) -> Lookup[StoredResponse]:
+        """A finished response from disk, kept in memory too (blocking: off the event loop)."""
+        found = self._load(key, StoredResponse.from_entry)
+        if found.hit and found.value is not None:
+            self.put_response(key, found.value)
+        return found
+
+    def save_response(self, key: Key, value: StoredResponse) -> bool:
+        """Persist a finished response as plain JSON bytes (blocking: off the event loop)."""
+        if self.disk is None:
+            return False
+        return self.disk.write(key, "json", value.head + value.tail, value.meta())
 
     def load_fitted(self, key: Key) -> Lookup[Any]:
-        """A fitted model from disk (blocking file I/O: call it off the event loop)."""
-        return self.fits.load(key) if self.fits is not None else Lookup("miss")
+        """A fitted model from disk, unpickled only once its seal verifies (blocking)."""
+        return self._load(key, _unpickled)
 
     def save_fitted(self, key: Key, value: Any) -> bool:
-        """Persist a fitted model (blocking file I/O: call it off the event loop)."""
-        return self.fits.save(key, value) if self.fits is not None else False
+        """Persist a fitted model, sealed (blocking: call it off the event loop)."""
+        if self.disk is None:
+            return False
+        try:
+            payload = pickle.dumps(value, protocol=pickle.HIGHEST_PROTOCOL)
+        except Exception as exc:  # an object that will not pickle is skipped, not fatal
+            log.warning("not caching a fitted model that cannot be stored: %s", exc)
+            return False
+        return self.disk.write(key, "pickle", payload, {})
+
+    def _load(self, key: Key, decode: Callable[[Opened], V]) -> Lookup[V]:
+        """Read, check and decode an entry; one that fails to decode is deleted."""
+        if self.disk is None:
+            return Lookup("miss", layer="disk")
+        found = self.disk.read(key)
+        if not found.hit or found.value is None:
+            return Lookup(found.result, layer="disk")
+        try:
+            return Lookup("hit", decode(found.value), layer="disk")
+        except Exception as exc:  # authentic but unusable (a class changed): recompute
+            log.warning("discarding cache entry %s: %s", key.digest, exc)
+            self.disk.discard(key)
+            return Lookup("error", layer="disk")
 
     def state(self) -> CacheState:
-        """The levels' sizes and any degradation, for /readyz."""
-        fits = self.fits
+        """The layers' sizes and any degradation, for /readyz."""
+        disk = self.disk
         return CacheState(
             enabled=self.enabled,
             responses=len(self.responses) if self.enabled else 0,
-            fitted_entries=fits.entries if fits is not None else 0,
-            fitted_bytes=fits.size_bytes if fits is not None else 0,
-            directory=str(self.fits.directory) if self.fits is not None else None,
-            degraded=self.fits.degraded if self.fits is not None else None,
+            disk_entries=disk.entries if disk is not None else 0,
+            disk_bytes=disk.size_bytes if disk is not None else 0,
+            directory=str(disk.directory) if disk is not None else None,
+            degraded=disk.degraded if disk is not None else None,
         )

@@ -34,7 +34,9 @@ def test_a_new_horizon_reuses_the_stored_fit(make_client: Any, tmp_path: Path) -
         second = client.post("/v1/forecasts", json=_body(6))
         assert second.status_code == 200
         # A response-cache miss (new horizon) answered from the same fitted model.
-        assert second.headers["cache-status"].endswith("fwd=miss; stored")
+        assert second.headers["cache-status"] == (
+            "windvane-fitted; hit, windvane-response; fwd=miss; stored"
+        )
         assert second.json()["point"][:3] == first.json()["point"]
         assert second.json()["model"]["parameters"] == first.json()["model"]["parameters"]
         metrics = client.get("/metrics").text

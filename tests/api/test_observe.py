@@ -52,8 +52,11 @@ def test_second_request_is_a_byte_identical_hit(client: TestClient) -> None:
     first = client.post("/v1/forecasts", json=body)
     second = client.post("/v1/forecasts", json=body)
     assert first.status_code == second.status_code == 200, first.text
-    assert first.headers["cache-status"] == "windvane; fwd=miss; stored"
-    assert second.headers["cache-status"] == "windvane; hit"
+    assert first.headers["cache-status"] == (
+        "windvane-fitted; fwd=miss; stored, windvane-response; fwd=miss; stored"
+    )
+    assert second.headers["cache-status"] == "windvane-response; hit; detail=memory"
+    assert first.content.replace(b'"cache":"miss"', b'"cache":"hit"') == second.content
     assert first.json()["provenance"]["cache"] == "miss"
     assert second.json()["provenance"]["cache"] == "hit"
     a, b = first.json(), second.json()
@@ -74,7 +77,7 @@ def test_cache_off_never_hits(tmp_path: Path) -> None:
     with client_for(tmp_path, cache="off") as c:
         c.post("/v1/forecasts", json=BODY)
         again = c.post("/v1/forecasts", json=BODY)
-    assert again.headers["cache-status"] == "windvane; fwd=bypass"
+    assert again.headers["cache-status"] == "windvane-response; fwd=bypass"
     assert again.json()["provenance"]["cache"] == "off"
     assert not (tmp_path / "cache").exists()
 

@@ -3,11 +3,11 @@
 from __future__ import annotations
 
 import asyncio
+import json
 from typing import Annotated, Any
 
 from fastapi import APIRouter, Body, Request, Response
 
-from service import __version__
 from service.api import caching, examples
 from service.api.dependencies import PoolDep, SettingsDep, get_cache, get_telemetry
 from service.api.problems import PROBLEM_RESPONSES
@@ -16,18 +16,20 @@ from service.api.tasks import forecast_task
 from service.config import Settings
 from service.core.models.base import as_dict
 from service.runtime import jobs
-from service.runtime.keys import data_key, fit_key, runtime_versions
+from service.runtime.keys import data_key, fit_key
 from service.runtime.pool import WorkPool
 
 router = APIRouter(prefix="/v1", tags=["forecasts"])
 
 
-async def _computed(request: Request, pool: WorkPool, task: jobs.ForecastTask) -> dict[str, Any]:
+async def _computed(
+    request: Request, pool: WorkPool, task: jobs.ForecastTask
+) -> tuple[dict[str, Any], caching.FittedState]:
     """Run the work; an explicit specification's fitted model is kept in the fit store so
     that a new horizon or coverage on the same data needs no refit."""
-    if task.specification is None:
-        return dict(await pool.run(jobs.forecast, task))
     cache = get_cache(request)
+    if task.specification is None or not cache.enabled:
+        return dict(await pool.run(jobs.forecast, task)), None
     telemetry = get_telemetry(request)
     options: dict[str, Any] = {"transform": task.transform}
     if task.regressors is not None:
@@ -35,14 +37,12 @@ async def _computed(request: Request, pool: WorkPool, task: jobs.ForecastTask) -
         options["regressors"] = {str(c): history[c].tolist() for c in history.columns}
     key = fit_key(task.y, task.seasonal_period, as_dict(task.specification), options)
     stored = await asyncio.to_thread(cache.load_fitted, key)
-    if cache.enabled:
-        telemetry.record_cache("fitted", stored.result)
+    telemetry.record_cache("fitted", stored.result)
     if stored.hit and isinstance(stored.value, jobs.FittedBundle):
-        return dict(await pool.run(jobs.forecast_from, stored.value, task))
+        return dict(await pool.run(jobs.forecast_from, stored.value, task)), "hit"
     body, bundle = await pool.run(jobs.fit_and_forecast, task)
-    if cache.enabled:
-        await asyncio.to_thread(cache.save_fitted, key, bundle)
-    return dict(body)
+    await asyncio.to_thread(cache.save_fitted, key, bundle)
+    return dict(body), "miss"
 
 
 @router.post(
@@ -56,10 +56,36 @@ async def create_forecast(
     pool: PoolDep,
     settings: SettingsDep,
     request: Request,
-    response: Response,
-) -> dict[str, Any]:
+) -> Response:
     """Fit the given model (or choose one) and return point forecasts with intervals."""
-    return await answer_forecast(body, pool, settings, request, response)
+    found = await forecast_answer(body, pool, settings, request)
+    if found.state != "off":
+        request.state.stored_response = found.stored  # kept under the request bytes' key too
+    return Response(
+        found.body(), media_type="application/json", headers={"Cache-Status": found.status}
+    )
+
+
+async def forecast_answer(
+    body: ForecastRequest, pool: WorkPool, settings: Settings, request: Request
+) -> caching.Answer:
+    """One forecast through the response cache, validation, the fit store and the pool."""
+    accept = request.headers.get("accept", "")
+    key = caching.validated_key(body.model_dump(mode="json"), accept)
+    telemetry = get_telemetry(request)
+
+    async def compute() -> caching.Computed:
+        task, series = forecast_task(body, settings)
+        family = task.specification.family if task.specification is not None else "auto"
+        result, fitted = await caching.timed(
+            telemetry, family, lambda: _computed(request, pool, task)
+        )
+        if result.get("selection"):
+            telemetry.record_selection(str(result.get("model", {}).get("family", "unknown")))
+        provenance = {"data_hash": data_key(series.y).label, **caching.provenance_fields()}
+        return caching.stored_response(result, provenance, len(series.y)), fitted
+
+    return await caching.answer(request, key, compute)
 
 
 async def answer_forecast(
@@ -69,20 +95,7 @@ async def answer_forecast(
     request: Request,
     response: Response,
 ) -> dict[str, Any]:
-    """One forecast through validation, the caches and the pool (also used by batches)."""
-    task, series = forecast_task(body, settings)
-    key = caching.response_key(body.model_dump(mode="json"), series.y, series.seasonal_period)
-    family = task.specification.family if task.specification is not None else "auto"
-    found = await caching.answer(
-        request, response, key, family, len(series.y), lambda: _computed(request, pool, task)
-    )
-    # A new dict each time: the cached body itself is never changed.
-    return {
-        **found.body,
-        "provenance": {
-            "data_hash": data_key(series.y).label,
-            "cache": found.cache,
-            "service_version": __version__,
-            "library_versions": runtime_versions(),
-        },
-    }
+    """One forecast as a plain body (batches), with its Cache-Status on ``response``."""
+    found = await forecast_answer(body, pool, settings, request)
+    response.headers["Cache-Status"] = found.status
+    return dict(json.loads(found.body()))
