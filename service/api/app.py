@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import asyncio
+import logging
 from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
 
@@ -19,6 +21,8 @@ from service.runtime.cache import Cache
 from service.runtime.logs import request_logger
 from service.runtime.pool import PoolStats, WorkPool
 from service.runtime.telemetry import Telemetry
+
+log = logging.getLogger("windvane")
 
 DESCRIPTION = (
     "Windvane takes a time series as JSON and returns diagnostics (is it stationary, "
@@ -40,6 +44,11 @@ def description(settings: Settings) -> str:
         f"- CPU time per request: {settings.fit_seconds:g} s (`WINDVANE_FIT_SECONDS`)\n"
         f"- requests waiting for a worker: {settings.queue_size} (`WINDVANE_QUEUE_SIZE`)"
     )
+
+
+def _report_failed_start(task: asyncio.Task[int]) -> None:
+    if not task.cancelled() and task.exception() is not None:
+        log.error("the worker pool failed to start", exc_info=task.exception())
 
 
 def create_app(settings: Settings | None = None) -> FastAPI:
@@ -71,12 +80,17 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             max_jobs_per_worker=settings.pool_max_jobs,
             on_change=occupancy,
             on_recycle=telemetry.record_recycle,
+            start=False,
         )
         app.state.pool = pool
-        await pool.wait_until_ready()
+        # The server listens at once: /healthz answers while the workers start and warm up,
+        # /readyz says 503 until they are ready, and work requests wait for a worker.
+        starting = asyncio.create_task(pool.start())
+        starting.add_done_callback(_report_failed_start)
         try:
             yield
         finally:
+            starting.cancel()
             pool.close()
             telemetry.close()
 

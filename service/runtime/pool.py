@@ -113,6 +113,14 @@ class _Worker:
         child.close()
         self.ready = False
         self.jobs = 0
+        self.watched_by: asyncio.AbstractEventLoop | None = None
+
+    def unwatch(self) -> None:
+        """Stop watching for this process's exit (it is being replaced or stopped)."""
+        loop, self.watched_by = self.watched_by, None
+        if loop is not None:
+            with contextlib.suppress(Exception):  # a closed loop has nothing to remove
+                loop.remove_reader(self.process.sentinel)
 
     def stop(self, kill: bool) -> None:
         """Ask an idle worker to exit, or kill a busy one; never blocks for long."""
@@ -139,6 +147,7 @@ class WorkPool:
         max_jobs_per_worker: int = 0,
         on_change: Callable[[PoolStats], None] | None = None,
         on_recycle: Callable[[str], None] | None = None,
+        start: bool = True,
     ) -> None:
         self.workers = workers
         self.queue_size = queue_size
@@ -160,8 +169,10 @@ class WorkPool:
         self._recycled = 0
         self._mean_seconds = 1.0
         self._closed = False
-        for _ in range(workers):
-            self._spawn()
+        self._started = start
+        if start:
+            for _ in range(workers):
+                self._spawn()
         self._changed()
 
     # --- public -----------------------------------------------------------------------
@@ -180,6 +191,45 @@ class WorkPool:
         finally:
             self._admitted -= 1
             self._changed()
+
+    async def start(self) -> int:
+        """Start the workers of a pool built with ``start=False``, off the event loop; returns
+        how many sent their start-up message in time.
+
+        The first worker boots the fork server, which imports and warms up the statistics
+        (seconds of CPU): run in a thread, the server listens and answers /healthz meanwhile.
+        Each worker's start-up message is read before any job can have it, so no job waits.
+        """
+        ready = 0
+        while len(self._all) < self.workers and not self._closed:
+            worker = await asyncio.to_thread(_Worker, self._context, self._preload)
+            if self._closed:
+                worker.stop(kill=True)
+                break
+            with contextlib.suppress(TimeoutError, EOFError, OSError):
+                worker.ready = await _receive(worker, STARTUP_SECONDS) == _READY
+            ready += worker.ready
+            self._all.add(worker)
+            self._watch(worker)
+            self._release(worker)
+            self._changed()
+        self._started = True
+        return ready
+
+    def readiness(self) -> str:
+        """Whether the pool can take work now (/readyz says 503 unless ``ok``): ``warming``
+        until ``start`` is done, ``broken`` when closed or a worker is missing or dead,
+        ``saturated`` when the queue is full. A replacement worker forks from the warm fork
+        server in milliseconds, so it counts at once."""
+        if self._closed or (self._started and not self.alive()):
+            return "broken"
+        if not self._started:
+            return "warming"
+        if len(self._all) < self.workers:
+            return "broken"
+        if self._admitted >= self.workers + self.queue_size:
+            return "saturated"
+        return "ok"
 
     async def wait_until_ready(self, timeout: float | None = None) -> int:
         """Wait for every idle worker's start-up message; returns how many are ready.
@@ -227,6 +277,7 @@ class WorkPool:
                 waiter.set_exception(PoolClosed("the pool is shut down"))
         self._waiters.clear()
         for worker in list(self._all):
+            worker.unwatch()
             worker.stop(kill=worker not in self._idle)
         for worker in list(self._all):
             worker.process.join(timeout=1.0)
@@ -240,7 +291,26 @@ class WorkPool:
     def _spawn(self) -> None:
         worker = _Worker(self._context, self._preload)
         self._all.add(worker)
+        self._watch(worker)
         self._release(worker)
+
+    def _watch(self, worker: _Worker) -> None:
+        """Replace the worker as soon as its process exits while idle (out-of-memory killer,
+        an operator), so readiness heals without waiting for a request to find it dead."""
+        try:
+            loop = asyncio.get_running_loop()
+        except RuntimeError:
+            return  # no loop (a pool driven by asyncio.run per call): found dead at _acquire
+        loop.add_reader(worker.process.sentinel, self._exited, worker)
+        worker.watched_by = loop
+
+    def _exited(self, worker: _Worker) -> None:
+        worker.unwatch()
+        if worker in self._idle and not self._closed:
+            self._idle.remove(worker)
+            self._replace(worker, "crash")
+            self._changed()
+        # A busy worker's job sees its pipe close and reports the crash itself.
 
     def _release(self, worker: _Worker) -> None:
         while self._waiters:
@@ -325,6 +395,7 @@ class WorkPool:
 
     def _replace(self, worker: _Worker, reason: str) -> None:
         self._all.discard(worker)
+        worker.unwatch()
         worker.stop(kill=reason != "retired")
         # Reap without blocking the loop; a killed process exits at once.
         worker.process.join(timeout=0)

@@ -6,6 +6,7 @@ import io
 import json
 import shutil
 import subprocess
+import time
 from collections.abc import Iterator
 from pathlib import Path
 
@@ -126,7 +127,12 @@ def test_one_log_line_per_request_without_values(tmp_path: Path) -> None:
 
 
 def test_readyz_reports_pool_and_cache(client: TestClient) -> None:
-    ready = client.get("/readyz").json()
+    # The pool starts in the background: 503 while it warms up, then ready.
+    deadline = time.monotonic() + 60
+    while (found := client.get("/readyz")).status_code == 503 and time.monotonic() < deadline:
+        assert found.json()["detail"] == "the worker pool is still starting up"
+        time.sleep(0.1)
+    ready = found.json()
     assert ready["status"] == "ready"
     assert ready["checks"] == {"pool": "ok", "cache": "ok"}
     assert ready["details"]["pool"]["workers"] == 1

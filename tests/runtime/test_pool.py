@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import asyncio
+import os
+import signal
 import time
 from collections.abc import Iterator
 
@@ -190,3 +192,68 @@ def test_wait_until_ready_takes_every_worker_start_up_message() -> None:
         assert asyncio.run(p.run(pool_jobs.add, 4, 5)) == 9
     finally:
         p.close()
+
+
+def test_a_deferred_start_is_warming_until_its_workers_are_up() -> None:
+    async def scenario() -> None:
+        p = WorkPool(2, 2, budget_seconds=20.0, start=False)
+        try:
+            assert p.readiness() == "warming"
+            assert await p.start() == 2
+            assert p.readiness() == "ok"
+            assert await p.run(pool_jobs.add, 1, 2) == 3
+        finally:
+            p.close()
+        assert p.readiness() == "broken"
+
+    asyncio.run(scenario())
+
+
+def test_a_job_sent_while_the_pool_starts_waits_for_a_worker() -> None:
+    async def scenario() -> None:
+        p = WorkPool(1, 2, budget_seconds=20.0, start=False)
+        try:
+            job = asyncio.ensure_future(p.run(pool_jobs.add, 2, 3))
+            await asyncio.sleep(0)
+            assert await p.start() == 1
+            assert await job == 5
+        finally:
+            p.close()
+
+    asyncio.run(scenario())
+
+
+def test_an_idle_worker_that_dies_is_replaced_without_a_request() -> None:
+    async def scenario() -> None:
+        p = WorkPool(1, 0, budget_seconds=20.0, start=False)
+        try:
+            await p.start()
+            first = await p.run(pool_jobs.pid)
+            os.kill(first, signal.SIGKILL)
+            deadline = time.monotonic() + 20
+            while p.stats().recycled == 0 and time.monotonic() < deadline:
+                await asyncio.sleep(0.05)
+            # Replaced by the watcher alone: no job was sent in between.
+            assert p.stats().recycled == 1
+            assert p.readiness() == "ok" and p.stats().alive == 1
+            assert await p.run(pool_jobs.pid) != first
+        finally:
+            p.close()
+
+    asyncio.run(scenario())
+
+
+def test_a_full_queue_makes_the_pool_saturated() -> None:
+    async def scenario() -> None:
+        p = WorkPool(1, 0, budget_seconds=20.0, start=False)
+        try:
+            await p.start()
+            job = asyncio.ensure_future(p.run(pool_jobs.sleep, 0.5))
+            await asyncio.sleep(0.1)
+            assert p.readiness() == "saturated"
+            await job
+            assert p.readiness() == "ok"
+        finally:
+            p.close()
+
+    asyncio.run(scenario())

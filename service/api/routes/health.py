@@ -40,17 +40,20 @@ READY_EXAMPLE = {
     },
 )
 async def readyz(request: Request, pool: PoolDep, cache: CacheDep) -> Any:
-    """Ready when the worker pool is alive; a cache that could not be written is a detail."""
-    checks = {"pool": "ok" if pool.alive() else "broken"}
+    """Ready when the worker pool is warm, alive and not saturated; a cache that could not
+    be written is a detail (the service still answers, only slower)."""
+    checks = {"pool": pool.readiness()}
     state = cache.state()
     # Without a writable directory the service still answers, only slower: degraded, ready.
     checks["cache"] = "off" if not state.enabled else ("degraded" if state.degraded else "ok")
     details = {"pool": dataclasses.asdict(pool.stats()), "cache": dataclasses.asdict(state)}
     if checks["pool"] == "ok":
         return {"status": "ready", "checks": checks, "details": details}
-    response: JSONResponse = problem_response(
-        503, "not_ready", "the worker pool is not alive", request
-    )
+    reason = {
+        "warming": "the worker pool is still starting up",
+        "saturated": "every worker is busy and the queue is full",
+    }.get(checks["pool"], "the worker pool is not alive")
+    response: JSONResponse = problem_response(503, "not_ready", reason, request)
     return response
 
 
