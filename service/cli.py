@@ -35,10 +35,14 @@ def _serve(args: argparse.Namespace) -> int:
         # inherit this one (a restart makes another: configure one to keep entries across).
         os.environ["WINDVANE_CACHE_SECRET"] = secrets.token_hex(32)
     if settings.workers > 1:
-        from service.runtime.telemetry import prepare_multiprocess
+        from service.runtime.telemetry import MetricsDirectoryError, prepare_multiprocess
 
         # Must precede the worker processes: client_python picks its storage at import.
-        prepare_multiprocess(settings.metrics_dir)
+        try:
+            prepare_multiprocess(settings.metrics_dir)
+        except MetricsDirectoryError as exc:
+            sys.stderr.write(f"windvane serve: {exc}\n")
+            return 2
     # uvicorn drains, then re-raises SIGTERM with the handler found here: make that exit 0.
     signal.signal(signal.SIGTERM, _exit_after_drain)
     uvicorn.run(

@@ -80,3 +80,21 @@ class Settings(BaseSettings):
     protect_metrics: bool = Field(
         False, description="With API keys on, require a key on /metrics as well."
     )
+    root_path: str = Field(
+        "",
+        max_length=200,
+        pattern=r"^(/[A-Za-z0-9._~\-]+)*/?$",
+        description="Path prefix a gateway serves Windvane under (ASGI root_path), such as "
+        "/forecasting; /docs, the OpenAPI server URL and problem `instance` fields include it.",
+    )
+    library_versions: bool = Field(
+        True,
+        description="Name the exact numerical library versions in `provenance` (turn off in "
+        "hardened deployments; the cache keys still include them).",
+    )
+    max_header_bytes: int = Field(
+        16_384,
+        ge=1_024,
+        le=1_048_576,
+        description="Largest request line plus headers, bytes (431 beyond).",
+    )

@@ -12,8 +12,14 @@ from fastapi import FastAPI
 from service import __version__
 from service.api.auth import install_api_keys
 from service.api.hits import ResponseHitMiddleware
-from service.api.middleware import BodyLimitMiddleware, RequestIdMiddleware
+from service.api.middleware import (
+    BodyLimitMiddleware,
+    HeaderLimitMiddleware,
+    RequestIdMiddleware,
+    RootPathMiddleware,
+)
 from service.api.observe import ObserveMiddleware
+from service.api.openapi import install_limits
 from service.api.problems import install_problem_handlers
 from service.api.routes import backtests, batches, diagnostics, forecasts, health, models
 from service.config import Settings
@@ -40,6 +46,8 @@ def description(settings: Settings) -> str:
         f"- points per series: {settings.max_points} (`WINDVANE_MAX_POINTS`)\n"
         f"- forecast horizon: {settings.max_horizon} (`WINDVANE_MAX_HORIZON`)\n"
         f"- request body: {settings.max_body_bytes} bytes (`WINDVANE_MAX_BODY_BYTES`)\n"
+        f"- request line and headers: {settings.max_header_bytes} bytes "
+        "(`WINDVANE_MAX_HEADER_BYTES`)\n"
         f"- requests per batch: {settings.max_batch_series} (`WINDVANE_MAX_BATCH_SERIES`)\n"
         f"- CPU time per request: {settings.fit_seconds:g} s (`WINDVANE_FIT_SECONDS`)\n"
         f"- requests waiting for a worker: {settings.queue_size} (`WINDVANE_QUEUE_SIZE`)"
@@ -111,10 +119,14 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(batches.router)
     app.include_router(diagnostics.router)
     app.include_router(backtests.router)
+    install_limits(app, settings)
     # Innermost, behind the key check: a cache hit needs an accepted key as well.
     app.add_middleware(ResponseHitMiddleware)
-    install_api_keys(app, settings)  # request ids reach its 401 problems
+    app.state.key_ring = install_api_keys(app, settings)  # request ids reach its 401 problems
     app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
+    app.add_middleware(HeaderLimitMiddleware, max_bytes=settings.max_header_bytes)
     app.add_middleware(ObserveMiddleware, telemetry=telemetry, logger=request_logger())
     app.add_middleware(RequestIdMiddleware)
+    if settings.root_path.rstrip("/"):
+        app.add_middleware(RootPathMiddleware, root_path=settings.root_path)
     return app

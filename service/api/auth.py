@@ -65,14 +65,19 @@ def key_digest(key: str) -> str:
 
 
 def parse_digest(text: str, where: str) -> bytes:
-    """One configured digest ('sha256:<hex>' or bare hex) as lowercase ASCII hex bytes."""
+    """One configured digest ('sha256:<hex>' or bare hex) as lowercase ASCII hex bytes.
+
+    A malformed entry is most likely a raw key pasted by mistake: the error names where it
+    is, never what it is, so that start-up logs do not carry the secret.
+    """
     value = text.strip().lower()
     if value.startswith(_PREFIX):
         value = value[len(_PREFIX) :]
     if not _HEX_DIGEST.match(value):
         raise KeyConfigurationError(
-            f"{where}: expected a SHA-256 digest as 64 hex digits (optionally 'sha256:<hex>'), "
-            f"got {text.strip()[:80]!r}"
+            f"{where}: an entry is not a SHA-256 digest (64 hex digits, optionally "
+            "'sha256:<hex>'); if it is a raw key, configure the digest of it instead "
+            "(the entry itself is not shown)"
         )
     return value.encode("ascii")
 
@@ -109,6 +114,15 @@ def key_ring(settings: Settings) -> KeyRing:
     return KeyRing(tuple(dict.fromkeys(digests)), protect_metrics=settings.protect_metrics)
 
 
+def route_path(scope: Scope) -> str:
+    """The path the routes see: without the gateway's prefix (ASGI root_path) when present."""
+    path = str(scope.get("path", ""))
+    root = str(scope.get("root_path", "") or "")
+    if root and (path == root or path.startswith(root + "/")):
+        return path[len(root) :] or "/"
+    return path
+
+
 def bearer_token(scope: Scope) -> str | None:
     """The token of an `Authorization: Bearer <token>` header, or None."""
     for name, value in scope.get("headers", []):
@@ -129,7 +143,7 @@ class ApiKeyMiddleware:
         self.ring = ring
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] != "http" or not self.ring.protects(scope.get("path", "")):
+        if scope["type"] != "http" or not self.ring.protects(route_path(scope)):
             await self.app(scope, receive, send)
             return
         token = bearer_token(scope)

@@ -68,17 +68,30 @@ def cache_status(state: str, layer: str = "memory", fitted: FittedState = None) 
 MEMORY_HIT = cache_status("hit")
 
 
-def provenance_fields() -> dict[str, Any]:
-    """The parts of ``provenance`` that depend on this deployment, not on the request."""
-    return {"service_version": __version__, "library_versions": runtime_versions()}
+def provenance_fields(library_versions: bool = True) -> dict[str, Any]:
+    """The parts of ``provenance`` that depend on this deployment, not on the request; the
+    exact library versions only when the settings show them (WINDVANE_LIBRARY_VERSIONS)."""
+    return {
+        "service_version": __version__,
+        "library_versions": runtime_versions() if library_versions else {},
+    }
 
 
 @cache
-def _deployment() -> bytes:
-    return canonical_json(provenance_fields())
+def _deployment(library_versions: bool = True) -> bytes:
+    # The versions always key the entry (replicas may share the disk); the flag too, since
+    # it changes the stored bytes.
+    return canonical_json({**provenance_fields(), "versions_shown": library_versions})
 
 
-def wire_key(path: str, raw: bytes, content_type: bytes, accept: bytes, query: bytes = b"") -> Key:
+def wire_key(
+    path: str,
+    raw: bytes,
+    content_type: bytes,
+    accept: bytes,
+    query: bytes = b"",
+    library_versions: bool = True,
+) -> Key:
     """Key of the request exactly as sent: its body bytes, the headers that shape the answer,
     and the deployment's provenance. Hashing the bytes costs a few microseconds, where
     re-serializing the JSON in a canonical order cost more than validating it; the same
@@ -90,19 +103,19 @@ def wire_key(path: str, raw: bytes, content_type: bytes, accept: bytes, query: b
         .raw("content_type", content_type)
         .raw("accept", accept)
         .raw("body", raw)
-        .raw("provenance", _deployment())
+        .raw("provenance", _deployment(library_versions))
         .finish()
     )
 
 
-def validated_key(body: dict[str, Any], accept: str) -> Key:
+def validated_key(body: dict[str, Any], accept: str, library_versions: bool = True) -> Key:
     """Key of the validated request (defaults filled in): batch items share it."""
     return (
         KeyBuilder("validated request")
         .text("path", FORECASTS_PATH)
         .text("accept", accept)
         .json("body", body)
-        .raw("provenance", _deployment())
+        .raw("provenance", _deployment(library_versions))
         .finish()
     )
 

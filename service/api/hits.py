@@ -15,6 +15,7 @@ from types import SimpleNamespace
 
 from starlette.types import ASGIApp, Receive, Scope, Send
 
+from service.api.auth import route_path
 from service.api.caching import FORECASTS_PATH, MEMORY_HIT, wire_key
 from service.api.middleware import replay
 from service.runtime.cache import Cache, StoredResponse
@@ -34,7 +35,7 @@ class ResponseHitMiddleware:
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
         if (
             scope["type"] != "http"
-            or scope["path"] != FORECASTS_PATH
+            or route_path(scope) != FORECASTS_PATH
             or scope.get("method") != "POST"
         ):
             await self.app(scope, receive, send)
@@ -55,6 +56,7 @@ class ResponseHitMiddleware:
             _header(scope, b"content-type"),
             _header(scope, b"accept"),
             scope.get("query_string", b""),
+            state.settings.library_versions,
         )
         found = cache.get_response(key)
         if found.hit and found.value is not None:

@@ -4,14 +4,14 @@ from __future__ import annotations
 
 from typing import Any
 
-from service import __version__
+from service.api.caching import provenance_fields
 from service.api.schemas.backtests import BacktestRequest
 from service.api.schemas.diagnostics import DiagnosticsRequest
 from service.api.schemas.forecasts import ForecastRequest
 from service.api.tasks import backtest_task, diagnostics_task, forecast_task
 from service.config import Settings
 from service.runtime import jobs
-from service.runtime.keys import data_key, runtime_versions
+from service.runtime.keys import data_key
 
 
 def answer(path: str, raw: str, settings: Settings | None = None) -> dict[str, Any]:
@@ -24,8 +24,7 @@ def answer(path: str, raw: str, settings: Settings | None = None) -> dict[str, A
         body["provenance"] = {
             "data_hash": data_key(series.y).label,
             "cache": "off",
-            "service_version": __version__,
-            "library_versions": runtime_versions(),
+            **provenance_fields(settings.library_versions),
         }
         return body
     if path == "/v1/diagnostics":

@@ -18,6 +18,26 @@ from service.runtime.pool import BudgetExceeded, PoolBusy, PoolClosed, WorkerCra
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 log = logging.getLogger("windvane.errors")
+# Problems echo at most this much of any caller-supplied text (a 300 kB timestamp was echoed
+# twice in full); a field path is short unless an unknown key is long.
+DETAIL_CHARACTERS = 300
+FIELD_CHARACTERS = 120
+
+
+def safe_text(text: object, limit: int) -> str:
+    """``text`` as encodable UTF-8 (a lone surrogate becomes '?'), cut to ``limit`` characters."""
+    value = str(text)
+    if len(value) > limit:
+        value = value[: limit - 1] + "…"
+    return value.encode("utf-8", "replace").decode("utf-8")
+
+
+def instance(request: Request) -> str:
+    """The path the caller used, with the gateway's prefix (ASGI root_path) in front."""
+    root = str(request.scope.get("root_path", "") or "").rstrip("/")
+    path = request.url.path
+    return path if not root or path.startswith(root + "/") else root + path
+
 
 # The problem answers every POST endpoint can give, for its OpenAPI `responses`.
 PROBLEM_RESPONSES: dict[int | str, dict[str, Any]] = {
@@ -59,10 +79,16 @@ def problem_response(
         "type": f"/problems/{code.replace('_', '-')}",
         "title": title or HTTPStatus(status).phrase,
         "status": status,
-        "detail": detail,
-        "instance": request.url.path if request is not None else "",
+        "detail": safe_text(detail, DETAIL_CHARACTERS),
+        "instance": instance(request) if request is not None else "",
         "code": code,
-        "errors": list(errors),
+        "errors": [
+            {
+                "field": safe_text(e["field"], FIELD_CHARACTERS),
+                "message": safe_text(e["message"], DETAIL_CHARACTERS),
+            }
+            for e in errors
+        ],
     }
     if request is not None:
         rid = getattr(request.state, "request_id", None)
@@ -89,22 +115,49 @@ def field_path(loc: Sequence[Any]) -> str:
     return out or "body"
 
 
-def validation_problem(errors: Sequence[Any]) -> tuple[int, str, str, list[dict[str, str]]]:
+def validation_problem(
+    errors: Sequence[Any], body: bytes | None = None
+) -> tuple[int, str, str, list[dict[str, str]]]:
     """Status, code, detail and field errors for pydantic's errors (HTTP handler and CLI).
 
-    A body that is not JSON at all is a 400 ``malformed_json``; anything else a 422
-    ``invalid_request`` listing each field once."""
+    A body that is not JSON at all is a 400 ``malformed_json`` naming the byte offset (when
+    ``body`` is given); anything else a 422 ``invalid_request`` listing each field once."""
     broken = [e for e in errors if e.get("type") == "json_invalid"]
     if broken:
-        where = str(broken[0].get("ctx", {}).get("error", "invalid JSON"))
+        where = json_error_place(broken[0], body)
         detail = f"the body is not valid JSON: {where}"
         return 400, "malformed_json", detail, [{"field": "body", "message": where}]
+    found = [(field_path(e.get("loc", ())), e) for e in errors]
     seen: dict[str, str] = {}
-    for e in errors:
-        seen.setdefault(field_path(e.get("loc", ())), _message(e))
+    for path, e in found:
+        if e.get("type") == "literal_error" and any(
+            other is not e and _within(p, path) for p, other in found
+        ):
+            continue  # `"auto" | {...}`: the object branch's error says more than "not 'auto'"
+        seen.setdefault(path, _message(e))
     listed = [{"field": f, "message": m} for f, m in seen.items()]
     first = listed[0]
     return 422, "invalid_request", f"{first['field']}: {first['message']}", listed
+
+
+def json_error_place(error: dict[str, Any], body: bytes | None) -> str:
+    """What the JSON parser said and where: the byte offset into the body, line and column."""
+    reason = str(error.get("ctx", {}).get("error", "invalid JSON"))
+    loc = error.get("loc", ())
+    position = loc[1] if len(loc) > 1 and isinstance(loc[1], int) else None
+    if position is None or body is None:
+        return reason
+    # The parser counts characters of the decoded text; a caller's tools count bytes.
+    text = body.decode("utf-8", "replace")
+    offset = len(text[:position].encode("utf-8", "surrogatepass"))
+    line = text.count("\n", 0, position) + 1
+    column = position - (text.rfind("\n", 0, position) + 1) + 1
+    return f"{reason} at byte {offset} (line {line}, column {column})"
+
+
+def _within(path: str, parent: str) -> bool:
+    """``path`` is ``parent`` or a field inside it."""
+    return path == parent or path.startswith((parent + ".", parent + "["))
 
 
 def _message(error: dict[str, Any]) -> str:
@@ -113,7 +166,8 @@ def _message(error: dict[str, Any]) -> str:
         return "this field is required"
     if kind == "extra_forbidden":
         return "unknown field"
-    return str(error.get("msg", "invalid value"))
+    message = str(error.get("msg", "invalid value"))
+    return message.removeprefix("Value error, ")
 
 
 def domain_errors(exc: WindvaneError, prefix: str = "") -> list[dict[str, str]]:
@@ -126,7 +180,10 @@ def domain_errors(exc: WindvaneError, prefix: str = "") -> list[dict[str, str]]:
 
 async def _validation(request: Request, exc: Exception) -> JSONResponse:
     assert isinstance(exc, RequestValidationError)
-    status, code, detail, errors = validation_problem(exc.errors())
+    found = exc.errors()
+    # The route has read (and kept) the body before failing to parse it.
+    body = await request.body() if any(e.get("type") == "json_invalid" for e in found) else None
+    status, code, detail, errors = validation_problem(found, body)
     title = "Malformed JSON" if status == 400 else "Invalid request"
     return problem_response(status, code, detail, request, title=title, errors=errors)
 
@@ -141,6 +198,7 @@ async def _domain(request: Request, exc: Exception) -> JSONResponse:
 async def _http(request: Request, exc: Exception) -> JSONResponse:
     assert isinstance(exc, StarletteHTTPException)
     codes = {
+        400: "malformed_json",
         404: "not_found",
         405: "method_not_allowed",
         413: "body_too_large",
@@ -152,11 +210,16 @@ async def _http(request: Request, exc: Exception) -> JSONResponse:
         detail = f"no route {request.url.path}"
     if exc.status_code == 405 and detail == "Method Not Allowed":
         detail = f"{request.method} is not allowed on {request.url.path}"
+    errors: list[dict[str, str]] = []
+    if exc.status_code == 400:
+        # The body could not be read as JSON at all (nested past the parser's depth, say).
+        errors = [{"field": "body", "message": detail}]
     return problem_response(
         exc.status_code,
         codes.get(exc.status_code, "http_error"),
         detail,
         request,
+        errors=errors,
         headers=getattr(exc, "headers", None),
     )
 

@@ -144,7 +144,7 @@ def forecast_from(bundle: FittedBundle, task: ForecastTask) -> dict[str, Any]:
     body["selection"] = None
     body["warnings"] = render.warnings_body(found)
     _add_in_sample(body, fitted, task.include)
-    return body
+    return render.refuse_overflow(body)
 
 
 def fit_and_forecast(task: ForecastTask) -> tuple[dict[str, Any], FittedBundle]:
@@ -203,7 +203,7 @@ def _auto_forecast(task: ForecastTask) -> dict[str, Any]:
     body["selection"] = render.plain(chosen.selection.to_dict())
     body["warnings"] = render.warnings_body([*chosen.warnings, *found])
     _add_in_sample(body, chosen.fitted, task.include)
-    return body
+    return render.refuse_overflow(body)
 
 
 @dataclass(frozen=True)

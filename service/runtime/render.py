@@ -9,6 +9,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from service.core.errors import FitError
 from service.core.models.base import Description, FitWarning, Forecast
 
 
@@ -74,3 +75,27 @@ def warnings_body(found: list[FitWarning]) -> list[dict[str, str]]:
     for w in found:
         seen.setdefault((w.code, w.message), None)
     return [{"code": c, "message": m} for c, m in seen]
+
+
+def refuse_overflow(body: dict[str, Any]) -> dict[str, Any]:
+    """The forecast body unchanged, or FitError when a point or bound is not a finite float.
+
+    The rule for intervals that are infinite in theory or overflow float64 (a coverage a
+    hair below 1, a strong Box-Cox exponent, values near the float64 range): refused with a
+    422 naming what the caller can change, never a 500 and never a bound of null.
+    """
+    if any(v is None for v in body["point"]):
+        raise FitError(
+            "the point forecast is not a finite number for this series (its values overflow "
+            "the model's arithmetic); rescale the values or choose another model",
+            field="series.values",
+        )
+    for interval in body["intervals"]:
+        if any(v is None for v in (*interval["lower"], *interval["upper"])):
+            raise FitError(
+                f"the {interval['coverage']} interval is unbounded for this series and "
+                "model (its bounds overflow float64); ask for a lower coverage, another "
+                "transform or another model",
+                field="coverage",
+            )
+    return body

@@ -10,7 +10,7 @@ dead so its live gauges drop out.
 from __future__ import annotations
 
 import os
-import shutil
+import re
 from pathlib import Path
 
 from prometheus_client import (
@@ -26,6 +26,8 @@ from prometheus_client import (
 from service.runtime.keys import runtime_versions
 
 MULTIPROCESS_ENV = "PROMETHEUS_MULTIPROC_DIR"
+# The names client_python gives its per-process files: counter_12.db, gauge_livesum_12.db.
+_METRIC_FILE = re.compile(r"^(counter|gauge_[a-z]+|histogram|summary)_\d+\.db$")
 
 # Requests range from a cache hit (~1 ms) to a seasonal search (tens of seconds).
 DURATION_BUCKETS = (
@@ -58,11 +60,32 @@ def multiprocess_directory() -> Path | None:
     return Path(value) if value else None
 
 
+class MetricsDirectoryError(RuntimeError):
+    """WINDVANE_METRICS_DIR holds something other than metric files; it is left untouched."""
+
+
+def is_metric_file(path: Path) -> bool:
+    """A file client_python's multiprocess mode writes (``counter_<pid>.db``, ...)."""
+    return path.is_file() and not path.is_symlink() and _METRIC_FILE.match(path.name) is not None
+
+
 def prepare_multiprocess(directory: Path) -> None:
-    """Empty ``directory`` and point client_python at it; call before server workers start."""
+    """Empty ``directory`` of old metric files and point client_python at it; call before
+    the server workers start. A directory holding anything else is refused, never emptied
+    (a mistaken setting such as the home directory must not lose files)."""
+    if directory.is_symlink() or (directory.exists() and not directory.is_dir()):
+        raise MetricsDirectoryError(f"WINDVANE_METRICS_DIR {str(directory)!r} is not a directory")
     if directory.exists():
-        shutil.rmtree(directory)
-    directory.mkdir(mode=0o700, parents=True)
+        others = [p for p in directory.iterdir() if not is_metric_file(p)]
+        if others:
+            raise MetricsDirectoryError(
+                f"WINDVANE_METRICS_DIR {str(directory)!r} holds {len(others)} entries that are "
+                f"not metric files (such as {others[0].name!r}); refusing to empty it: give "
+                "an empty directory of its own"
+            )
+        for path in directory.iterdir():
+            path.unlink()
+    directory.mkdir(mode=0o700, parents=True, exist_ok=True)
     os.environ[MULTIPROCESS_ENV] = str(directory)
 
 

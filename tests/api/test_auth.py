@@ -127,10 +127,14 @@ def test_malformed_digests_fail_when_the_app_is_built(
         create_app(Settings(**settings))
 
 
-def test_malformed_digest_message_does_not_echo_more_than_a_prefix() -> None:
+@pytest.mark.parametrize("raw", [KEY, "x" * 500, "sha256:" + KEY])
+def test_a_raw_key_in_the_settings_is_refused_without_being_shown(raw: str) -> None:
     with pytest.raises(KeyConfigurationError) as caught:
-        key_ring(Settings(api_keys="x" * 500))
-    assert len(str(caught.value)) < 300
+        key_ring(Settings(api_keys=f"{key_digest(OTHER)},{raw}"))
+    message = str(caught.value)
+    assert "WINDVANE_API_KEYS line 1" in message
+    assert raw.removeprefix("sha256:")[:6] not in message
+    assert len(message) < 300
 
 
 def test_missing_or_empty_keys_file_is_an_error_not_an_open_service(tmp_path: Path) -> None:

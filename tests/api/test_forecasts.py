@@ -348,3 +348,14 @@ def test_truncated_json_is_a_client_problem(client: TestClient, data: st.DataObj
 def test_the_bases_are_answered(client: TestClient) -> None:
     for body in BASES:
         assert client.post(PATH, json=body).status_code == 200
+
+
+def test_library_versions_in_provenance_follow_the_setting(
+    shared_client: Callable[..., TestClient],
+) -> None:
+    body = demo_request("orders", "naive")
+    shown = shared_client().post(PATH, json=body).json()["provenance"]
+    hidden = shared_client(library_versions=False).post(PATH, json=body).json()["provenance"]
+    assert set(shown["library_versions"]) >= {"numpy", "pandas", "scipy", "statsmodels"}
+    assert hidden["library_versions"] == {}
+    assert hidden["data_hash"] == shown["data_hash"]

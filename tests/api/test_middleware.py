@@ -97,3 +97,15 @@ def test_a_lying_small_content_length_does_not_get_past_the_count(small: TestCli
     response = post(small, chunks(body_of_size(LIMIT * 2)), **{"content-length": "10"})
     assert response.status_code in (400, 413)
     assert response.status_code != 200
+
+
+def test_headers_over_the_cap_are_a_431_problem(shared_client: Callable[..., TestClient]) -> None:
+    capped = shared_client(max_header_bytes=2_048)
+    response = capped.get("/healthz", headers={"x-padding": "p" * 3_000, "x-request-id": "big"})
+    assert response.status_code == 431
+    assert response.headers["content-type"] == "application/problem+json"
+    problem = response.json()
+    assert problem["code"] == "headers_too_large"
+    assert problem["errors"] == [{"field": "headers", "message": "at most 2048 bytes"}]
+    assert problem["request_id"] == response.headers["x-request-id"] == "big"
+    assert capped.get("/healthz", headers={"x-padding": "p" * 1_000}).status_code == 200

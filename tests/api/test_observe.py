@@ -14,6 +14,7 @@ import pytest
 from fastapi.testclient import TestClient
 
 from service.api.app import create_app
+from service.api.auth import key_digest
 from service.config import Settings
 from service.runtime import logs
 from service.runtime.pool import BudgetExceeded, PoolBusy
@@ -149,6 +150,27 @@ def test_unwritable_cache_directory_degrades_and_still_answers(tmp_path: Path) -
     assert answer.status_code == 200
     assert ready["status"] == "ready" and ready["checks"]["cache"] == "degraded"
     assert "not usable" in ready["details"]["cache"]["degraded"]
+    # An anonymous caller learns neither the path nor the operating system's error text.
+    assert ready["details"]["cache"]["directory"] is None
+    assert str(tmp_path) not in json.dumps(ready)
+    assert (
+        "Errno" not in json.dumps(ready)
+        and "directory" not in ready["details"]["cache"]["degraded"]
+    )
+
+
+def test_readyz_shows_the_cache_directory_to_a_caller_with_a_key(tmp_path: Path) -> None:
+    blocker = tmp_path / "file"
+    blocker.write_text("x")
+    settings = Settings(cache_dir=blocker / "cache", pool_workers=1, api_keys=key_digest("reader"))
+    with TestClient(create_app(settings)) as c:
+        # The first forecast waits for the pool, which starts in the background.
+        c.post("/v1/forecasts", json=BODY, headers={"authorization": "Bearer reader"})
+        anonymous = c.get("/readyz").json()
+        keyed = c.get("/readyz", headers={"authorization": "Bearer reader"}).json()
+    assert anonymous["details"]["cache"]["directory"] is None
+    assert keyed["details"]["cache"]["directory"] == str(blocker / "cache")
+    assert str(tmp_path) in keyed["details"]["cache"]["degraded"]
 
 
 def test_budget_and_busy_map_to_503_problems(client: TestClient) -> None:

@@ -2,14 +2,21 @@
 
 from __future__ import annotations
 
+import os
 import shutil
 import subprocess
+from pathlib import Path
 
 import pytest
 from prometheus_client.parser import text_string_to_metric_families
 
 from service.runtime.keys import runtime_versions
-from service.runtime.telemetry import Telemetry
+from service.runtime.telemetry import (
+    MULTIPROCESS_ENV,
+    MetricsDirectoryError,
+    Telemetry,
+    prepare_multiprocess,
+)
 
 
 def families(telemetry: Telemetry) -> dict[str, object]:
@@ -109,3 +116,34 @@ def test_promtool_accepts_the_exposition() -> None:
         check=False,
     )
     assert done.returncode == 0, done.stdout.decode() + done.stderr.decode()
+
+
+def test_the_metrics_directory_is_emptied_of_metric_files_only(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    monkeypatch.setenv(MULTIPROCESS_ENV, "")  # restored after the test
+    directory = tmp_path / "metrics"
+    directory.mkdir()
+    for name in ("counter_12.db", "gauge_livesum_12.db", "histogram_7.db"):
+        (directory / name).write_bytes(b"old")
+    prepare_multiprocess(directory)
+    assert list(directory.iterdir()) == []
+    assert os.environ[MULTIPROCESS_ENV] == str(directory)
+
+
+@pytest.mark.parametrize("intruder", ["notes.txt", "counter_12.db.bak", "subdirectory"])
+def test_a_metrics_directory_holding_other_files_is_refused_and_left_alone(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch, intruder: str
+) -> None:
+    monkeypatch.setenv(MULTIPROCESS_ENV, "")
+    directory = tmp_path / "metrics"
+    directory.mkdir()
+    (directory / "counter_12.db").write_bytes(b"old")
+    if intruder == "subdirectory":
+        (directory / intruder).mkdir()
+    else:
+        (directory / intruder).write_text("keep me")
+    with pytest.raises(MetricsDirectoryError, match="refusing to empty it"):
+        prepare_multiprocess(directory)
+    assert sorted(p.name for p in directory.iterdir()) == sorted(["counter_12.db", intruder])
+    assert os.environ[MULTIPROCESS_ENV] == ""

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import asyncio
 from typing import Annotated, Any
 
 from fastapi import APIRouter, Body
@@ -29,7 +30,7 @@ async def create_backtest(
 ) -> dict[str, Any]:
     """Rolling-origin evaluation: per model and per step MAE, RMSE, MASE, sMAPE, interval
     coverage and scaled interval score, with a ranking by the chosen metric."""
-    task = backtest_task(body, settings)
+    task = await asyncio.to_thread(backtest_task, body, settings)  # parsing can be slow
     result = await pool.run(jobs.backtests, task)
     result["data_hash"] = data_key(task.y).label
     return result

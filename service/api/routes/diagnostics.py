@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import asyncio
 from typing import Annotated, Any
 
 from fastapi import APIRouter, Body
@@ -31,7 +32,7 @@ async def create_diagnostics(
 ) -> dict[str, Any]:
     """Stationarity, differencing, autocorrelation, seasonality, outliers and whether the
     series is a random walk, each verdict with its evidence and a plain-sentence finding."""
-    task = diagnostics_task(body, settings)
+    task = await asyncio.to_thread(diagnostics_task, body, settings)  # parsing can be slow
     result = await pool.run(jobs.diagnostics, task)
     result["data_hash"] = data_key(task.y).label
     return result

@@ -71,18 +71,22 @@ async def forecast_answer(
 ) -> caching.Answer:
     """One forecast through the response cache, validation, the fit store and the pool."""
     accept = request.headers.get("accept", "")
-    key = caching.validated_key(body.model_dump(mode="json"), accept)
+    key = caching.validated_key(body.model_dump(mode="json"), accept, settings.library_versions)
     telemetry = get_telemetry(request)
 
     async def compute() -> caching.Computed:
-        task, series = forecast_task(body, settings)
+        # Parsing 100,000 timestamps (or finding a bad one) takes a while: off the loop.
+        task, series = await asyncio.to_thread(forecast_task, body, settings)
         family = task.specification.family if task.specification is not None else "auto"
         result, fitted = await caching.timed(
             telemetry, family, lambda: _computed(request, pool, task)
         )
         if result.get("selection"):
             telemetry.record_selection(str(result.get("model", {}).get("family", "unknown")))
-        provenance = {"data_hash": data_key(series.y).label, **caching.provenance_fields()}
+        provenance = {
+            "data_hash": data_key(series.y).label,
+            **caching.provenance_fields(settings.library_versions),
+        }
         return caching.stored_response(result, provenance, len(series.y)), fitted
 
     return await caching.answer(request, key, compute)

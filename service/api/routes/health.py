@@ -8,6 +8,7 @@ from typing import Any
 from fastapi import APIRouter, Request
 from fastapi.responses import JSONResponse, PlainTextResponse, Response
 
+from service.api.auth import bearer_token
 from service.api.dependencies import CacheDep, PoolDep, TelemetryDep
 from service.api.problems import problem_response
 
@@ -46,7 +47,7 @@ async def readyz(request: Request, pool: PoolDep, cache: CacheDep) -> Any:
     state = cache.state()
     # Without a writable directory the service still answers, only slower: degraded, ready.
     checks["cache"] = "off" if not state.enabled else ("degraded" if state.degraded else "ok")
-    details = {"pool": dataclasses.asdict(pool.stats()), "cache": dataclasses.asdict(state)}
+    details = {"pool": dataclasses.asdict(pool.stats()), "cache": cache_details(request, state)}
     if checks["pool"] == "ok":
         return {"status": "ready", "checks": checks, "details": details}
     reason = {
@@ -55,6 +56,23 @@ async def readyz(request: Request, pool: PoolDep, cache: CacheDep) -> Any:
     }.get(checks["pool"], "the worker pool is not alive")
     response: JSONResponse = problem_response(503, "not_ready", reason, request)
     return response
+
+
+def cache_details(request: Request, state: Any) -> dict[str, Any]:
+    """The cache's state; its directory and the OS error text only for a caller with a key.
+
+    Readiness is open to orchestrators, so an anonymous caller must not learn file-system
+    paths or error messages; the server log has them.
+    """
+    details = dataclasses.asdict(state)
+    ring = getattr(request.app.state, "key_ring", None)
+    token = bearer_token(request.scope)
+    if ring is not None and ring.enabled and token is not None and ring.accepts(token):
+        return details
+    details["directory"] = None
+    if details.get("degraded"):
+        details["degraded"] = "the disk cache is not usable; the server log says why"
+    return details
 
 
 METRICS_EXAMPLE = (

@@ -2,25 +2,32 @@
 
 from __future__ import annotations
 
-from typing import Any, Literal
+from typing import Annotated, Literal
 
 from pydantic import Field
 
-from service.api.schemas.common import SeriesIn, Strict
+from service.api.schemas.common import (
+    OriginCount,
+    OriginStep,
+    PositiveWhole,
+    SeriesIn,
+    SpecificationObject,
+    Strict,
+)
 
 
 class BacktestRequest(Strict):
     """A series, the specifications to compare (or `auto`) and the rolling origins."""
 
     series: SeriesIn
-    models: Literal["auto"] | list[dict[str, Any]] = Field(
+    models: Literal["auto"] | Annotated[list[SpecificationObject], Field(max_length=20)] = Field(
         "auto",
         description="Specifications to evaluate, or `auto` for the candidates "
         "automatic selection would try.",
     )
-    horizon: int = Field(ge=1, description="Steps ahead evaluated at each origin.")
-    origins: int = Field(3, ge=1, le=100, description="How many forecast origins.")
-    step: int = Field(1, ge=1, description="Observations between successive origins.")
+    horizon: PositiveWhole = Field(description="Steps ahead evaluated at each origin.")
+    origins: OriginCount = Field(3, description="How many forecast origins.")
+    step: OriginStep = Field(1, description="Observations between successive origins.")
     coverage: list[float] = Field(default_factory=lambda: [0.8, 0.95], min_length=1, max_length=10)
     metric: Literal["mase", "smape", "rmse", "mae"] = Field(
         "mase", description="The score that ranks the models."

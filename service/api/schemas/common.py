@@ -4,12 +4,29 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, WithJsonSchema
+from pydantic import AfterValidator, BaseModel, BeforeValidator, ConfigDict, Field, WithJsonSchema
+
+# Bounds stated here are checked by the core (which names the index) or by pydantic, and
+# appear in the OpenAPI schema; the limits that come from the settings are added to the
+# schema by service.api.openapi.install_limits.
+TIMESTAMP_CHARACTERS = 64
+FREQUENCY_CHARACTERS = 40
+VALUE_MAGNITUDE = 1e30
+SPECIFICATION_DEPTH = 12
 
 NumberOrNullList = Annotated[
     list[Any],
     WithJsonSchema(
-        {"type": "array", "items": {"anyOf": [{"type": "number"}, {"type": "null"}]}, "minItems": 1}
+        {
+            "type": "array",
+            "items": {
+                "anyOf": [
+                    {"type": "number", "minimum": -VALUE_MAGNITUDE, "maximum": VALUE_MAGNITUDE},
+                    {"type": "null"},
+                ]
+            },
+            "minItems": 1,
+        }
     ),
 ]
 TimestampList = Annotated[
@@ -17,8 +34,65 @@ TimestampList = Annotated[
     WithJsonSchema(
         {
             "type": "array",
-            "items": {"type": "string", "format": "date-time"},
+            "items": {"type": "string", "format": "date-time", "maxLength": TIMESTAMP_CHARACTERS},
             "description": "ISO 8601 dates or date-times, strictly increasing.",
+        }
+    ),
+]
+
+
+def _whole(value: Any) -> Any:
+    """An integral JSON number written with a fraction (3.0) is the integer it names."""
+    if isinstance(value, float) and value.is_integer() and abs(value) < 2**53:
+        return int(value)
+    return value
+
+
+# Strict mode refuses "3" and true for an integer; 3.0 is the same JSON Schema integer as 3.
+# The bounds come before the conversion so that the schema states them as minimum/maximum.
+PositiveWhole = Annotated[int, Field(ge=1), BeforeValidator(_whole)]
+Lag = Annotated[int, Field(ge=1, le=1000), BeforeValidator(_whole)]
+OriginCount = Annotated[int, Field(ge=1, le=100), BeforeValidator(_whole)]
+OriginStep = Annotated[int, Field(ge=1, le=100_000), BeforeValidator(_whole)]
+
+
+def _depth(value: Any) -> int:
+    """How many objects and arrays are nested in a JSON value (iteratively: no recursion)."""
+    deepest, stack = 0, [(value, 1)]
+    while stack:
+        node, level = stack.pop()
+        if isinstance(node, dict):
+            children: Any = node.values()
+        elif isinstance(node, list):
+            children = node
+        else:
+            continue
+        deepest = max(deepest, level)
+        if deepest > SPECIFICATION_DEPTH:
+            break
+        stack.extend((child, level + 1) for child in children)
+    return deepest
+
+
+def _shallow(value: Any) -> Any:
+    if _depth(value) > SPECIFICATION_DEPTH:
+        raise ValueError(
+            f"a specification may nest at most {SPECIFICATION_DEPTH} objects and arrays deep"
+        )
+    return value
+
+
+# A specification (possibly a combination of combinations): its nesting is bounded before
+# anything walks it recursively (300 levels crashed serialisation).
+SpecificationObject = Annotated[
+    dict[str, Any],
+    AfterValidator(_shallow),
+    WithJsonSchema(
+        {
+            "type": "object",
+            "description": "A model specification; objects and arrays nest at most "
+            f"{SPECIFICATION_DEPTH} levels deep.",
+            "x-max-depth": SPECIFICATION_DEPTH,
         }
     ),
 ]
@@ -33,7 +107,11 @@ class Strict(BaseModel):
 class AggregateIn(Strict):
     """Regularise to a coarser frequency before anything else."""
 
-    frequency: str = Field(description="Target frequency (ISO 8601 duration or pandas alias).")
+    frequency: str = Field(
+        max_length=FREQUENCY_CHARACTERS,
+        description="Target frequency (ISO 8601 duration or pandas alias); at least as coarse "
+        "as the series' own.",
+    )
     method: Literal["sum", "mean", "last"] = Field("sum", description="How to combine values.")
 
 
@@ -42,14 +120,19 @@ class SeriesIn(Strict):
 
     values: NumberOrNullList = Field(description="Observations; null marks a missing value.")
     timestamps: TimestampList | None = Field(None, description="ISO 8601, one per value.")
-    start: str | None = Field(None, description="First timestamp when timestamps are omitted.")
+    start: str | None = Field(
+        None,
+        max_length=TIMESTAMP_CHARACTERS,
+        description="First timestamp when timestamps are omitted.",
+    )
     frequency: str | None = Field(
         None,
+        max_length=FREQUENCY_CHARACTERS,
         description="ISO 8601 duration (P1D, P1W, P1M, PT1H) or pandas alias "
         "(D, W-MON, MS, h); inferred from timestamps when absent.",
     )
-    seasonal_period: int | None = Field(
-        None, ge=1, description="Observations per seasonal cycle; default from the frequency."
+    seasonal_period: PositiveWhole | None = Field(
+        None, description="Observations per seasonal cycle; default from the frequency."
     )
     name: str | None = Field(None, max_length=200, description="A label echoed back.")
     missing: Literal["interpolate", "keep", "error"] = Field(

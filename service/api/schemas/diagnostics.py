@@ -6,15 +6,15 @@ from typing import Literal
 
 from pydantic import Field
 
-from service.api.schemas.common import SeriesIn, Strict
+from service.api.schemas.common import Lag, SeriesIn, Strict
 
 
 class DiagnosticsRequest(Strict):
     """A series and how deep to look."""
 
     series: SeriesIn
-    max_lag: int | None = Field(
-        None, ge=1, le=1000, description="Last lag of the ACF/PACF; default min(max(10, 2m), n/4)."
+    max_lag: Lag | None = Field(
+        None, description="Last lag of the ACF/PACF; default min(max(10, 2m), n/4)."
     )
     include: list[Literal["components"]] = Field(
         default_factory=list,

@@ -6,7 +6,17 @@ from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
-from service.api.schemas.common import Provenance, SeriesIn, Strict, WarningOut
+from service.api.schemas.common import (
+    PositiveWhole,
+    Provenance,
+    SeriesIn,
+    SpecificationObject,
+    Strict,
+    WarningOut,
+)
+
+# Beyond a few units the Box-Cox back-transform overflows float64 (-50 gave infinite bounds).
+LAMBDA_BOUND = 5.0
 
 
 class RegressorIn(Strict):
@@ -26,6 +36,8 @@ class TransformIn(Strict):
     lambda_: float | None = Field(
         None,
         alias="lambda",
+        ge=-LAMBDA_BOUND,
+        le=LAMBDA_BOUND,
         description="Box-Cox lambda; estimated by maximum likelihood when absent.",
     )
     bias_adjusted: bool = Field(
@@ -37,17 +49,17 @@ class ForecastRequest(Strict):
     """A series, how far ahead, which interval levels, and which model."""
 
     series: SeriesIn
-    horizon: int = Field(ge=1, description="Steps ahead to forecast.")
+    horizon: PositiveWhole = Field(description="Steps ahead to forecast.")
     coverage: list[float] = Field(
         default_factory=lambda: [0.8, 0.95],
         min_length=1,
         max_length=10,
         description="Central prediction-interval levels, each strictly between 0 and 1.",
     )
-    model: Literal["auto"] | dict[str, Any] = Field(
+    model: Literal["auto"] | SpecificationObject = Field(
         "auto", description='`auto`, or a specification such as {"family": "naive"}.'
     )
-    candidates: list[dict[str, Any]] | None = Field(
+    candidates: list[SpecificationObject] | None = Field(
         None, max_length=20, description="With `auto`: the specifications to choose among."
     )
     transform: Literal["none", "log", "boxcox"] | TransformIn = "none"
