@@ -84,7 +84,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             settings.pool_workers,
             settings.queue_size,
             settings.fit_seconds,
-            preload=("service.runtime.jobs", "service.runtime.warmup"),
+            preload=("service.runtime.warmup",),
             max_jobs_per_worker=settings.pool_max_jobs,
             on_change=occupancy,
             on_recycle=telemetry.record_recycle,

@@ -16,6 +16,15 @@ from __future__ import annotations
 
 import warnings
 
+from service.runtime.pool import pin_threads
+
+# The fork server runs this before any worker exists: with the libraries' default thread
+# pools, statsmodels' many tiny linear-algebra calls here ran several times slower on two
+# cores, and the workers forked from it inherit the pinned pools.
+pin_threads()
+
+import service.runtime.jobs  # noqa: E402, F401  (what every worker needs, imported once here)
+
 
 def warm() -> None:
     """Diagnostics and an automatic forecast on a seasonal and on a non-seasonal series."""
