@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import asyncio
+import gc
 import logging
 from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
@@ -95,6 +96,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         # /readyz says 503 until they are ready, and work requests wait for a worker.
         starting = asyncio.create_task(pool.start())
         starting.add_done_callback(_report_failed_start)
+        # Everything built so far lives as long as the process: out of the collector's way,
+        # a full collection no longer walks the libraries' objects in the middle of a request.
+        gc.freeze()
         try:
             yield
         finally:

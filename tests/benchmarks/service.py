@@ -1,20 +1,25 @@
 """Service benchmark: Windvane over HTTP against a bare pydantic endpoint and in-process fits.
 
-Run by hand: ``python -m tests.benchmarks.service [--quick] [--auto-only]``. Starts two
-uvicorn servers on loopback (Windvane and a floor app that parses the same payload and returns
-a fixed answer), drives both with an async httpx client bounded in count and time, and prints
-ratios measured side by side in this run.
-
-Last run (--auto-only, quiet machine): auto on 200 monthly points at h 24, first request to a
-fresh server 0.706 s, median of 8 distinct requests 0.659 s, 1.03 x the same bodies in process.
+Run by hand: ``python -m tests.benchmarks.service [--quick] [--only hit|startup|scaling|auto]``.
+Starts uvicorn servers on loopback (Windvane, and a floor app that parses the same body with
+the same pydantic schema and answers a body of the same size) and drives the throughput
+scenarios with wrk (Debian's package; ``apt-get install wrk``: a Python client capped the
+floor near its own speed), one thread and 16 connections, in rounds that alternate floor and
+service. Beside requests per second and latency it reports CPU seconds per request, read
+from /proc for the server and all its descendants, and prints every ratio with the load
+average. Cold timings (auto, explicit models, /healthz under load) use an httpx client, one
+request at a time. Figures and the commands that produced them: tests/benchmarks/RESULTS.md.
 """
 
 from __future__ import annotations
 
 import argparse
 import asyncio
+import json
 import os
 import platform
+import re
+import shutil
 import socket
 import subprocess
 import sys
@@ -34,16 +39,21 @@ ROOT = Path(__file__).resolve().parents[2]
 CONNECTIONS = 16
 
 
+FLOOR_BODY = "WINDVANE_BENCH_FLOOR_BODY"
+
+
 def floor_app() -> Any:
-    """The floor: parse a forecast request with the same pydantic schema, answer a constant."""
-    from fastapi import FastAPI
+    """The floor: parse a forecast request with the same pydantic schema, answer bytes of the
+    same size as the service's answer (read from the file named by WINDVANE_BENCH_FLOOR_BODY)."""
+    from fastapi import FastAPI, Response
 
     app = FastAPI()
-    answer = {"point": [1.0, 2.0, 3.0], "cache": "hit"}
+    path = os.environ.get(FLOOR_BODY)
+    answer = Path(path).read_bytes() if path else b'{"point":[1.0,2.0,3.0]}'
 
     @app.post("/v1/forecasts")
-    async def forecast(body: ForecastRequest) -> dict[str, Any]:
-        return answer
+    async def forecast(body: ForecastRequest) -> Response:
+        return Response(answer, media_type="application/json")
 
     @app.get("/healthz")
     async def healthz() -> dict[str, str]:
@@ -258,38 +268,274 @@ async def healthz_while_busy(base: str, workers: int) -> Load:
     return probe
 
 
-def row(name: str, load: Load) -> str:
-    return (
-        f"| {name:<24} | {load.requests:>6} | {load.rate:>8.0f} | {load.p50_ms:>7.2f} |"
-        f" {load.p99_ms:>7.2f} | {load.errors:>4} |"
+WRK_SCRIPT = """
+wrk.method = "POST"
+wrk.headers["Content-Type"] = "application/json"
+local f = assert(io.open(os.getenv("WINDVANE_BENCH_BODY"), "rb"))
+wrk.body = f:read("*a")
+f:close()
+done = function(summary, latency, requests)
+  local e = summary.errors
+  io.write(string.format(
+    "WRK %d %d %d %d %d %d\\n", summary.requests, summary.duration,
+    latency:percentile(50), latency:percentile(99),
+    e.connect + e.read + e.write + e.timeout, e.status))
+end
+"""
+
+
+@dataclass(frozen=True)
+class Round:
+    """One wrk round against one server: throughput, latency, errors and CPU per request."""
+
+    requests: int
+    seconds: float
+    p50_ms: float
+    p99_ms: float
+    errors: int
+    cpu_seconds: float
+
+    @property
+    def rate(self) -> float:
+        """Requests per second."""
+        return self.requests / self.seconds
+
+    @property
+    def cpu_ms(self) -> float:
+        """Server CPU milliseconds per request (the server and all its descendants)."""
+        return 1000 * self.cpu_seconds / max(1, self.requests)
+
+
+def cpu_seconds(root: int) -> float:
+    """User + system CPU seconds of a process and every living descendant, from /proc."""
+    tick = os.sysconf("SC_CLK_TCK")
+    parents: dict[int, int] = {}
+    times: dict[int, float] = {}
+    for entry in Path("/proc").iterdir():
+        if not entry.name.isdigit():
+            continue
+        try:
+            fields = (entry / "stat").read_text().rsplit(")", 1)[1].split()
+        except OSError:
+            continue
+        parents[int(entry.name)] = int(fields[1])
+        times[int(entry.name)] = (int(fields[11]) + int(fields[12])) / tick
+    family = [root]
+    for pid in family:
+        family.extend(p for p, parent in parents.items() if parent == pid)
+    return sum(times.get(pid, 0.0) for pid in family)
+
+
+def wrk_round(url: str, body_file: Path, pid: int, seconds: int, connections: int) -> Round:
+    """wrk, one thread, ``connections`` connections, for ``seconds`` against ``url``."""
+    with tempfile.NamedTemporaryFile("w", suffix=".lua", delete=False) as script:
+        script.write(WRK_SCRIPT)
+    command = ["wrk", "-t1", f"-c{connections}", f"-d{seconds}s", "-s", script.name, url]
+    before = cpu_seconds(pid)
+    out = subprocess.run(
+        command,
+        env={**os.environ, "WINDVANE_BENCH_BODY": str(body_file)},
+        capture_output=True,
+        text=True,
+        timeout=seconds + 60,
+        check=True,
+    ).stdout
+    used = cpu_seconds(pid) - before
+    os.unlink(script.name)
+    found = re.search(r"^WRK (\d+) (\d+) (\d+) (\d+) (\d+) (\d+)$", out, re.MULTILINE)
+    if found is None:
+        raise RuntimeError(f"unexpected wrk output:\n{out}")
+    requests, micros, p50, p99, errors, status = (int(v) for v in found.groups())
+    return Round(requests, micros / 1e6, p50 / 1000, p99 / 1000, errors + status, used)
+
+
+def median_round(rounds: list[Round]) -> Round:
+    """Per-field medians over rounds (requests and seconds summed, so the rate is the mean)."""
+    return Round(
+        sum(r.requests for r in rounds),
+        sum(r.seconds for r in rounds),
+        float(np.median([r.p50_ms for r in rounds])),
+        float(np.median([r.p99_ms for r in rounds])),
+        sum(r.errors for r in rounds),
+        sum(r.cpu_seconds for r in rounds),
     )
 
 
-def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__)
-    parser.add_argument("--quick", action="store_true", help="fewer requests (smoke run)")
-    parser.add_argument("--auto-only", action="store_true", help="stop after the auto timing")
-    args = parser.parse_args()
-    count = 500 if args.quick else 3000
-    memory_total = 2_000 if args.quick else 10_000
-    workers = 2
-    print(f"python {platform.python_version()}, cores seen: {os.cpu_count()}")
+def load_text() -> str:
+    """The 1, 5 and 15 minute load averages, to print beside every figure."""
+    return "load average " + " ".join(f"{v:.2f}" for v in os.getloadavg())
+
+
+def hit_rounds(quick: bool) -> None:
+    """The cache hit against the floor: interleaved wrk rounds, ratios and targets."""
+    if shutil.which("wrk") is None:
+        raise SystemExit("wrk is needed: apt-get install -y wrk")
+    directory = Path(tempfile.mkdtemp(prefix="windvane-bench-"))
+    hot = body(n=200)
+    body_file = directory / "request.json"
+    body_file.write_text(json.dumps(hot))
+    windvane, base = start(
+        "service.api.app:create_app",
+        {"WINDVANE_CACHE_DIR": str(directory / "cache"), "WINDVANE_LOG_LEVEL": "warning"},
+    )
+    try:
+        first = httpx.post(f"{base}/v1/forecasts", json=hot, timeout=120)
+        first.raise_for_status()
+        answer = httpx.post(f"{base}/v1/forecasts", json=hot, timeout=120)
+        (directory / "answer.json").write_bytes(answer.content)
+        floor, floor_base = start(
+            "tests.benchmarks.service:floor_app", {FLOOR_BODY: str(directory / "answer.json")}
+        )
+        try:
+            check = httpx.post(f"{floor_base}/v1/forecasts", json=hot, timeout=30)
+            print(
+                f"body sent {body_file.stat().st_size} B; answers: service "
+                f"{len(answer.content)} B ({answer.headers['cache-status']}), floor "
+                f"{len(check.content)} B"
+            )
+            seconds, rounds = (3, 2) if quick else (8, 3)
+            floors, hits = [], []
+            for _ in range(rounds):
+                floors.append(
+                    wrk_round(f"{floor_base}/v1/forecasts", body_file, floor.pid, seconds, 16)
+                )
+                hits.append(wrk_round(f"{base}/v1/forecasts", body_file, windvane.pid, seconds, 16))
+                print(
+                    f"  round: floor {floors[-1].rate:7.0f} req/s, hit {hits[-1].rate:7.0f} "
+                    f"req/s ({load_text()})"
+                )
+        finally:
+            floor.terminate()
+            floor.wait(timeout=30)
+    finally:
+        windvane.terminate()
+        windvane.wait(timeout=30)
+    f, h = median_round(floors), median_round(hits)
     print(
-        f"uvloop installed: {find_spec('uvloop') is not None}; "
-        f"httptools installed: {find_spec('httptools') is not None}; "
-        "servers started with --loop uvloop --http httptools"
+        f"\n| {'wrk -t1 -c16':<22} | {'req/s':>7} | {'p50 ms':>7} | {'p99 ms':>7} |"
+        f" {'CPU ms/req':>10} | {'errors':>6} |"
     )
+    print(f"|{'-' * 24}|{'-' * 9}|{'-' * 9}|{'-' * 9}|{'-' * 12}|{'-' * 8}|")
+    for name, r in (("floor (pydantic only)", f), ("windvane cache hit", h)):
+        print(
+            f"| {name:<22} | {r.rate:7.0f} | {r.p50_ms:7.2f} | {r.p99_ms:7.2f} |"
+            f" {r.cpu_ms:10.3f} | {r.errors:6d} |"
+        )
+    print(
+        f"\ncache hit / floor: req/s {h.rate / f.rate:.2f} x (target >= 0.8), CPU per request "
+        f"{h.cpu_ms / f.cpu_ms:.2f} x (target <= 1.5), p99 {h.p99_ms / f.p99_ms:.2f} x "
+        f"(target <= 2); {load_text()}"
+    )
+
+
+def startup_timeline() -> None:
+    """`windvane serve` from nothing: seconds to an open port, /healthz 200, /readyz 200."""
+    from tests.live_server import serve_command
+
+    directory = Path(tempfile.mkdtemp(prefix="windvane-start-"))
+    port = free_port()
+    env = {
+        **os.environ,
+        "WINDVANE_PORT": str(port),
+        "WINDVANE_CACHE_DIR": str(directory / "cache"),
+        "WINDVANE_LOG_LEVEL": "warning",
+    }
+    started = time.perf_counter()
+    process = subprocess.Popen(serve_command(), env=env, cwd=directory, stdout=subprocess.DEVNULL)
+    marks: dict[str, float] = {}
+    base = f"http://127.0.0.1:{port}"
+    try:
+        while "ready" not in marks and time.perf_counter() - started < 120:
+            if "port" not in marks:
+                with socket.socket() as probe:
+                    if probe.connect_ex(("127.0.0.1", port)) == 0:
+                        marks["port"] = time.perf_counter() - started
+            else:
+                try:
+                    if "healthz" not in marks:
+                        if httpx.get(f"{base}/healthz", timeout=5).status_code == 200:
+                            marks["healthz"] = time.perf_counter() - started
+                    elif httpx.get(f"{base}/readyz", timeout=5).status_code == 200:
+                        marks["ready"] = time.perf_counter() - started
+                except httpx.HTTPError:
+                    pass
+            time.sleep(0.01)
+    finally:
+        process.terminate()
+        process.wait(timeout=30)
+    print(
+        f"\nstart-up of `windvane serve` (2 pool workers): open port {marks.get('port', -1):.2f} s"
+        f" (target < 2), /healthz 200 {marks.get('healthz', -1):.2f} s, /readyz 200 "
+        f"{marks.get('ready', -1):.2f} s (target <= 10); {load_text()}"
+    )
+
+
+def batch_seconds(base: str, count: int, salt: float) -> float:
+    """Seconds for one batch of ``count`` distinct explicit ETS forecasts (nothing cached)."""
+    requests = [body(n=144, salt=salt + i) for i in range(count)]
+    started = time.perf_counter()
+    r = httpx.post(f"{base}/v1/forecast-batches", json={"requests": requests}, timeout=600)
+    r.raise_for_status()
+    return time.perf_counter() - started
+
+
+def pool_scaling(quick: bool) -> None:
+    """Throughput of 2 pool workers against 1 on the same batches, servers side by side."""
+    count = 8 if quick else 16
+    servers = {}
+    try:
+        for workers in (1, 2):
+            servers[workers] = start(
+                "service.api.app:create_app",
+                {
+                    "WINDVANE_POOL_WORKERS": str(workers),
+                    "WINDVANE_CACHE": "off",
+                    "WINDVANE_LOG_LEVEL": "warning",
+                },
+            )
+            wait_ready(servers[workers][1])
+        times: dict[int, list[float]] = {1: [], 2: []}
+        for repeat in range(2 if quick else 3):
+            for workers in (1, 2):
+                times[workers].append(batch_seconds(servers[workers][1], count, 100.0 * repeat))
+        one, two = (float(np.median(times[w])) for w in (1, 2))
+        print(
+            f"\nbatch of {count} distinct ETS forecasts (144 monthly points): 1 pool worker "
+            f"{one:.2f} s, 2 workers {two:.2f} s: throughput {one / two:.2f} x "
+            f"(target >= 1.7 with two free cores); cores seen {os.cpu_count()}; {load_text()}"
+        )
+    finally:
+        for process, _ in servers.values():
+            process.terminate()
+            process.wait(timeout=30)
+
+
+def wait_ready(base: str, seconds: float = 120.0) -> None:
+    """Poll /readyz until the pool is warm."""
+    deadline = time.monotonic() + seconds
+    while time.monotonic() < deadline:
+        if httpx.get(f"{base}/readyz", timeout=5).status_code == 200:
+            return
+        time.sleep(0.1)
+    raise RuntimeError(f"{base} not ready after {seconds} s")
+
+
+def cold_scenarios(quick: bool, auto_only: bool) -> None:
+    """Auto on a fresh server, explicit models against in process, /healthz under load, memory."""
+    count_total = 2_000 if quick else 10_000
+    workers = 2
     cache_dir = tempfile.mkdtemp(prefix="windvane-bench-")
     env = {
         "WINDVANE_POOL_WORKERS": str(workers),
         "WINDVANE_CACHE_DIR": cache_dir,
         "WINDVANE_QUEUE_SIZE": "64",
+        "WINDVANE_LOG_LEVEL": "warning",
     }
     windvane, base = start("service.api.app:create_app", env)
-    floor, floor_base = start("tests.benchmarks.service:floor_app", {})
     try:
         # First: model auto on the fresh server (its workers warmed at start, nothing cached).
-        auto_repeats = 3 if args.quick else 8
+        wait_ready(base)
+        auto_repeats = 3 if quick else 8
         auto_times = asyncio.run(
             cold_http_times(base, [auto_body(salt=1.0 + i) for i in range(auto_repeats)])
         )
@@ -299,33 +545,19 @@ def main() -> None:
             f"\nauto, 200 monthly points, h 24, fresh server: first request "
             f"{auto_times[0]:.3f} s, median of {auto_repeats} distinct {auto_median:.3f} s"
             f" (target <= 1 s cold); in process {auto_local:.3f} s, HTTP / in process "
-            f"{auto_median / auto_local:.2f} x"
+            f"{auto_median / auto_local:.2f} x; {load_text()}"
         )
-        if args.auto_only:
+        if auto_only:
             return
 
         hot = body()
-        httpx.post(f"{base}/v1/forecasts", json=hot, timeout=120).raise_for_status()
-        floor_load = asyncio.run(drive(f"{floor_base}/v1/forecasts", [hot], count, CONNECTIONS, 60))
-        hit_load = asyncio.run(drive(f"{base}/v1/forecasts", [hot], count, CONNECTIONS, 60))
-        print(
-            f"\n| {'scenario':<24} | {'count':>6} | {'req/s':>8} | {'p50 ms':>7} | "
-            f"{'p99 ms':>7} | {'err':>4} |"
-        )
-        print(f"|{'-' * 26}|{'-' * 8}|{'-' * 10}|{'-' * 9}|{'-' * 9}|{'-' * 6}|")
-        print(row("floor (pydantic only)", floor_load))
-        print(row("windvane cache hit", hit_load))
-        print(
-            f"\ncache hit / floor: throughput {hit_load.rate / floor_load.rate:.2f} x "
-            f"(target >= 0.5), p99 {hit_load.p99_ms / floor_load.p99_ms:.2f} x (target <= 2)"
-        )
-
-        repeats = 5 if args.quick else 15
+        repeats = 5 if quick else 15
         http_s = asyncio.run(cold_http_seconds(base, repeats))
         local_s = in_process_seconds(hot, repeats)
         print(
             f"\ncold ETS forecast: HTTP median {http_s * 1000:.1f} ms, in process "
-            f"{local_s * 1000:.1f} ms: ratio {http_s / local_s:.2f} x (target <= 1.15)"
+            f"{local_s * 1000:.1f} ms: ratio {http_s / local_s:.2f} x (target <= 1.15); "
+            f"{load_text()}"
         )
 
         probe = asyncio.run(healthz_while_busy(base, workers))
@@ -337,21 +569,46 @@ def main() -> None:
         mixed = [hot, *[body(salt=9000.0 + i, family="naive") for i in range(50)]]
         asyncio.run(drive(f"{base}/v1/forecasts", mixed, 1_000, CONNECTIONS, 300))
         after_1k = resident_mb(windvane.pid)
-        asyncio.run(drive(f"{base}/v1/forecasts", mixed, memory_total - 1_000, CONNECTIONS, 600))
+        asyncio.run(drive(f"{base}/v1/forecasts", mixed, count_total - 1_000, CONNECTIONS, 600))
         after_all = resident_mb(windvane.pid)
-        print(f"\nresident memory, MB (after 1,000 | after {memory_total:,} mixed requests):")
+        print(f"\nresident memory, MB (after 1,000 | after {count_total:,} mixed requests):")
         for name in after_1k:
             later = after_all.get(name, float("nan"))
             print(
                 f"  {name:<14} {after_1k[name]:8.1f} | {later:8.1f}  "
                 f"({later / after_1k[name]:.3f} x, target within 1.10)"
             )
-        floor_mb = resident_mb(floor.pid)["server"]
-        print(f"  floor server   {floor_mb:8.1f}")
     finally:
-        for process in (windvane, floor):
-            process.terminate()
-            process.wait(timeout=30)
+        windvane.terminate()
+        windvane.wait(timeout=30)
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__)
+    parser.add_argument("--quick", action="store_true", help="shorter rounds (smoke run)")
+    parser.add_argument(
+        "--only",
+        choices=("hit", "startup", "scaling", "auto", "cold"),
+        help="run one scenario: the cache hit against the floor, the start-up timeline, "
+        "pool scaling on a batch, auto on a fresh server, or every cold timing",
+    )
+    parser.add_argument("--auto-only", action="store_true", help="the same as --only auto")
+    args = parser.parse_args()
+    only = "auto" if args.auto_only else args.only
+    print(f"python {platform.python_version()}, cores seen: {os.cpu_count()}; {load_text()}")
+    print(
+        f"uvloop installed: {find_spec('uvloop') is not None}; "
+        f"httptools installed: {find_spec('httptools') is not None}; "
+        "servers started with --loop uvloop --http httptools --no-access-log"
+    )
+    if only in (None, "startup"):
+        startup_timeline()
+    if only in (None, "hit"):
+        hit_rounds(args.quick)
+    if only in (None, "scaling"):
+        pool_scaling(args.quick)
+    if only in (None, "auto", "cold"):
+        cold_scenarios(args.quick, auto_only=only == "auto")
 
 
 if __name__ == "__main__":
