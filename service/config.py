@@ -52,6 +52,12 @@ class Settings(BaseSettings):
         "it when the directory is shared by replicas or kept across restarts. Without it, "
         "fitted models are shared only by the processes of one `windvane serve`.",
     )
+    cache_retry_seconds: float = Field(
+        30.0,
+        ge=0,
+        le=86_400,
+        description="After a failed disk-cache write, seconds before writes are tried again.",
+    )
     cache_memory_items: int = Field(1_024, ge=0, description="Finished responses kept in memory.")
     cache_memory_bytes: int = Field(
         64_000_000, ge=0, description="Size bound of the in-memory response cache, bytes."

@@ -75,6 +75,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             response_entries=settings.cache_memory_items,
             response_bytes=settings.cache_memory_bytes,
             secret=secret.get_secret_value().encode() if secret is not None else None,
+            retry_seconds=settings.cache_retry_seconds,
         )
         app.state.flights = {}
 
