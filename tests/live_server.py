@@ -36,6 +36,27 @@ class LiveServer:
         return self.log.read_text(encoding="utf-8", errors="replace")[-4000:]
 
 
+def process_stats() -> dict[int, list[str]]:
+    """Every process's /proc/<pid>/stat fields after the command name (index 1: the parent)."""
+    found: dict[int, list[str]] = {}
+    for entry in Path("/proc").iterdir():
+        if entry.name.isdigit():
+            try:
+                found[int(entry.name)] = (entry / "stat").read_text().rsplit(")", 1)[1].split()
+            except OSError:
+                continue
+    return found
+
+
+def descendants(root: int, stats: dict[int, list[str]] | None = None) -> list[int]:
+    """``root`` and every process below it, parents before children."""
+    parents = {pid: int(fields[1]) for pid, fields in (stats or process_stats()).items()}
+    family = [root]
+    for pid in family:
+        family.extend(p for p, parent in parents.items() if parent == pid)
+    return family
+
+
 def free_port() -> int:
     """A TCP port free on 127.0.0.1 at the time of asking."""
     with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as sock:

@@ -18,7 +18,7 @@ from typing import Any
 import httpx
 import numpy as np
 import pytest
-from live_server import LiveServer, running
+from live_server import LiveServer, process_stats, running
 
 from service.runtime.sealed import Sealer
 
@@ -65,16 +65,9 @@ def lookups(server: LiveServer, level: str, result: str) -> float:
 
 def workers_of(server: LiveServer) -> set[int]:
     """The pool's worker processes: children of the fork server, the server's child."""
-    parents: dict[int, int] = {}
-    for entry in Path("/proc").iterdir():
-        if entry.name.isdigit():
-            try:
-                stat = (entry / "stat").read_text()
-            except OSError:
-                continue
-            parents[int(entry.name)] = int(stat.rsplit(")", 1)[1].split()[1])
-    children = {p for p, parent in parents.items() if parent == server.process.pid}
-    return {p for p, parent in parents.items() if parent in children}
+    stats = process_stats()
+    children = {p for p, fields in stats.items() if int(fields[1]) == server.process.pid}
+    return {p for p, fields in stats.items() if int(fields[1]) in children}
 
 
 def test_the_port_opens_at_once_and_an_idle_worker_that_dies_is_replaced(

@@ -34,6 +34,7 @@ import httpx
 import numpy as np
 
 from service.api.schemas.forecasts import ForecastRequest
+from tests.live_server import descendants, process_stats
 
 ROOT = Path(__file__).resolve().parents[2]
 CONNECTIONS = 16
@@ -168,17 +169,7 @@ def start(target: str, env: dict[str, str]) -> tuple[subprocess.Popen[bytes], st
 
 def resident_mb(root: int) -> dict[str, float]:
     """Resident memory of a process and of every descendant (pool workers), MB."""
-    parents: dict[int, int] = {}
-    for entry in Path("/proc").iterdir():
-        if entry.name.isdigit():
-            try:
-                stat = (entry / "stat").read_text()
-            except OSError:
-                continue
-            parents[int(entry.name)] = int(stat.rsplit(")", 1)[1].split()[1])
-    family = [root]
-    for pid in family:
-        family.extend(p for p, parent in parents.items() if parent == pid)
+    family = descendants(root)
     out = {}
     for pid in family:
         try:
@@ -309,20 +300,9 @@ class Round:
 def cpu_seconds(root: int) -> float:
     """User + system CPU seconds of a process and every living descendant, from /proc."""
     tick = os.sysconf("SC_CLK_TCK")
-    parents: dict[int, int] = {}
-    times: dict[int, float] = {}
-    for entry in Path("/proc").iterdir():
-        if not entry.name.isdigit():
-            continue
-        try:
-            fields = (entry / "stat").read_text().rsplit(")", 1)[1].split()
-        except OSError:
-            continue
-        parents[int(entry.name)] = int(fields[1])
-        times[int(entry.name)] = (int(fields[11]) + int(fields[12])) / tick
-    family = [root]
-    for pid in family:
-        family.extend(p for p, parent in parents.items() if parent == pid)
+    stats = process_stats()
+    times = {pid: (int(f[11]) + int(f[12])) / tick for pid, f in stats.items()}
+    family = descendants(root, stats)
     return sum(times.get(pid, 0.0) for pid in family)
 
 
