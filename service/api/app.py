@@ -7,6 +7,7 @@ import gc
 import logging
 from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
+from typing import Any
 
 from fastapi import FastAPI
 
@@ -23,6 +24,7 @@ from service.api.observe import ObserveMiddleware
 from service.api.openapi import install_limits
 from service.api.problems import install_problem_handlers
 from service.api.routes import backtests, batches, diagnostics, forecasts, health, models
+from service.api.schemas.specification import add_specification_schemas
 from service.config import Settings
 from service.runtime.cache import Cache
 from service.runtime.logs import request_logger
@@ -58,6 +60,13 @@ def description(settings: Settings) -> str:
 def _report_failed_start(task: asyncio.Task[int]) -> None:
     if not task.cancelled() and task.exception() is not None:
         log.error("the worker pool failed to start", exc_info=task.exception())
+
+
+def _openapi(app: FastAPI) -> dict[str, Any]:
+    """FastAPI's document with the specification schemas the registry defines."""
+    if app.openapi_schema is None:
+        app.openapi_schema = add_specification_schemas(FastAPI.openapi(app))
+    return app.openapi_schema
 
 
 def create_app(settings: Settings | None = None) -> FastAPI:
@@ -114,7 +123,10 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         lifespan=lifespan,
         docs_url="/docs",
         redoc_url=None,
+        # Response parts that leave out what the answer lacks (Sparse) keep their field list.
+        separate_input_output_schemas=False,
     )
+    app.openapi = lambda: _openapi(app)  # type: ignore[method-assign]
     app.state.settings = settings
     app.state.telemetry = telemetry
     install_problem_handlers(app)

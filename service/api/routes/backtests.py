@@ -10,7 +10,7 @@ from fastapi import APIRouter, Body
 from service.api import examples
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.problems import PROBLEM_RESPONSES
-from service.api.schemas.backtests import BacktestRequest
+from service.api.schemas.backtests import BacktestRequest, BacktestResponse
 from service.api.tasks import backtest_task
 from service.runtime import jobs
 from service.runtime.keys import data_key
@@ -21,6 +21,7 @@ router = APIRouter(prefix="/v1", tags=["backtests"])
 @router.post(
     "/backtests",
     summary="Backtest models on a series",
+    response_model=BacktestResponse,
     responses={**PROBLEM_RESPONSES, **examples.response_example("backtest")},
 )
 async def create_backtest(

@@ -10,7 +10,7 @@ from fastapi import APIRouter, Body
 from service.api import examples
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.problems import PROBLEM_RESPONSES
-from service.api.schemas.diagnostics import DiagnosticsRequest
+from service.api.schemas.diagnostics import DiagnosticsRequest, DiagnosticsResponse
 from service.api.tasks import diagnostics_task
 from service.runtime import jobs
 from service.runtime.keys import data_key
@@ -21,6 +21,7 @@ router = APIRouter(prefix="/v1", tags=["diagnostics"])
 @router.post(
     "/diagnostics",
     summary="Diagnose a series",
+    response_model=DiagnosticsResponse,
     responses={**PROBLEM_RESPONSES, **examples.response_example("diagnostics")},
 )
 async def create_diagnostics(

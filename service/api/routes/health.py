@@ -11,6 +11,7 @@ from fastapi.responses import JSONResponse, PlainTextResponse, Response
 from service.api.auth import bearer_token
 from service.api.dependencies import CacheDep, PoolDep, TelemetryDep
 from service.api.problems import problem_response
+from service.api.schemas.health import Liveness, Readiness
 
 router = APIRouter(tags=["operations"])
 
@@ -18,6 +19,7 @@ router = APIRouter(tags=["operations"])
 @router.get(
     "/healthz",
     summary="Liveness",
+    response_model=Liveness,
     responses={200: {"content": {"application/json": {"example": {"status": "ok"}}}}},
 )
 async def healthz() -> dict[str, str]:
@@ -28,13 +30,31 @@ async def healthz() -> dict[str, str]:
 READY_EXAMPLE = {
     "status": "ready",
     "checks": {"pool": "ok", "cache": "ok"},
-    "details": {"pool": {"workers": 2, "busy": 0, "queued": 0}, "cache": {"enabled": True}},
+    "details": {
+        "pool": {
+            "workers": 2,
+            "alive": 2,
+            "busy": 0,
+            "queued": 0,
+            "recycled": 0,
+            "start_method": "forkserver",
+        },
+        "cache": {
+            "enabled": True,
+            "responses": 12,
+            "fitted_entries": 3,
+            "fitted_bytes": 5120,
+            "directory": "/var/cache/windvane",
+            "degraded": None,
+        },
+    },
 }
 
 
 @router.get(
     "/readyz",
     summary="Readiness",
+    response_model=Readiness,
     responses={
         200: {"content": {"application/json": {"example": READY_EXAMPLE}}},
         503: {"description": "Not ready", "content": {"application/problem+json": {}}},

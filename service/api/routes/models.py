@@ -6,6 +6,7 @@ from typing import Any
 
 from fastapi import APIRouter
 
+from service.api.schemas.models import CatalogueResponse
 from service.core.models.registry import catalogue
 
 router = APIRouter(prefix="/v1", tags=["models"])
@@ -18,6 +19,8 @@ CATALOGUE_EXAMPLE = {"families": [c for c in catalogue() if c["family"] == "cros
 @router.get(
     "/models",
     summary="Model families and their parameters",
+    response_model=CatalogueResponse,
+    response_model_exclude_unset=True,
     responses={200: {"content": {"application/json": {"example": CATALOGUE_EXAMPLE}}}},
 )
 async def list_models() -> dict[str, Any]:

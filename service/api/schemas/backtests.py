@@ -1,4 +1,4 @@
-"""POST /v1/backtests: request (the response is documented by example)."""
+"""POST /v1/backtests: request and response."""
 
 from __future__ import annotations
 
@@ -9,10 +9,13 @@ from pydantic import Field
 from service.api.schemas.common import (
     OriginCount,
     OriginStep,
+    Out,
     PositiveWhole,
     SeriesIn,
+    SpecificationJson,
     SpecificationObject,
     Strict,
+    WarningOut,
 )
 
 
@@ -32,3 +35,56 @@ class BacktestRequest(Strict):
     metric: Literal["mase", "smape", "rmse", "mae"] = Field(
         "mase", description="The score that ranks the models."
     )
+
+
+class ScoresOut(Out):
+    """Accuracy measures; coverage and interval score per coverage level (e.g. "0.8")."""
+
+    mae: float | None
+    rmse: float | None
+    mase: float | None
+    smape: float | None
+    coverage: dict[str, float | None]
+    msis: dict[str, float | None] = Field(description="Scaled interval score per level.")
+
+
+class StepScoresOut(ScoresOut):
+    """The scores at one step ahead, over the origins."""
+
+    step: int
+
+
+class ModelBacktestOut(Out):
+    """One specification's backtest: forecast origins, per-step and overall scores."""
+
+    specification: SpecificationJson
+    label: str
+    failure: str | None = Field(description="Why the model could not be evaluated, if so.")
+    origins: list[str]
+    overall: ScoresOut | None
+    steps: list[StepScoresOut]
+    fit_seconds: float
+    refilter_seconds: float
+    warnings: list[WarningOut]
+
+
+class RankEntryOut(Out):
+    """A model's place in the ranking by the chosen metric."""
+
+    label: str
+    specification: SpecificationJson
+    score: float | None
+
+
+class BacktestResponse(Out):
+    """Every model's per-step scores and a ranking of the working ones by ``metric``."""
+
+    metric: str
+    horizon: int
+    step: int
+    origins: list[str]
+    coverage: list[float]
+    models: list[ModelBacktestOut]
+    ranking: list[RankEntryOut]
+    warnings: list[WarningOut]
+    data_hash: str

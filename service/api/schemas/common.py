@@ -4,7 +4,16 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import AfterValidator, BaseModel, BeforeValidator, ConfigDict, Field, WithJsonSchema
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    BeforeValidator,
+    ConfigDict,
+    Field,
+    SerializerFunctionWrapHandler,
+    WithJsonSchema,
+    model_serializer,
+)
 
 # Bounds stated here are checked by the core (which names the index) or by pydantic, and
 # appear in the OpenAPI schema; the limits that come from the settings are added to the
@@ -89,7 +98,7 @@ SpecificationObject = Annotated[
     AfterValidator(_shallow),
     WithJsonSchema(
         {
-            "type": "object",
+            "allOf": [{"$ref": "#/components/schemas/Specification"}],
             "description": "A model specification; objects and arrays nest at most "
             f"{SPECIFICATION_DEPTH} levels deep.",
             "x-max-depth": SPECIFICATION_DEPTH,
@@ -175,3 +184,42 @@ class WarningOut(BaseModel):
 
     code: str
     message: str
+
+
+class Out(BaseModel):
+    """A response part: every field is described, and an undescribed one is an error."""
+
+    model_config = ConfigDict(extra="forbid")
+
+
+class Sparse(Out):
+    """A response part whose optional fields appear only when the answer has them."""
+
+    @model_serializer(mode="wrap")
+    def _given_fields_only(self, handler: SerializerFunctionWrapHandler) -> dict[str, Any]:
+        found: dict[str, Any] = handler(self)
+        return {k: v for k, v in found.items() if k in self.model_fields_set}
+
+
+class NotApplicableOut(Out):
+    """A section that cannot be computed on this series, with the reason."""
+
+    applicable: Literal[False]
+    reason: str
+
+
+class LjungBoxOut(Out):
+    """The Ljung-Box portmanteau statistic at one lag with its chi-square p-value."""
+
+    lag: int
+    statistic: float | None
+    degrees_of_freedom: int
+    p_value: float | None
+
+
+# A specification as answers echo it: its schema, like the request's `Specification`, is
+# built from the registry (service.api.schemas.specification).
+SpecificationJson = Annotated[
+    dict[str, Any],
+    WithJsonSchema({"allOf": [{"$ref": "#/components/schemas/FittedSpecification"}]}),
+]

@@ -1,4 +1,4 @@
-"""POST /v1/diagnostics: request (the response is documented by example)."""
+"""POST /v1/diagnostics: request and response."""
 
 from __future__ import annotations
 
@@ -6,7 +6,16 @@ from typing import Literal
 
 from pydantic import Field
 
-from service.api.schemas.common import Lag, SeriesIn, Strict
+from service.api.schemas.common import (
+    Lag,
+    LjungBoxOut,
+    NotApplicableOut,
+    Out,
+    SeriesIn,
+    Sparse,
+    Strict,
+    WarningOut,
+)
 
 
 class DiagnosticsRequest(Strict):
@@ -20,3 +29,234 @@ class DiagnosticsRequest(Strict):
         default_factory=list,
         description="`components` adds the STL trend, seasonal and remainder series.",
     )
+
+
+class SummaryOut(Out):
+    """Counts, span and moments of the observed values."""
+
+    length: int
+    missing: int
+    first_timestamp: str | None
+    last_timestamp: str | None
+    frequency: str
+    seasonal_period: int
+    mean: float | None
+    standard_deviation: float | None
+    minimum: float | None
+    maximum: float | None
+    share_of_zeros: float | None
+
+
+class HypothesisTestOut(Out):
+    """One ADF or KPSS test: statistic, p-value (or a bound past the table), critical values."""
+
+    applicable: Literal[True]
+    test: Literal["adf", "kpss"]
+    deterministic_terms: Literal["constant", "constant_and_trend"]
+    null_hypothesis: Literal["unit root", "stationary"]
+    statistic: float | None
+    p_value: float | None
+    p_value_bound: str | None = Field(description="'< 0.01' or '> 0.1' past the table.")
+    critical_values: dict[str, float | None]
+    observations: int
+    lags_used: int
+    lag_rule: str
+    rejects_null_at_5_percent: bool
+
+
+TestOrNot = HypothesisTestOut | NotApplicableOut
+
+
+class StationarityOut(Out):
+    """ADF (constant; constant and trend), KPSS (level; trend) and the combined verdict."""
+
+    adf_constant: TestOrNot
+    adf_constant_and_trend: TestOrNot
+    kpss_level: TestOrNot
+    kpss_trend: TestOrNot
+    verdict: str
+    decision_rule: str
+    notes: list[str]
+
+
+class DifferencingStepOut(Out):
+    """One decision of the differencing search."""
+
+    series: str
+    measure: str
+    value: float | None
+    p_value: float | None
+    p_value_bound: str | None
+    decision: str
+
+
+class DifferencingOut(Out):
+    """d and D with the steps that chose them and the tests on the differenced series."""
+
+    regular_differences: int
+    seasonal_differences: int
+    seasonal_period: int
+    regular_rule: str
+    seasonal_rule: str
+    steps: list[DifferencingStepOut]
+    differenced_series: str
+    adf_constant_after: TestOrNot
+    kpss_level_after: TestOrNot
+    stationary_after: bool | None
+    notes: list[str]
+
+
+class BandOut(Out):
+    """The white-noise band of the ACF and PACF."""
+
+    lower: float
+    upper: float
+    rule: str
+
+
+class CorrelogramOut(Out):
+    """ACF and PACF at lags 1..max_lag (``acf[i]`` is lag ``i + 1``), band, Ljung-Box."""
+
+    applicable: Literal[True]
+    observations: int
+    max_lag: int
+    lags: list[int]
+    acf: list[float | None]
+    pacf: list[float | None]
+    band: BandOut
+    significant_acf_lags: list[int]
+    significant_pacf_lags: list[int]
+    ljung_box: list[LjungBoxOut]
+    notes: list[str]
+
+
+class DifferencedCorrelogramOut(CorrelogramOut):
+    """The correlogram of the differenced series, naming the differences taken."""
+
+    differenced_series: str
+
+
+class DifferencedNotApplicableOut(NotApplicableOut):
+    """No correlogram of the differenced series, naming the differences taken."""
+
+    differenced_series: str
+
+
+class AutocorrelationOut(Out):
+    """Correlograms of the series and of its differenced form."""
+
+    series: CorrelogramOut | NotApplicableOut
+    differenced: DifferencedCorrelogramOut | DifferencedNotApplicableOut
+
+
+class AdfEvidenceOut(Out):
+    """An ADF test as evidence of the random-walk verdict."""
+
+    statistic: float | None
+    p_value: float | None
+    lags_used: int
+    rejects_unit_root_at_5_percent: bool
+
+
+class DriftOut(Out):
+    """One-sample t-test of the mean difference against zero."""
+
+    mean: float | None
+    t_statistic: float | None
+    p_value: float | None
+    degrees_of_freedom: int
+
+
+class RandomWalkEvidenceOut(Sparse):
+    """The tests the verdict rests on; later steps are absent when an earlier one decided."""
+
+    adf_level: AdfEvidenceOut
+    adf_differences: AdfEvidenceOut | None = None
+    ljung_box_differences: LjungBoxOut | None = None
+    significant_acf_lags_of_differences: list[int] | None = None
+    acf_lags_examined: int | None = None
+    chance_allowance: int | None = None
+    mean_difference: DriftOut | None = None
+
+
+class RandomWalkOut(Out):
+    """Whether the series is a random walk, the evidence and a one-sentence reason."""
+
+    applicable: Literal[True]
+    is_random_walk: bool
+    with_drift: bool
+    differences_to_stationarity: int | None
+    reason: str
+    rule: str
+    tolerated_lags: list[int]
+    evidence: RandomWalkEvidenceOut
+
+
+class CandidatePeriodOut(Out):
+    """A period suggested by the data, with the ACF and periodogram evidence."""
+
+    period: int
+    found_by: str
+    autocorrelation: float | None
+    share_of_variance: float | None
+
+
+class ComponentsOut(Out):
+    """The decomposition's series, one value per timestamp (for plotting)."""
+
+    method: str
+    timestamps: list[str]
+    trend: list[float | None]
+    seasonal: list[float | None] | None
+    remainder: list[float | None]
+
+
+class SeasonalityOut(Out):
+    """Strengths of trend and season, candidate periods and (on request) the components."""
+
+    applicable: Literal[True]
+    decomposition: Literal["stl", "lowess"]
+    settings: dict[str, int | float] = Field(description="The decomposition's smoothing settings.")
+    strength_rule: str
+    trend_strength: float | None
+    seasonal_strength: float | NotApplicableOut | None
+    seasonal_period_from_frequency: int
+    candidate_periods: list[CandidatePeriodOut]
+    components: ComponentsOut | None
+
+
+class OutlierOut(Out):
+    """One observed point whose remainder lies beyond the robust threshold."""
+
+    timestamp: str
+    value: float | None
+    remainder: float | None
+    score: float | None = Field(description="|r - median(r)| in robust standard deviations.")
+
+
+class OutliersOut(Out):
+    """The points beyond the threshold (the first 100 listed) and the rule used."""
+
+    applicable: Literal[True]
+    rule: str
+    threshold: float | None
+    count: int
+    listed: int
+    points: list[OutlierOut]
+    note: str
+
+
+class DiagnosticsResponse(Out):
+    """Every section of the diagnostics, each a result or ``{"applicable": false, ...}``."""
+
+    summary: SummaryOut
+    stationarity: StationarityOut | NotApplicableOut
+    differencing: DifferencingOut | NotApplicableOut
+    autocorrelation: AutocorrelationOut
+    random_walk: RandomWalkOut | NotApplicableOut
+    seasonality: SeasonalityOut | NotApplicableOut
+    outliers: OutliersOut | NotApplicableOut
+    findings: list[str] = Field(description="Plain sentences a report can show as they are.")
+    notes: list[str]
+    warnings: list[WarningOut]
+    data_hash: str

@@ -7,13 +7,18 @@ from typing import Any, Literal
 from pydantic import BaseModel, ConfigDict, Field
 
 from service.api.schemas.common import (
+    LjungBoxOut,
+    Out,
     PositiveWhole,
     Provenance,
     SeriesIn,
+    Sparse,
+    SpecificationJson,
     SpecificationObject,
     Strict,
     WarningOut,
 )
+from service.api.schemas.selection import SelectionOut
 
 # Beyond a few units the Box-Cox back-transform overflows float64 (-50 gave infinite bounds).
 LAMBDA_BOUND = 5.0
@@ -78,16 +83,29 @@ class IntervalOut(BaseModel):
     upper: list[float]
 
 
-class ModelOut(BaseModel):
+class ResidualDiagnosticsOut(Sparse):
+    """Checks on the fitted model's residuals and notes on how its intervals are made."""
+
+    ljung_box: LjungBoxOut | None = None
+    reason: str | None = Field(None, description="Why the Ljung-Box test was not run.")
+    interval_method: str | None = None
+    initial_states: str | None = None
+    members: list[str] | None = Field(None, description="A combination's member labels.")
+    scale: Literal["transformed"] | None = Field(
+        None, description="Present when the checks ran on the transformed scale."
+    )
+
+
+class ModelOut(Out):
     """The fitted model's metadata."""
 
     family: str
     label: str
-    specification: dict[str, Any]
-    parameters: dict[str, Any]
+    specification: SpecificationJson
+    parameters: dict[str, float | None]
     information_criteria: dict[str, float]
     residual_variance: float | None = None
-    residual_diagnostics: dict[str, Any] = {}
+    residual_diagnostics: ResidualDiagnosticsOut
     observations: int
     fit_seconds: float
 
@@ -100,7 +118,7 @@ class ForecastResponse(BaseModel):
     point: list[float]
     intervals: list[IntervalOut]
     model: ModelOut
-    selection: dict[str, Any] | None = None
+    selection: SelectionOut | None = None
     warnings: list[WarningOut] = []
     fitted: list[float | None] | None = None
     residuals: list[float | None] | None = None
