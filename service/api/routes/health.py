@@ -42,8 +42,8 @@ READY_EXAMPLE = {
         "cache": {
             "enabled": True,
             "responses": 12,
-            "fitted_entries": 3,
-            "fitted_bytes": 5120,
+            "disk_entries": 3,
+            "disk_bytes": 5120,
             "directory": "/var/cache/windvane",
             "degraded": None,
         },

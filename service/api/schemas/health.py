@@ -27,14 +27,14 @@ class PoolDetails(Out):
 
 
 class CacheDetails(Out):
-    """The cache's levels: responses in memory, fitted models on disk (off when degraded)."""
+    """The cache: responses in memory, entries on disk, and why the disk fails, if it does."""
 
     enabled: bool
     responses: int
-    fitted_entries: int
-    fitted_bytes: int
+    disk_entries: int
+    disk_bytes: int
     directory: str | None
-    degraded: str | None = Field(description="Why the disk level is off, if it is.")
+    degraded: str | None = Field(description="Why the disk level is failing, if it is.")
 
 
 class ReadyChecks(Out):
