@@ -4,10 +4,10 @@ from __future__ import annotations
 
 from service.api.schemas.common import SeriesIn
 from service.config import Settings
+from service.core.data.series import Aggregation, ParsedSeries, parse_series
 from service.core.errors import WindvaneError
 from service.core.models.base import Specification
 from service.core.models.registry import specification_from_dict
-from service.core.series import Aggregation, ParsedSeries, parse_series
 
 
 def parsed_series(

@@ -12,10 +12,10 @@ from service.api.schemas.diagnostics import DiagnosticsRequest
 from service.api.schemas.forecasts import ForecastRequest
 from service.config import Settings
 from service.core.checks import check_coverage, check_positive_int
+from service.core.data.regressors import regressors_from_wire
+from service.core.data.series import ParsedSeries
 from service.core.errors import RequestError, WindvaneError
-from service.core.regressors import regressors_from_wire
-from service.core.series import ParsedSeries
-from service.core.transforms import transform_from_value
+from service.core.models.transforms import transform_from_value
 from service.runtime import jobs
 
 

@@ -11,10 +11,10 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from service.core.backtest import backtest as run_backtest
-from service.core.candidates import candidates_for, profile_series
-from service.core.diagnostics import diagnose
+from service.core.data.regressors import RegressorSet
+from service.core.diagnostics.report import diagnose
 from service.core.errors import WindvaneError
+from service.core.evaluation.backtest import backtest as run_backtest
 
 # The families: the automatic selection looks them up in the registry only when a request
 # runs (candidate rules, refit), so without this import the first request of a process paid
@@ -23,9 +23,9 @@ from service.core.models import registry as _registry  # noqa: F401
 from service.core.models.base import Fitted, FitWarning, Specification
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
-from service.core.regressors import RegressorSet
-from service.core.selection import backtest_auto, select
-from service.core.transforms import TransformedSpec, transform_from_value
+from service.core.models.transforms import TransformedSpec, transform_from_value
+from service.core.selection.auto import backtest_auto, select
+from service.core.selection.candidates import candidates_for, profile_series
 from service.runtime import render
 
 

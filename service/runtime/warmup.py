@@ -31,8 +31,8 @@ def warm() -> None:
     import numpy as np
     import pandas as pd
 
-    from service.core.diagnostics import diagnose
-    from service.core.selection import select
+    from service.core.diagnostics.report import diagnose
+    from service.core.selection.auto import select
 
     rng = np.random.default_rng(0)
     t = np.arange(72)

@@ -20,7 +20,7 @@ from hypothesis import strategies as st
 from service import demo
 from service.api.schemas.common import SeriesIn
 from service.api.schemas.forecasts import ForecastRequest, ForecastResponse
-from service.core.series import parse_series
+from service.core.data.series import parse_series
 
 PATH = "/v1/forecasts"
 BENCHMARKS = ("mean", "naive", "seasonal_naive", "drift")

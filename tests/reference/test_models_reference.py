@@ -12,7 +12,7 @@ from statsmodels.tsa.forecasting.theta import ThetaModel
 
 from service.core.models.croston import CrostonSpec, croston_filter
 from service.core.models.theta import ThetaSpec, ses_levels, theta_path
-from service.core.transforms import boxcox_lambda_linear
+from service.core.models.transforms import boxcox_lambda_linear
 
 
 def nile_series() -> pd.Series:

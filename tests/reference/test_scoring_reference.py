@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from service.core.scoring import interval_score, mae, mase, mase_scale
+from service.core.evaluation.scoring import interval_score, mae, mase, mase_scale
 
 TRAIN = np.array([3.0, 5.0, 4.0, 6.0, 8.0, 7.0])
 TEST = np.array([9.0, 8.0])

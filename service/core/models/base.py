@@ -15,7 +15,7 @@ from typing import Any, ClassVar, Protocol, runtime_checkable
 import numpy as np
 import pandas as pd
 
-from service.core.intervals import Interval
+from service.core.models.intervals import Interval
 
 
 @dataclass(frozen=True)

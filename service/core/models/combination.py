@@ -16,7 +16,6 @@ import numpy as np
 import pandas as pd
 
 from service.core.errors import SpecificationError, WindvaneError
-from service.core.intervals import Interval
 from service.core.models.base import (
     Description,
     Fitted,
@@ -25,6 +24,7 @@ from service.core.models.base import (
     as_dict,
     parameter,
 )
+from service.core.models.intervals import Interval
 from service.core.models.simple import ljung_box_summary, timed
 
 

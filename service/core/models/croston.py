@@ -18,7 +18,6 @@ import numpy as np
 import pandas as pd
 
 from service.core.errors import FitError
-from service.core.intervals import Interval
 from service.core.models.base import (
     Description,
     FitWarning,
@@ -28,6 +27,7 @@ from service.core.models.base import (
     parameter,
     residuals_from,
 )
+from service.core.models.intervals import Interval
 from service.core.models.simple import ljung_box_summary, timed
 
 

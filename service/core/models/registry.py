@@ -13,12 +13,12 @@ from collections.abc import Mapping
 from typing import Any
 
 from service.core.errors import FieldProblem, SpecificationError
-from service.core.models.arima import ArimaSpec
+from service.core.models.arima.family import ArimaSpec
 from service.core.models.base import ParameterInfo, Specification
 from service.core.models.combination import CombinationSpec
 from service.core.models.croston import CrostonSpec
 from service.core.models.drift import DriftSpec
-from service.core.models.ets import EtsSpec
+from service.core.models.ets.family import EtsSpec
 from service.core.models.mean import MeanSpec
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec

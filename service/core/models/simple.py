@@ -16,8 +16,8 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from service.core.intervals import normal_intervals
 from service.core.models.base import Description, FitWarning, Forecast, future_index
+from service.core.models.intervals import normal_intervals
 
 
 @dataclass

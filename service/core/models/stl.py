@@ -18,12 +18,12 @@ import numpy as np
 import pandas as pd
 from statsmodels.tsa.seasonal import STL
 
-from service.core.arima_estimation import _as_fit_warning
 from service.core.checks import check_positive_int
 from service.core.errors import FitError, SeriesError, WindvaneError
-from service.core.intervals import Interval
+from service.core.models.arima.estimation import _as_fit_warning
 from service.core.models.base import Description, FitWarning, Forecast, as_dict, parameter
-from service.core.models.ets import EtsSpec
+from service.core.models.ets.family import EtsSpec
+from service.core.models.intervals import Interval
 
 DEFAULT_BASE = EtsSpec(season="none")
 

@@ -18,9 +18,9 @@ import pandas as pd
 from scipy import optimize, stats
 
 from service.core.errors import FitError
-from service.core.intervals import Interval, normal_intervals
 from service.core.models.base import Description, FitWarning, Forecast, as_dict, future_index
 from service.core.models.base import parameter as param
+from service.core.models.intervals import Interval, normal_intervals
 from service.core.models.simple import ljung_box_summary, timed
 
 SEASONALITY_TEST_LEVEL = 0.90

@@ -9,13 +9,13 @@ import pandas as pd
 import pytest
 
 from service import demo
+from service.core.data.series import ParsedSeries, parse_series
 from service.core.errors import FitError
 from service.core.models.drift import DriftSpec
 from service.core.models.mean import MeanSpec
 from service.core.models.naive import NaiveSpec
 from service.core.models.registry import specification_from_dict
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
-from service.core.series import ParsedSeries, parse_series
 
 SPECS = {
     "mean": MeanSpec(),

@@ -17,7 +17,7 @@ import pandas as pd
 import pytest
 from threadpoolctl import threadpool_limits
 
-from service.core.models.ets import EtsFitted, EtsSpec
+from service.core.models.ets.family import EtsFitted, EtsSpec
 
 HORIZON = 6
 TOLERANCE = 0.03

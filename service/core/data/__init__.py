@@ -1,0 +1,1 @@
+"""The series as the core sees it: frequency, parsing, gap filling, regressors."""

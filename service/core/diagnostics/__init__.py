@@ -1,0 +1,2 @@
+"""What a series is like: stationarity, autocorrelation, seasonality, differencing, random
+walk, and the findings drawn from them."""

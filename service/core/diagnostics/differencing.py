@@ -1,0 +1,189 @@
+"""How many regular (d) and seasonal (D) differences a series needs before ARIMA modelling.
+
+D first, then d on the seasonally differenced series, as Hyndman & Khandakar (2008) order
+them: D = 1 when the STL seasonal strength exceeds 0.64, d by successive KPSS tests.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from service.core.applicability import NotApplicable, plain_float
+from service.core.checks import check_positive_int
+from service.core.data.filling import check_series, fill_gaps
+from service.core.diagnostics.seasonality import Decomposition, decompose, seasonal_strength
+from service.core.diagnostics.stationarity import HypothesisTest, adf_test, applicability, kpss_test
+
+SEASONAL_THRESHOLD = 0.64
+MAX_REGULAR = 2
+REGULAR_RULE = (
+    "d = the number of successive KPSS (level) tests that reject stationarity at 5 %, at most 2, "
+    "each on the previous difference (Hyndman & Khandakar 2008); run on the seasonally "
+    "differenced series when D = 1"
+)
+SEASONAL_RULE = (
+    "D = 1 when the STL seasonal strength max(0, 1 - Var(R)/Var(S+R)) of Wang, Smith & "
+    "Hyndman (2006) exceeds 0.64, the default threshold of Hyndman's seasonal-differencing "
+    "heuristic (from memory); D = 0 for period 1 or fewer than two full seasons"
+)
+
+
+@dataclass(frozen=True)
+class DifferencingStep:
+    """One decision of the search: the series looked at, the measure and what it decided."""
+
+    series: str
+    measure: str
+    value: float | None
+    p_value: float | None
+    p_value_bound: str | None
+    decision: str
+
+    def to_dict(self) -> dict[str, Any]:
+        """The wire form."""
+        return {
+            "series": self.series,
+            "measure": self.measure,
+            "value": plain_float(self.value),
+            "p_value": plain_float(self.p_value),
+            "p_value_bound": self.p_value_bound,
+            "decision": self.decision,
+        }
+
+
+@dataclass(frozen=True)
+class DifferencingOrders:
+    """d and D with the steps that chose them and the tests re-run on the differenced series."""
+
+    regular: int
+    seasonal: int
+    seasonal_period: int
+    steps: tuple[DifferencingStep, ...]
+    adf_after: HypothesisTest | NotApplicable
+    kpss_after: HypothesisTest | NotApplicable
+    notes: tuple[str, ...]
+
+    @property
+    def stationary_after(self) -> bool | None:
+        """Whether ADF rejects and KPSS does not on the differenced series (None if untestable)."""
+        adf, kpss = self.adf_after, self.kpss_after
+        if isinstance(adf, HypothesisTest) and isinstance(kpss, HypothesisTest):
+            return adf.rejects and not kpss.rejects
+        return None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The wire form."""
+        return {
+            "regular_differences": self.regular,
+            "seasonal_differences": self.seasonal,
+            "seasonal_period": self.seasonal_period,
+            "regular_rule": REGULAR_RULE,
+            "seasonal_rule": SEASONAL_RULE,
+            "steps": [s.to_dict() for s in self.steps],
+            "differenced_series": label(self.regular, self.seasonal, self.seasonal_period),
+            "adf_constant_after": self.adf_after.to_dict(),
+            "kpss_level_after": self.kpss_after.to_dict(),
+            "stationary_after": self.stationary_after,
+            "notes": list(self.notes),
+        }
+
+
+def differencing_orders(y: pd.Series, seasonal_period: int) -> DifferencingOrders:
+    """d (0-2) and D (0-1) for ARIMA; missing values are interpolated for the tests."""
+    check_series(y)
+    check_positive_int(seasonal_period, "series.seasonal_period")
+    filled = fill_gaps(y)
+    x = filled.values
+    decomposition: Decomposition | NotApplicable
+    if x.size == 0:
+        decomposition = NotApplicable("the series has no observed values")
+    elif not np.any(x != x[0]):
+        decomposition = NotApplicable("the series is constant")
+    else:
+        decomposition = decompose(x, seasonal_period)
+    return orders_from(x, seasonal_period, decomposition, filled.note())
+
+
+def orders_from(
+    x: np.ndarray,
+    seasonal_period: int,
+    decomposition: Decomposition | NotApplicable,
+    notes: tuple[str, ...] = (),
+) -> DifferencingOrders:
+    """The search on a gap-free series whose decomposition is already at hand."""
+    steps: list[DifferencingStep] = []
+    seasonal = 0
+    strength = (
+        seasonal_strength(decomposition) if isinstance(decomposition, Decomposition) else None
+    )
+    if strength is not None:
+        seasonal = int(strength > SEASONAL_THRESHOLD)
+        decision = "seasonal difference" if seasonal else "no seasonal difference"
+        steps.append(DifferencingStep("y", "seasonal_strength", strength, None, None, decision))
+    else:
+        reason = (
+            decomposition.seasonal_reason
+            if isinstance(decomposition, Decomposition)
+            else decomposition.reason
+        )
+        notes = (*notes, f"D = 0: {reason}")
+    current = difference(x, 0, seasonal, seasonal_period)
+    regular = 0
+    while True:
+        name = label(regular, seasonal, seasonal_period)
+        blocked = applicability(current)
+        if blocked is not None:
+            notes = (*notes, f"d search stopped at {name}: {blocked.reason}")
+            break
+        test = kpss_test(current, "c")
+        if isinstance(test, NotApplicable):
+            notes = (*notes, f"d search stopped at {name}: {test.reason}")
+            break
+        more = test.rejects and regular < MAX_REGULAR
+        decision = "difference" if more else "stop"
+        if test.rejects and regular == MAX_REGULAR:
+            decision = "stop (at most two regular differences)"
+        steps.append(
+            DifferencingStep(
+                name, "kpss_level", test.statistic, test.p_value, test.p_value_bound, decision
+            )
+        )
+        if not more:
+            break
+        regular += 1
+        current = np.diff(current)
+    return DifferencingOrders(
+        regular=regular,
+        seasonal=seasonal,
+        seasonal_period=seasonal_period,
+        steps=tuple(steps),
+        adf_after=adf_test(current, "c"),
+        kpss_after=kpss_test(current, "c"),
+        notes=notes,
+    )
+
+
+def difference(x: np.ndarray, regular: int, seasonal: int, seasonal_period: int) -> np.ndarray:
+    """Apply D seasonal differences at lag m, then d regular ones."""
+    out = x
+    for _ in range(seasonal):
+        out = out[seasonal_period:] - out[:-seasonal_period]
+    for _ in range(regular):
+        out = np.diff(out)
+    return out
+
+
+def label(regular: int, seasonal: int, seasonal_period: int) -> str:
+    """The differenced series in operator notation: y, Δy, Δ²y, Δ12 y, ΔΔ12 y."""
+    parts = []
+    if regular == 1:
+        parts.append("Δ")
+    elif regular == 2:
+        parts.append("Δ²")
+    if seasonal:
+        parts.append(f"Δ{seasonal_period} ")
+    return "".join(parts) + "y"

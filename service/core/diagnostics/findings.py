@@ -1,0 +1,120 @@
+"""Plain sentences about a series' diagnostics that a reporting system can show as they are."""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from service.core.applicability import NotApplicable
+from service.core.diagnostics.differencing import DifferencingOrders
+from service.core.diagnostics.random_walk import RandomWalkVerdict
+from service.core.diagnostics.seasonality import Outliers
+from service.core.diagnostics.stationarity import Stationarity
+
+if TYPE_CHECKING:
+    from service.core.diagnostics.report import Diagnostics
+
+STRONG = 0.64
+"""Strength above which trend or season is called strong (the seasonal-differencing threshold)."""
+WEAK = 0.3
+
+
+def findings(d: Diagnostics) -> tuple[str, ...]:
+    """The sentences, most consequential first."""
+    out: list[str] = []
+    if d.summary.missing:
+        out.append(
+            f"{d.summary.missing} of {d.summary.length} values are missing; the tests ran on "
+            "the series with them interpolated."
+        )
+    if isinstance(d.stationarity, NotApplicable):
+        out.append(f"No statistical test applies: {d.stationarity.reason}.")
+        return tuple(out)
+    out += _random_walk(d.random_walk)
+    out += _stationarity(d.stationarity)
+    if isinstance(d.differencing, DifferencingOrders):
+        out.append(_differencing(d.differencing))
+    out += _seasonality(d)
+    if isinstance(d.outliers, Outliers) and d.outliers.count:
+        first = d.outliers.points[0].timestamp.isoformat()
+        out.append(
+            f"{d.outliers.count} point(s) lie beyond the outlier threshold (the first at "
+            f"{first}); check them before trusting a fitted model."
+        )
+    return tuple(out)
+
+
+def _random_walk(v: RandomWalkVerdict | NotApplicable) -> list[str]:
+    if isinstance(v, NotApplicable) or not v.is_random_walk:
+        return []
+    if v.with_drift:
+        sentence = (
+            "Differences of this series behave like white noise around a non-zero mean: it is "
+            "a random walk with drift; expect drift forecasts to be as good as any model."
+        )
+    else:
+        sentence = (
+            "Differences of this series behave like white noise: it is a random walk; expect "
+            "naive forecasts to be as good as any model."
+        )
+    if v.tolerated_lags:
+        sentence += (
+            f" Isolated significant lags ({', '.join(map(str, v.tolerated_lags))}) are within "
+            "what chance explains and do not change this."
+        )
+    return [sentence]
+
+
+_VERDICTS = {
+    "stationary": "The series is stationary: it returns to a constant mean.",
+    "trend_stationary": (
+        "The series is stationary around a deterministic trend: a trend model suits it better "
+        "than differencing."
+    ),
+    "difference_stationary": (
+        "The series has a unit root: its level wanders, so it must be differenced (or modelled "
+        "with a stochastic trend)."
+    ),
+    "inconclusive": "The unit-root and stationarity tests disagree: treat the verdict as open.",
+}
+
+
+def _stationarity(s: Stationarity) -> list[str]:
+    sentence = _VERDICTS.get(s.verdict)
+    return [sentence] if sentence else []
+
+
+def _differencing(o: DifferencingOrders) -> str:
+    seasonal = f" and {o.seasonal} seasonal difference(s) at lag {o.seasonal_period}"
+    return (
+        f"An ARIMA model needs {o.regular} regular difference(s)"
+        f"{seasonal if o.seasonal_period > 1 else ''}."
+    )
+
+
+def _seasonality(d: Diagnostics) -> list[str]:
+    from service.core.diagnostics.report import Seasonality
+
+    s = d.seasonality
+    if not isinstance(s, Seasonality):
+        return []
+    out = []
+    if isinstance(s.seasonal_strength, float):
+        if s.seasonal_strength > STRONG:
+            out.append(
+                f"Seasonality is strong (strength {s.seasonal_strength:.2f} at period "
+                f"{s.seasonal_period}): use a seasonal model."
+            )
+        elif s.seasonal_strength < WEAK:
+            out.append(
+                f"Seasonality at period {s.seasonal_period} is weak (strength "
+                f"{s.seasonal_strength:.2f})."
+            )
+    if s.trend_strength > STRONG:
+        out.append(f"The trend is strong (strength {s.trend_strength:.2f}).")
+    found = [c.period for c in s.candidates if "periodogram" in c.found_by]
+    if found and found[0] != s.seasonal_period and (s.candidates[0].share_of_variance or 0) > 0.2:
+        out.append(
+            f"The data suggest a period of {found[0]}, not the {s.seasonal_period} implied by "
+            "the frequency."
+        )
+    return out

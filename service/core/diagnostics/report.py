@@ -1,0 +1,274 @@
+"""Diagnostics of one series: is it forecastable, and how (POST /v1/diagnostics).
+
+``diagnose`` runs every section on the gap-free view of the series (core.filling) and never
+raises for a series the statistics cannot handle: such sections say ``applicable: false`` and
+why. Requested lags beyond what the series supports are clamped, with a note, not refused.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from service.core.applicability import NotApplicable, plain_float
+from service.core.checks import check_positive_int
+from service.core.data.filling import check_series, fill_gaps
+from service.core.diagnostics.autocorrelation import (
+    Correlogram,
+    correlogram,
+    default_max_lag,
+    largest_lag,
+    sample_acf,
+    white_noise_band,
+)
+from service.core.diagnostics.differencing import DifferencingOrders, difference, label, orders_from
+from service.core.diagnostics.findings import findings
+from service.core.diagnostics.random_walk import RandomWalkVerdict, random_walk
+from service.core.diagnostics.seasonality import (
+    CandidatePeriod,
+    Decomposition,
+    Outliers,
+    candidate_periods,
+    components_dict,
+    decompose,
+    outliers,
+    seasonal_strength,
+    trend_strength,
+)
+from service.core.diagnostics.stationarity import Stationarity, stationarity
+from service.core.errors import RequestError
+
+
+@dataclass(frozen=True)
+class Summary:
+    """Counts, span and moments of the observed values."""
+
+    length: int
+    missing: int
+    first: pd.Timestamp | None
+    last: pd.Timestamp | None
+    frequency: str
+    seasonal_period: int
+    mean: float | None
+    standard_deviation: float | None
+    minimum: float | None
+    maximum: float | None
+    share_of_zeros: float | None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The wire form; timestamps in ISO 8601."""
+        return {
+            "length": self.length,
+            "missing": self.missing,
+            "first_timestamp": None if self.first is None else self.first.isoformat(),
+            "last_timestamp": None if self.last is None else self.last.isoformat(),
+            "frequency": self.frequency,
+            "seasonal_period": self.seasonal_period,
+            "mean": plain_float(self.mean),
+            "standard_deviation": plain_float(self.standard_deviation),
+            "minimum": plain_float(self.minimum),
+            "maximum": plain_float(self.maximum),
+            "share_of_zeros": plain_float(self.share_of_zeros),
+        }
+
+
+@dataclass(frozen=True)
+class Seasonality:
+    """Strengths of trend and season, candidate periods and (on request) the components."""
+
+    method: str
+    seasonal_period: int
+    trend_strength: float
+    seasonal_strength: float | NotApplicable
+    candidates: tuple[CandidatePeriod, ...]
+    settings: dict[str, Any]
+    components: dict[str, Any] | None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The wire form."""
+        season: Any = self.seasonal_strength
+        season = season.to_dict() if isinstance(season, NotApplicable) else plain_float(season)
+        return {
+            "applicable": True,
+            "decomposition": self.method,
+            "settings": self.settings,
+            "strength_rule": "max(0, 1 - Var(R)/Var(C + R)), Wang, Smith & Hyndman (2006)",
+            "trend_strength": plain_float(self.trend_strength),
+            "seasonal_strength": season,
+            "seasonal_period_from_frequency": self.seasonal_period,
+            "candidate_periods": [c.to_dict() for c in self.candidates],
+            "components": self.components,
+        }
+
+
+@dataclass(frozen=True)
+class Diagnostics:
+    """Every section of the diagnostics response, each a result or a NotApplicable."""
+
+    summary: Summary
+    stationarity: Stationarity | NotApplicable
+    differencing: DifferencingOrders | NotApplicable
+    autocorrelation: Correlogram | NotApplicable
+    differenced_autocorrelation: Correlogram | NotApplicable
+    differenced_series: str
+    random_walk: RandomWalkVerdict | NotApplicable
+    seasonality: Seasonality | NotApplicable
+    outliers: Outliers | NotApplicable
+    notes: tuple[str, ...]
+
+    @property
+    def is_random_walk(self) -> bool:
+        """True only when the random-walk verdict applies and says so (for model selection)."""
+        return isinstance(self.random_walk, RandomWalkVerdict) and self.random_walk.is_random_walk
+
+    @property
+    def findings(self) -> tuple[str, ...]:
+        """Plain sentences a reporting system can show as they are."""
+        return findings(self)
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON-ready response body: plain numbers, strings, lists, dicts and None."""
+        return {
+            "summary": self.summary.to_dict(),
+            "stationarity": self.stationarity.to_dict(),
+            "differencing": self.differencing.to_dict(),
+            "autocorrelation": {
+                "series": self.autocorrelation.to_dict(),
+                "differenced": {
+                    "differenced_series": self.differenced_series,
+                    **self.differenced_autocorrelation.to_dict(),
+                },
+            },
+            "random_walk": self.random_walk.to_dict(),
+            "seasonality": self.seasonality.to_dict(),
+            "outliers": self.outliers.to_dict(),
+            "findings": list(self.findings),
+            "notes": list(self.notes),
+        }
+
+
+def diagnose(
+    y: pd.Series,
+    seasonal_period: int,
+    max_lag: int | None = None,
+    include_components: bool = False,
+) -> Diagnostics:
+    """All diagnostics of a regular series; missing values are interpolated for the tests."""
+    check_series(y)
+    check_positive_int(seasonal_period, "series.seasonal_period")
+    if max_lag is not None:
+        check_positive_int(max_lag, "max_lag")
+    if not isinstance(include_components, bool):
+        raise RequestError("include_components must be true or false", field="include_components")
+    filled = fill_gaps(y)
+    x = filled.values
+    notes = filled.note()
+    summary = summarise(y, seasonal_period)
+    if x.size == 0:
+        return _empty(summary, NotApplicable("the series has no observed values"), notes)
+    if not np.any(x != x[0]):
+        return _empty(summary, NotApplicable("the series is constant"), notes, x, seasonal_period)
+    decomposition = decompose(x, seasonal_period)
+    tests = stationarity(x, notes)
+    orders = orders_from(x, seasonal_period, decomposition, notes)
+    stationary_form = difference(x, orders.regular, orders.seasonal, seasonal_period)
+    acf = _correlogram(x, seasonal_period, max_lag, notes)
+    return Diagnostics(
+        summary=summary,
+        stationarity=tests,
+        differencing=orders,
+        autocorrelation=acf,
+        differenced_autocorrelation=_correlogram(stationary_form, seasonal_period, max_lag, ()),
+        differenced_series=label(orders.regular, orders.seasonal, seasonal_period),
+        random_walk=random_walk(x, seasonal_period, tests.adf_constant),
+        seasonality=_seasonality(x, decomposition, filled.index, include_components),
+        outliers=(
+            outliers(decomposition.remainder, x, filled.observed, filled.index)
+            if isinstance(decomposition, Decomposition)
+            else decomposition
+        ),
+        notes=notes,
+    )
+
+
+def summarise(y: pd.Series, seasonal_period: int) -> Summary:
+    """Length, missing count, span and moments of the observed values."""
+    values = y.to_numpy(dtype=float, na_value=np.nan)
+    observed = values[np.isfinite(values)]
+    index = pd.DatetimeIndex(y.index)
+    some = observed.size > 0
+    return Summary(
+        length=int(values.size),
+        missing=int(values.size - observed.size),
+        first=index[0] if index.size else None,
+        last=index[-1] if index.size else None,
+        frequency=str(index.freqstr),
+        seasonal_period=seasonal_period,
+        mean=float(observed.mean()) if some else None,
+        standard_deviation=float(observed.std(ddof=1)) if observed.size > 1 else None,
+        minimum=float(observed.min()) if some else None,
+        maximum=float(observed.max()) if some else None,
+        share_of_zeros=float(np.mean(observed == 0.0)) if some else None,
+    )
+
+
+def _correlogram(
+    x: np.ndarray, seasonal_period: int, max_lag: int | None, notes: tuple[str, ...]
+) -> Correlogram | NotApplicable:
+    wanted = default_max_lag(x.size, seasonal_period) if max_lag is None else max_lag
+    return correlogram(x, max(1, wanted), seasonal_period, notes)
+
+
+def _seasonality(
+    x: np.ndarray,
+    decomposition: Decomposition | NotApplicable,
+    index: pd.DatetimeIndex,
+    include_components: bool,
+) -> Seasonality | NotApplicable:
+    if isinstance(decomposition, NotApplicable):
+        return decomposition
+    season = seasonal_strength(decomposition)
+    detrended = x - decomposition.trend
+    lags = largest_lag(x.size)
+    acf = sample_acf(detrended, lags) if lags >= 1 else np.empty(0)
+    return Seasonality(
+        method=decomposition.method,
+        seasonal_period=decomposition.period,
+        trend_strength=trend_strength(decomposition),
+        seasonal_strength=(
+            NotApplicable(decomposition.seasonal_reason or "no seasonal component")
+            if season is None
+            else season
+        ),
+        candidates=tuple(candidate_periods(detrended, acf, white_noise_band(x.size))),
+        settings=decomposition.settings,
+        components=components_dict(decomposition, index) if include_components else None,
+    )
+
+
+def _empty(
+    summary: Summary,
+    reason: NotApplicable,
+    notes: tuple[str, ...],
+    x: np.ndarray | None = None,
+    seasonal_period: int = 1,
+) -> Diagnostics:
+    """The response for a series with nothing to test: every section says why."""
+    orders: DifferencingOrders | NotApplicable = reason
+    if x is not None:
+        orders = orders_from(x, seasonal_period, reason, notes)
+    return Diagnostics(
+        summary=summary,
+        stationarity=reason,
+        differencing=orders,
+        autocorrelation=reason,
+        differenced_autocorrelation=reason,
+        differenced_series="y",
+        random_walk=reason,
+        seasonality=reason,
+        outliers=reason,
+        notes=notes,
+    )

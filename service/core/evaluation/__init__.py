@@ -1,0 +1,1 @@
+"""How forecasts are scored: rolling origins, backtests, accuracy measures, calibration."""

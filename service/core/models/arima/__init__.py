@@ -1,0 +1,1 @@
+"""ARIMA: specification, order search, estimation and the ARMA likelihood."""

@@ -1,0 +1,1 @@
+"""Exponential smoothing in the ETS taxonomy: specification, search and fitted model."""

@@ -1,0 +1,273 @@
+"""Variance-stabilising transforms (none, log, Box-Cox) around any model specification.
+
+The model is fitted on the transformed scale. Interval bounds are back-transformed as
+quantiles (the transform is monotone). The point is back-transformed either as the
+median (plain inverse) or, by default, as the bias-adjusted mean of FPP3 §5.6:
+    y = inverse(w) · [1 + σ²_h (1 − λ) / (2 (λw + 1)²)]   (λ ≠ 0)
+    y = exp(w) · (1 + σ²_h / 2)                             (λ = 0)
+with σ²_h the h-step forecast variance on the transformed scale, read from the model's
+80 % interval as ((upper − lower) / (2 z₀.₉))².
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any, ClassVar, cast
+
+import numpy as np
+import pandas as pd
+from scipy import optimize, stats
+
+from service.core.errors import FitError, SpecificationError
+from service.core.models.base import (
+    Description,
+    Fitted,
+    FitWarning,
+    Forecast,
+    as_dict,
+    residuals_from,
+)
+from service.core.models.intervals import Interval, normal_quantile
+
+KINDS = ("none", "log", "boxcox")
+_VARIANCE_LEVEL = 0.8
+
+
+@dataclass(frozen=True)
+class Transform:
+    """A transform: kind, a fixed Box-Cox λ (None to estimate by MLE) and the point rule."""
+
+    kind: str = "none"
+    lam: float | None = None
+    bias_adjusted: bool = True
+
+    def __post_init__(self) -> None:
+        if self.kind not in KINDS:
+            raise SpecificationError(
+                f"transform must be one of {', '.join(KINDS)}; got {self.kind!r}",
+                field="transform",
+            )
+        if self.lam is not None and not math.isfinite(self.lam):
+            raise SpecificationError("lambda must be a finite number", field="transform.lambda")
+
+
+def transform_from_value(value: Any, field: str = "transform") -> Transform:
+    """Parse the request's ``transform``: a kind name, or {"kind", "lambda", "bias_adjusted"}."""
+    if value is None:
+        return Transform()
+    if isinstance(value, str):
+        _check_kind(value, field)
+        return Transform(value)
+    if not isinstance(value, Mapping):
+        raise SpecificationError("transform must be a name or an object", field=field)
+    unknown = set(value) - {"kind", "lambda", "bias_adjusted"}
+    if unknown:
+        raise SpecificationError(
+            f"unknown transform option {sorted(unknown)[0]!r}; allowed: kind, lambda, "
+            "bias_adjusted",
+            field=f"{field}.{sorted(unknown)[0]}",
+        )
+    kind = value.get("kind", "none")
+    _check_kind(kind, f"{field}.kind")
+    lam = value.get("lambda")
+    if lam is not None and (isinstance(lam, bool) or not isinstance(lam, (int, float))):
+        raise SpecificationError("lambda must be a number", field=f"{field}.lambda")
+    adjusted = value.get("bias_adjusted", True)
+    if not isinstance(adjusted, bool):
+        raise SpecificationError(
+            "bias_adjusted must be true or false", field=f"{field}.bias_adjusted"
+        )
+    return Transform(kind, None if lam is None else float(lam), adjusted)
+
+
+def _check_kind(kind: Any, field: str) -> None:
+    if kind not in KINDS:
+        raise SpecificationError(
+            f"transform must be one of {', '.join(KINDS)}; got {kind!r}", field=field
+        )
+
+
+def boxcox(values: np.ndarray, lam: float) -> np.ndarray:
+    """(y^λ − 1)/λ, or log y when λ = 0."""
+    return np.log(values) if lam == 0.0 else (np.power(values, lam) - 1.0) / lam
+
+
+def inverse_boxcox(values: np.ndarray, lam: float) -> np.ndarray:
+    """The inverse transform; beyond the range of the transform it returns 0 or +inf."""
+    w = np.asarray(values, dtype=float)
+    if lam == 0.0:
+        return np.exp(w)
+    base = lam * w + 1.0
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        out = np.power(np.maximum(base, 0.0), 1.0 / lam)
+    if lam < 0:
+        out = np.where(base <= 0.0, np.inf, out)
+    return out
+
+
+def boxcox_lambda(values: np.ndarray) -> float:
+    """λ by maximum likelihood for an i.i.d. normal model (scipy, method='mle': trap 5)."""
+    return float(stats.boxcox_normmax(values, method="mle"))
+
+
+def boxcox_profile_loglik(lam: float, values: np.ndarray, design: np.ndarray) -> float:
+    """Box & Cox (1964) profile log-likelihood of λ for a linear model with this design."""
+    z = boxcox(values, lam)
+    coef, *_ = np.linalg.lstsq(design, z, rcond=None)
+    rss = float(np.sum((z - design @ coef) ** 2))
+    n = values.size
+    return -0.5 * n * math.log(rss / n) + (lam - 1.0) * float(np.sum(np.log(values)))
+
+
+def boxcox_lambda_linear(
+    values: np.ndarray, design: np.ndarray, bounds: tuple[float, float] = (-3.0, 3.0)
+) -> float:
+    """λ maximising the profile likelihood of a linear model (factors, trends) in ``design``."""
+    found = optimize.minimize_scalar(
+        lambda lam: -boxcox_profile_loglik(lam, values, design),
+        bounds=bounds,
+        method="bounded",
+        options={"xatol": 1e-8},
+    )
+    return float(found.x)
+
+
+def resolve_lambda(transform: Transform, values: np.ndarray) -> float | None:
+    """The λ to use: None for no transform, 0 for log, given or estimated for Box-Cox."""
+    if transform.kind == "none":
+        return None
+    if not np.all(np.isfinite(values)) or np.any(values <= 0):
+        raise FitError(
+            f"the {transform.kind} transform needs strictly positive, complete data",
+            field="transform",
+        )
+    if transform.kind == "log":
+        return 0.0
+    if transform.lam is not None:
+        return transform.lam
+    return boxcox_lambda(values)
+
+
+@dataclass(frozen=True)
+class TransformedSpec:
+    """A base specification fitted on the transformed series."""
+
+    family: ClassVar[str] = "transformed"
+    summary: ClassVar[str] = "A model fitted on the log or Box-Cox scale."
+
+    base: Any
+    transform: Transform = field(default_factory=Transform)
+
+    def fit(self, y: pd.Series, seasonal_period: int = 1) -> Fitted:
+        """Fit the base on the transformed scale (or directly, for the 'none' transform)."""
+        return fit_transformed(self.base, y, seasonal_period, self.transform)
+
+    def json_form(self) -> dict[str, Any]:
+        """The base's JSON with the transform beside it, as a request would write them."""
+        t = self.transform
+        return {
+            **as_dict(self.base),
+            "transform": {"kind": t.kind, "lambda": t.lam, "bias_adjusted": t.bias_adjusted},
+        }
+
+
+def fit_transformed(spec: Any, y: pd.Series, seasonal_period: int, transform: Transform) -> Fitted:
+    """Fit ``spec`` on ``transform(y)``; forecasts come back on the original scale."""
+    values = y.to_numpy(dtype=float)
+    lam = resolve_lambda(transform, values)
+    if lam is None:
+        return cast(Fitted, spec.fit(y, seasonal_period))
+    z = pd.Series(boxcox(values, lam), index=y.index, name=y.name)
+    inner = spec.fit(z, seasonal_period)
+    fitted = TransformedFitted(
+        TransformedSpec(spec, transform), y, lam, inner, list(inner.warnings)
+    )
+    return cast(Fitted, fitted)
+
+
+@dataclass
+class TransformedFitted:
+    """A model fitted on the transformed scale, back-transformed on the way out."""
+
+    specification: TransformedSpec
+    y: pd.Series
+    lam: float
+    inner: Fitted
+    warnings: list[FitWarning] = field(default_factory=list)
+
+    def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast:
+        """Back-transformed quantiles; point = bias-adjusted mean or median (see module)."""
+        levels = tuple(coverage)
+        asked = levels if _VARIANCE_LEVEL in levels else (*levels, _VARIANCE_LEVEL)
+        inner = self.inner.forecast(horizon, asked)
+        by_level = {i.coverage: i for i in inner.intervals}
+        w = inner.point
+        point = inverse_boxcox(w, self.lam)
+        if self.specification.transform.bias_adjusted:
+            band = by_level[_VARIANCE_LEVEL]
+            var = ((band.upper - band.lower) / (2.0 * normal_quantile(_VARIANCE_LEVEL))) ** 2
+            point = point * bias_factor(w, var, self.lam)
+        intervals = tuple(
+            Interval(
+                c,
+                inverse_boxcox(by_level[c].lower, self.lam),
+                inverse_boxcox(by_level[c].upper, self.lam),
+            )
+            for c in (float(level) for level in levels)
+        )
+        return Forecast(inner.index, point, intervals)
+
+    def fitted_values(self) -> pd.Series:
+        """In-sample fits back-transformed as medians."""
+        fitted = inverse_boxcox(self.inner.fitted_values().to_numpy(dtype=float), self.lam)
+        return pd.Series(fitted, index=self.y.index, name="fitted")
+
+    def residuals(self) -> pd.Series:
+        """Observed minus back-transformed fit, on the original scale."""
+        return residuals_from(self.y, self.fitted_values())
+
+    def refit_specification(self) -> TransformedSpec | None:
+        """The inner model's cheaper refit for a longer history, on the same scale; None when
+        the inner model offers none."""
+        narrowed = getattr(self.inner, "refit_specification", None)
+        inner = narrowed() if callable(narrowed) else None
+        return None if inner is None else TransformedSpec(inner, self.specification.transform)
+
+    def refilter(self, y: pd.Series) -> TransformedFitted:
+        """The same λ and inner parameters on another history."""
+        values = y.to_numpy(dtype=float)
+        if np.any(values <= 0):
+            raise FitError("the transform needs strictly positive data", field="transform")
+        z = pd.Series(boxcox(values, self.lam), index=y.index, name=y.name)
+        return TransformedFitted(self.specification, y, self.lam, self.inner.refilter(z), [])
+
+    def describe(self) -> Description:
+        """The inner description with the transform in the label and λ among the parameters."""
+        d = self.inner.describe()
+        name = "log" if self.specification.transform.kind == "log" else f"Box-Cox({self.lam:.4g})"
+        return Description(
+            family=d.family,
+            label=f"{d.label} on {name} scale",
+            specification={**d.specification, "transform": as_transform_dict(self)},
+            parameters={**d.parameters, "boxcox_lambda": self.lam},
+            information_criteria=d.information_criteria,
+            residual_variance=d.residual_variance,
+            residual_diagnostics={**d.residual_diagnostics, "scale": "transformed"},
+            observations=d.observations,
+            fit_seconds=d.fit_seconds,
+        )
+
+
+def as_transform_dict(fitted: TransformedFitted) -> dict[str, Any]:
+    """The transform as JSON, with the λ actually used."""
+    t = fitted.specification.transform
+    return {"kind": t.kind, "lambda": fitted.lam, "bias_adjusted": t.bias_adjusted}
+
+
+def bias_factor(w: np.ndarray, variance: np.ndarray, lam: float) -> np.ndarray:
+    """FPP3 §5.6 multiplier turning the back-transformed median into the mean."""
+    if lam == 0.0:
+        return 1.0 + variance / 2.0
+    return 1.0 + variance * (1.0 - lam) / (2.0 * (lam * w + 1.0) ** 2)

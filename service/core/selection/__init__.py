@@ -1,0 +1,2 @@
+"""Automatic selection: profile and candidates, backtest ranking, the choice, combination
+weights and the plausibility screen."""

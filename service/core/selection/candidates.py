@@ -1,0 +1,318 @@
+"""Which candidate models the automatic selection tries, from a short profile of the series.
+
+Rules (the table DEVELOPERS.md carries; n = observations, m = seasonal period):
+
+    profile           test
+    seasonal          m > 1, n >= 2m + 2, and |r_m| of the first differences exceeds
+                      1.645·√((1 + 2·Σ_{k<m} r_k²)/n), the 90 % seasonality test of the M4
+                      benchmarks (Makridakis et al. 2020; there on the series itself, here on
+                      its differences so a random walk is not called seasonal), or, given
+                      the diagnostics, STL seasonal strength >= 0.64 (the threshold of Wang,
+                      Smith & Hyndman 2006, from memory, also used for D in the ARIMA search)
+    long period       seasonal and m >= 24: ETS and seasonal ARIMA are slow or unstable there
+                      (seasonal ARIMA on 2000 hourly points, m = 24: 33 s, past the time
+                      budget; through STL 4.8 s)
+    positive          every observed value > 0 (admits multiplicative ETS, left to its search)
+    intermittent      no negative values and a share of zeros >= 0.3
+    short             n < 30, or fewer than 3 full seasons when seasonal
+    random walk       the diagnostics' verdict; without them: ADF (constant) does not reject a
+                      unit root at 5 % and the lag-1 autocorrelation of the differences lies in
+                      ±1.96/√n (nothing left to model after differencing)
+
+    profile                    candidates (always the benchmarks: naive, and seasonal naive
+                                 when seasonal)
+    intermittent               croston (classic), croston (sba), mean
+    not intermittent           ets (AICc over the taxonomy), drift (benchmark only)
+      and positive             + ets with additive errors on the log scale (AICc over trend
+                                 and season): over six evaluation sets (two panels, three
+                                 holdout cuts) the mean ratio to the best benchmark 0.973 ->
+                                 0.947, worst set 1.008 -> 0.993 (tests/benchmarks/accuracy.py;
+                                 the full error/trend/season search on logs: 0.950 / 0.985)
+      and fitted with m = 1    + the equal-weight combination of SES, Holt and damped Holt
+                                 (additive errors), the M4 competition's benchmark; no theta
+                                 (without a season it is SES with drift, inside that span:
+                                 dropping it took mean MASE from 0.998 to 0.975)
+      and fitted with m > 1    + theta (classical multiplicative seasonal adjustment)
+      and not short            + arima (not for a long season, where STL + ETS and the
+                                 non-seasonal models stand in; non-seasonal ARIMA on the raw
+                                 series was most of the cost there, 4.7 of 10.6 s on 3000
+                                 half-hourly points, and ranked last on the weekly co2;
+                                 on the log scale when positive and fitted with m > 1:
+                                 second panel of the accuracy benchmark mean MASE 1.659 ->
+                                 1.638, the issue panel unchanged, earlier cuts within 0.002):
+                                 by default search="quick" (stepwise walk on CSS AICc, two
+                                 exact fits); when thorough, the full stepwise AICc search.
+                                 Measured (tests/benchmarks/accuracy.py, selection_speed.py):
+                                 mean / median MASE 0.975 / 0.740 -> 0.971 / 0.746, MSIS 6.62
+                                 -> 6.36; auto warm on 200 monthly points 0.78 -> 0.96 s once
+                                 the quick fit stopped re-fitting (1.46 s before)
+      and long period          + stl with ets base (and, when thorough, stl with arima
+                                 base), instead of the seasonal variants of ets and arima;
+                                 ets then runs with m = 1
+
+A family that is not (yet) in the registry is skipped and listed in ``skipped``.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from service.core.errors import SpecificationError
+from service.core.models.base import as_dict
+from service.core.models.registry import FAMILIES, specification_from_dict
+from service.core.models.transforms import Transform, TransformedSpec
+
+INTERMITTENT_ZERO_SHARE = 0.3
+SEASONAL_STRENGTH = 0.64
+LONG_PERIOD = 24
+SHORT_POINTS = 30
+SHORT_SEASONS = 3
+TRANSFORM_KEY = "transform"
+"""A rule's dict may name a transform: the specification is then fitted on that scale."""
+
+
+@dataclass(frozen=True)
+class SeriesProfile:
+    """What the candidate rules look at; built from the diagnostics or by ``profile_series``."""
+
+    observations: int
+    seasonal_period: int
+    seasonal: bool
+    positive: bool
+    zero_share: float
+    random_walk: bool
+    random_walk_reason: str = ""
+
+    @property
+    def intermittent(self) -> bool:
+        """Many zeros and no negative values: demand that comes in bursts."""
+        return self.zero_share >= INTERMITTENT_ZERO_SHARE
+
+    @property
+    def long_period(self) -> bool:
+        """A season too long for seasonal ETS/ARIMA: handled by STL instead."""
+        return self.seasonal and self.seasonal_period >= LONG_PERIOD
+
+    @property
+    def short(self) -> bool:
+        """Too short for the ARIMA search to be worth its variance."""
+        if self.seasonal:
+            return self.observations < SHORT_SEASONS * self.seasonal_period
+        return self.observations < SHORT_POINTS
+
+    @property
+    def model_period(self) -> int:
+        """The period the candidates are fitted with: m when seasonal and short enough, else 1."""
+        return self.seasonal_period if self.seasonal and not self.long_period else 1
+
+    @property
+    def benchmark_period(self) -> int:
+        """The period of the naive benchmark and of the MASE scale: m when seasonal, else 1."""
+        return self.seasonal_period if self.seasonal else 1
+
+
+def seasonality_test(values: np.ndarray, period: int) -> bool:
+    """The M4 benchmarks' 90 % test of the autocorrelation at the seasonal lag."""
+    y = values[np.isfinite(values)]
+    if period <= 1 or y.size < 2 * period + 2:
+        return False
+    # On first differences, so that a trend or a wandering level is not mistaken for a season.
+    r = np.diff(y)
+    r = r - r.mean()
+    n = r.size
+    denom = float(np.sum(r**2))
+    if denom <= 0:
+        return False
+    size = 1 << int(2 * n - 1).bit_length()
+    spectrum = np.fft.rfft(r, size)
+    acf = np.fft.irfft(spectrum * np.conj(spectrum), size)[1 : period + 1] / denom
+    limit = 1.645 * math.sqrt((1.0 + 2.0 * float(np.sum(acf[:-1] ** 2))) / n)
+    return bool(abs(acf[-1]) > limit)
+
+
+def random_walk_fallback(values: np.ndarray) -> tuple[bool, str]:
+    """Unit root not rejected and differences uncorrelated; used until diagnostics are given."""
+    from statsmodels.tsa.stattools import adfuller
+
+    y = values[np.isfinite(values)]
+    if y.size < 10 or np.ptp(y) == 0:
+        return False, "too short or constant to test"
+    d = np.diff(y)
+    r1 = float(np.corrcoef(d[1:], d[:-1])[0, 1]) if np.ptp(d) > 0 else 0.0
+    band = 1.96 / math.sqrt(y.size)
+    try:
+        with warnings.catch_warnings(record=True) as seen:
+            warnings.simplefilter("always")
+            result = adfuller(y, regression="c", autolag="AIC", result_object=True)
+        p_value = float(result.pvalue)
+    except (ValueError, np.linalg.LinAlgError):
+        return False, "unit-root test failed"
+    if seen:
+        # A singular or degenerate test regression (e.g. an exact line) decides nothing.
+        return False, f"unit-root test inconclusive: {seen[0].message}"
+    verdict = p_value > 0.05 and abs(r1) <= band
+    rejected = "does not reject" if p_value > 0.05 else "rejects"
+    reason = (
+        f"ADF p = {p_value:.3f} {rejected} a unit root at 5 %; lag-1 autocorrelation of the "
+        f"differences {r1:.3f} (band ±{band:.3f})"
+    )
+    return verdict, reason
+
+
+def profile_series(
+    y: pd.Series, seasonal_period: int, diagnostics: Any | None = None
+) -> SeriesProfile:
+    """The candidate rules' view of a series, taking the random-walk and seasonality verdicts
+    from ``diagnostics`` (an object or mapping of core.diagnostics) when given."""
+    values = y.to_numpy(dtype=float)
+    finite = values[np.isfinite(values)]
+    seasonal = seasonality_test(values, seasonal_period)
+    strength = _lookup(diagnostics, ("seasonality", "seasonal_strength"))
+    enough = seasonal_period > 1 and finite.size >= 2 * seasonal_period + 2
+    if isinstance(strength, (int, float)) and not isinstance(strength, bool):
+        # A smooth long season barely shows in the differences; STL strength sees it.
+        seasonal = seasonal or (enough and float(strength) >= SEASONAL_STRENGTH)
+    walk = _lookup(diagnostics, ("random_walk", "is_random_walk"))
+    reason = _lookup(diagnostics, ("random_walk", "reason"))
+    if isinstance(walk, bool):
+        random_walk, why = walk, str(reason or "from the diagnostics")
+    else:
+        random_walk, why = random_walk_fallback(values)
+    has_negative = bool(np.any(finite < 0))
+    zero_share = 0.0 if has_negative or not finite.size else float(np.mean(finite == 0))
+    return SeriesProfile(
+        observations=int(finite.size),
+        seasonal_period=seasonal_period,
+        seasonal=seasonal,
+        positive=bool(finite.size and np.all(finite > 0)),
+        zero_share=zero_share,
+        random_walk=random_walk,
+        random_walk_reason=why,
+    )
+
+
+def _lookup(source: Any, path: tuple[str, ...]) -> Any:
+    """Follow attribute or key names through nested diagnostics; None where absent."""
+    current = source
+    for name in path:
+        if current is None:
+            return None
+        if isinstance(current, Mapping):
+            current = current.get(name)
+        else:
+            current = getattr(current, name, None)
+    return current
+
+
+@dataclass(frozen=True)
+class CandidateSet:
+    """The specifications to try, with the reason for each and the families left out."""
+
+    specifications: tuple[Any, ...]
+    reasons: tuple[str, ...]
+    skipped: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON form for logs and the response."""
+        return {
+            "candidates": [
+                {"specification": as_dict(s), "reason": r}
+                for s, r in zip(self.specifications, self.reasons, strict=True)
+            ],
+            "skipped": list(self.skipped),
+        }
+
+
+_TREND_COMBINATION: dict[str, Any] = {
+    "family": "combination",
+    "members": [
+        {"family": "ets", "error": "add", "trend": "none", "damped": False},
+        {"family": "ets", "error": "add", "trend": "add", "damped": False},
+        {"family": "ets", "error": "add", "trend": "add", "damped": True},
+    ],
+}
+
+
+def candidate_rules(
+    profile: SeriesProfile, thorough: bool = False
+) -> list[tuple[dict[str, Any], str]]:
+    """The specification dicts the rules pick for this profile, with a reason each."""
+    out: list[tuple[dict[str, Any], str]] = [({"family": "naive"}, "benchmark")]
+    if profile.seasonal:
+        out.append(({"family": "seasonal_naive"}, "benchmark for a seasonal series"))
+    if profile.intermittent:
+        share = f"{profile.zero_share:.0%} zeros"
+        out.append(({"family": "croston", "variant": "classic"}, f"intermittent ({share})"))
+        out.append(({"family": "croston", "variant": "sba"}, f"intermittent ({share})"))
+        out.append(({"family": "mean"}, f"intermittent ({share})"))
+        return out
+    out.append(({"family": "ets"}, "exponential smoothing, AICc over the taxonomy"))
+    if profile.positive:
+        # Additive errors on the log scale: growth and seasons proportional to the level,
+        # with bounds that stay positive.
+        logged = {"family": "ets", "error": "add", TRANSFORM_KEY: "log"}
+        out.append((logged, "exponential smoothing on the log scale (positive series)"))
+    if profile.model_period == 1:
+        # Seasonal members cost ~4 s of exact fits on 200 monthly points: non-seasonal only.
+        # Theta is left out here: without a season it is SES with half the OLS slope, inside
+        # the span of SES and Holt already averaged (mean MASE 0.998 -> 0.975 without it).
+        out.append((_TREND_COMBINATION, "SES, Holt and damped Holt averaged (the M4 benchmark)"))
+    else:
+        out.append(({"family": "theta"}, "theta method on classically adjusted data"))
+    out.append(({"family": "drift"}, "benchmark with trend"))
+    if not profile.short and not profile.long_period:
+        note = ""
+        arima: dict[str, Any] = {"family": "arima"}
+        if thorough:
+            note = ", stepwise AICc search" + note
+        else:
+            arima["search"] = "quick"
+            note = ", stepwise walk on CSS AICc (quick search)" + note
+        if profile.positive and profile.model_period > 1:
+            # A season that grows with the level is additive on the log scale.
+            arima[TRANSFORM_KEY] = "log"
+            note = " on the log scale (positive and seasonal)" + note
+        out.append((arima, "ARIMA" + note))
+    if profile.long_period:
+        out.append(({"family": "stl", "base": {"family": "ets"}}, "long season: STL + ETS"))
+        if thorough:
+            out.append(({"family": "stl", "base": {"family": "arima"}}, "long season: STL + ARIMA"))
+    return out
+
+
+def candidates_for(profile: SeriesProfile, thorough: bool = False) -> CandidateSet:
+    """Specifications for the rules' picks, skipping families the registry does not know."""
+    specs: list[Any] = []
+    reasons: list[str] = []
+    skipped: list[str] = []
+    for data, reason in candidate_rules(profile, thorough):
+        if not _families_known(data, FAMILIES):
+            skipped.append(f"{data['family']}: not available")
+            continue
+        plain = {k: v for k, v in data.items() if k != TRANSFORM_KEY}
+        try:
+            spec = specification_from_dict(plain, field="candidates")
+            if TRANSFORM_KEY in data:
+                spec = TransformedSpec(spec, Transform(data[TRANSFORM_KEY]))
+            specs.append(spec)
+        except SpecificationError as exc:
+            skipped.append(f"{data['family']}: {exc.message}")
+            continue
+        reasons.append(reason)
+    return CandidateSet(tuple(specs), tuple(reasons), tuple(skipped))
+
+
+def _families_known(data: Mapping[str, Any], known: Mapping[str, Any]) -> bool:
+    if data.get("family") not in known:
+        return False
+    base = data.get("base")
+    members = data.get("members") or []
+    nested = [base] if isinstance(base, Mapping) else []
+    return all(_families_known(item, known) for item in [*nested, *members])

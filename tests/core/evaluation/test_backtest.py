@@ -1,0 +1,117 @@
+"""Rolling-origin backtests: origins, no peeking, hand-computed scores, failures as data."""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass
+from typing import ClassVar
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from service.core.errors import RequestError
+from service.core.evaluation.backtest import backtest
+from service.core.evaluation.origins import plan_origins
+from service.core.models.drift import DriftSpec
+from service.core.models.naive import NaiveSpec
+from service.core.models.seasonal_naive import SeasonalNaiveSpec
+
+HAND = [3.0, 5.0, 4.0, 6.0, 8.0, 7.0, 6.0, 7.0, 8.0, 7.0, 9.0, 8.0]
+
+
+def monthly(values: list[float] | np.ndarray) -> pd.Series:
+    index = pd.date_range("2020-01-01", periods=len(values), freq="MS")
+    return pd.Series(np.asarray(values, dtype=float), index=index)
+
+
+@dataclass(frozen=True)
+class BrokenSpec:
+    """A candidate whose library call fails, as a statsmodels fit sometimes does."""
+
+    family: ClassVar[str] = "broken"
+    summary: ClassVar[str] = "always fails"
+
+    def fit(self, y: pd.Series, seasonal_period: int = 1) -> NaiveSpec:
+        raise np.linalg.LinAlgError("singular matrix")
+
+
+def test_origins_end_at_the_last_point() -> None:
+    plan = plan_origins(40, horizon=6, origins=3, step=4)
+    assert plan.origins == (26, 30, 34)
+
+
+def test_too_few_points_names_the_fields() -> None:
+    with pytest.raises(RequestError) as info:
+        plan_origins(20, horizon=6, origins=3, step=4)
+    assert {p.field for p in info.value.problems} == {"origins", "horizon", "step"}
+
+
+def test_naive_scores_by_hand() -> None:
+    # history HAND[:10]: last value 7, lag-1 MAE 12/9; test [9, 8] -> MAE 1.5, MASE 1.125.
+    report = backtest(monthly(HAND), [NaiveSpec()], horizon=2, origins=1, coverage=(0.8,))
+    model = report.models[0]
+    steps = model.steps()
+    assert [s.mae for s in steps] == pytest.approx([2.0, 1.0])
+    assert model.score("mae") == pytest.approx(1.5, abs=1e-12)
+    assert model.score("mase") == pytest.approx(1.5 / (12 / 9), abs=1e-12)
+    assert model.score("rmse") == pytest.approx(np.sqrt(2.5), abs=1e-12)
+    assert model.score("smape") == pytest.approx(np.mean([200 * 2 / 16, 200 * 1 / 15]))
+
+
+def test_parameters_come_from_before_the_first_origin() -> None:
+    y = monthly(np.concatenate([np.arange(20.0), 20.0 + 5.0 * np.arange(1, 11)]))
+    report = backtest(y, [DriftSpec()], horizon=2, origins=3, step=2)
+    first = report.models[0].forecasts[0]
+    last = report.models[0].forecasts[-1]
+    slope_before = float(np.mean(np.diff(y.to_numpy()[:24])))
+    # The last origin re-filters on a longer history but keeps the early slope.
+    history_end = y.to_numpy()[27]
+    assert last.point == pytest.approx(history_end + slope_before * np.array([1.0, 2.0]))
+    assert first.origin == y.index[24]
+
+
+def test_failures_are_data_and_ranking_skips_them() -> None:
+    rng = np.random.default_rng(3)
+    y = monthly(50 + rng.normal(size=48).cumsum())
+    specs = [BrokenSpec(), NaiveSpec(), SeasonalNaiveSpec(), DriftSpec()]
+    report = backtest(y, specs, 12, horizon=6, origins=3, step=3)
+    broken = report.models[0]
+    assert not broken.ok and "LinAlgError" in (broken.failure or "")
+    scores = [r.score for r in report.ranking]
+    assert scores == sorted(scores)
+    assert len(report.ranking) == 3
+    text = json.dumps(report.to_dict(), allow_nan=False)
+    assert '"msis"' in text and '"coverage"' in text
+
+
+def test_per_step_coverage_and_msis_are_reported_per_level() -> None:
+    rng = np.random.default_rng(5)
+    y = monthly(10 + rng.normal(size=60))
+    report = backtest(y, [NaiveSpec()], horizon=4, origins=5, step=2, coverage=(0.95, 0.8))
+    steps = report.models[0].steps()
+    assert len(steps) == 4
+    assert set(steps[0].coverage) == {0.8, 0.95}
+    assert all(s.msis[0.95] >= 0 and 0 <= s.coverage[0.8] <= 1 for s in steps)
+    assert report.coverage == (0.8, 0.95)
+
+
+def test_map_fn_receives_every_candidate() -> None:
+    seen: list[str] = []
+
+    def spying_map(fn, tasks):  # type: ignore[no-untyped-def]
+        seen.extend(t.specification.family for t in tasks)
+        return [fn(t) for t in tasks]
+
+    y = monthly(np.arange(30.0))
+    backtest(y, [NaiveSpec(), DriftSpec()], horizon=3, origins=2, map_fn=spying_map)
+    assert seen == ["naive", "drift"]
+
+
+def test_unknown_metric_and_empty_specifications() -> None:
+    y = monthly(np.arange(30.0))
+    with pytest.raises(RequestError):
+        backtest(y, [NaiveSpec()], horizon=3, metric="mape")
+    with pytest.raises(RequestError) as info:
+        backtest(y, [], horizon=3)
+    assert info.value.problems[0].field == "models"

