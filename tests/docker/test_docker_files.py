@@ -405,9 +405,10 @@ def test_prometheus_sends_alerts_to_the_compose_alertmanager(compose: dict[str, 
     receivers = {r["name"] for r in routing["receivers"]}
     assert routing["route"]["receiver"] in receivers
     assert all(r["receiver"] in receivers for r in routing["route"].get("routes", []))
-    assert "prometheus" in compose["services"] and host in compose["services"]["prometheus"][
-        "depends_on"
-    ]
+    assert (
+        "prometheus" in compose["services"]
+        and host in compose["services"]["prometheus"]["depends_on"]
+    )
 
 
 def test_the_image_installs_the_committed_constraints(steps: list[Instruction]) -> None:
