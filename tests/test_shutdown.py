@@ -85,11 +85,12 @@ def test_sigterm_lets_the_in_flight_forecast_finish_and_exits_zero(tmp_path: Pat
     assert [i["coverage"] for i in body["intervals"]] == [0.8, 0.95]
     assert exit_code == 0, server.log_text()
     assert drained < 30, "the drain took the whole grace period"
-    assert "Traceback" not in server.log_text()
+    assert "Traceback" not in server.log_text(), server.log_text()
 
 
 def test_a_request_longer_than_the_grace_period_does_not_hold_the_exit(tmp_path: Path) -> None:
-    # A 1 s grace period against ~5 s of work: the process leaves without waiting for it.
+    # A 1 s grace period against ~5 s of work: the process leaves without waiting for it,
+    # and the request it stops gets a shutting_down problem, not the server's plain text.
     outcome: list[object] = []
     with running(tmp_path, cache="off", shutdown_grace_seconds="1") as server:
 
@@ -98,7 +99,7 @@ def test_a_request_longer_than_the_grace_period_does_not_hold_the_exit(tmp_path:
                 outcome.append(
                     httpx.post(
                         server.url + "/v1/forecasts", json=slow_body(("add", "mul")), timeout=60
-                    ).status_code
+                    )
                 )
             except httpx.TransportError as exc:
                 outcome.append(exc)
@@ -114,3 +115,10 @@ def test_a_request_longer_than_the_grace_period_does_not_hold_the_exit(tmp_path:
 
     assert waited < 4, f"exit took {waited:.1f} s with a 1 s grace period"
     assert outcome, "the client thread never returned"
+    [response] = outcome
+    assert isinstance(response, httpx.Response), f"{response!r}\n{server.log_text()}"
+    assert response.status_code == 503, response.text
+    assert response.headers["content-type"] == "application/problem+json"
+    assert response.json()["code"] == "shutting_down"
+    assert response.headers["retry-after"] == "1"
+    assert "Traceback" not in server.log_text(), server.log_text()

@@ -15,7 +15,9 @@ from service import __version__
 from service.api.auth import install_api_keys
 from service.api.hits import ResponseHitMiddleware
 from service.api.middleware import (
+    AdmissionMiddleware,
     BodyLimitMiddleware,
+    CancelledAnswerMiddleware,
     HeaderLimitMiddleware,
     RequestIdMiddleware,
     RootPathMiddleware,
@@ -141,7 +143,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.add_middleware(ResponseHitMiddleware)
     app.state.key_ring = install_api_keys(app, settings)  # request ids reach its 401 problems
     app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
+    app.add_middleware(AdmissionMiddleware)  # outside the body limit: refuses before reading
     app.add_middleware(HeaderLimitMiddleware, max_bytes=settings.max_header_bytes)
+    app.add_middleware(CancelledAnswerMiddleware)
     app.add_middleware(ObserveMiddleware, telemetry=telemetry, logger=request_logger())
     app.add_middleware(RequestIdMiddleware)
     if settings.root_path.rstrip("/"):

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import asyncio
+import contextlib
 import json
 import re
 import uuid
@@ -13,11 +15,15 @@ from starlette.types import ASGIApp, Message, Receive, Scope, Send
 from service.api.problems import instance
 
 _SAFE_ID = re.compile(r"^[A-Za-z0-9._:\-]{1,128}$")
-_TITLES = {413: "Content Too Large", 431: "Request Header Fields Too Large"}
+_TITLES = {
+    413: "Content Too Large",
+    431: "Request Header Fields Too Large",
+    503: "Service Unavailable",
+}
 
 
-class RequestIdMiddleware:
-    """Accept a well-formed X-Request-ID or make one; echo it on the response."""
+class HttpMiddleware:
+    """Pure ASGI middleware that acts on HTTP requests; other scopes pass straight through."""
 
     def __init__(self, app: ASGIApp) -> None:
         self.app = app
@@ -26,6 +32,17 @@ class RequestIdMiddleware:
         if scope["type"] != "http":
             await self.app(scope, receive, send)
             return
+        await self.handle(scope, receive, send)
+
+    async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
+        """Handle one HTTP request."""
+        await self.app(scope, receive, send)
+
+
+class RequestIdMiddleware(HttpMiddleware):
+    """Accept a well-formed X-Request-ID or make one; echo it on the response."""
+
+    async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
         given = _header(scope, b"x-request-id")
         rid = given if given and _SAFE_ID.match(given) else uuid.uuid4().hex
         scope.setdefault("state", {})["request_id"] = rid
@@ -60,17 +77,14 @@ class RootPathMiddleware:
         await self.app(scope, receive, send)
 
 
-class BodyLimitMiddleware:
+class BodyLimitMiddleware(HttpMiddleware):
     """Refuse bodies over the limit with a 413 problem, by header and by counting bytes read."""
 
     def __init__(self, app: ASGIApp, max_bytes: int) -> None:
-        self.app = app
+        super().__init__(app)
         self.max_bytes = max_bytes
 
-    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] != "http":
-            await self.app(scope, receive, send)
-            return
+    async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
         declared = _header(scope, b"content-length")
         if declared is not None and declared.isdigit() and int(declared) > self.max_bytes:
             await _too_large(scope, send, self.max_bytes)
@@ -92,7 +106,119 @@ class BodyLimitMiddleware:
             if not message.get("more_body", False):
                 break
         whole: Message = {"type": "http.request", "body": b"".join(chunks), "more_body": False}
-        await self.app(scope, replay(whole, receive), send)
+        await _until_disconnect(self.app, scope, whole, receive, send)
+
+
+async def _until_disconnect(
+    app: ASGIApp, scope: Scope, whole: Message, receive: Receive, send: Send
+) -> None:
+    """Run the app on the body read; if the client disconnects first, cancel it.
+
+    Nobody will read that answer: a job still queued for a worker leaves the queue, and one
+    already running has its worker replaced rather than finishing for no one.
+    """
+    gone = asyncio.Event()
+    given = False
+    listening = True  # false once nobody waits for this app's answer any more
+
+    async def app_receive() -> Message:
+        nonlocal given
+        if not given:
+            given = True
+            return whole
+        await gone.wait()
+        return {"type": "http.disconnect"}
+
+    async def watch() -> None:
+        while (await receive())["type"] != "http.disconnect":
+            pass
+        gone.set()
+
+    async def app_send(message: Message) -> None:
+        if listening:
+            await send(message)
+
+    task = asyncio.ensure_future(app(scope, app_receive, app_send))
+    watcher = asyncio.ensure_future(watch())
+    try:
+        await asyncio.wait({task, watcher}, return_when=asyncio.FIRST_COMPLETED)
+        if not task.done():
+            scope.setdefault("state", {})["client_gone"] = True
+            listening = False
+            task.cancel()
+            with contextlib.suppress(asyncio.CancelledError):
+                await task
+            return
+        task.result()
+    finally:
+        watcher.cancel()
+        if not task.done():
+            # This coroutine itself was cancelled (the server's grace period is over): the
+            # app may still be unwinding (a worker killed at the same moment); whatever it
+            # sends or raises from now on goes nowhere.
+            listening = False
+            task.cancel()
+            task.add_done_callback(_retrieve)
+
+
+def _retrieve(task: asyncio.Future[None]) -> None:
+    if not task.cancelled():
+        task.exception()
+
+
+class CancelledAnswerMiddleware(HttpMiddleware):
+    """Answer a request the server cancels (its shutdown grace period is over) with a 503
+    ``shutting_down`` problem instead of the server's plain-text 500."""
+
+    async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
+        started = False
+
+        async def watched_send(message: Message) -> None:
+            nonlocal started
+            started = started or message["type"] == "http.response.start"
+            await send(message)
+
+        try:
+            await self.app(scope, receive, watched_send)
+        except asyncio.CancelledError:
+            if started or scope.get("state", {}).get("client_gone"):
+                raise
+            # The task ends here either way; it ends with an answer the caller can act on.
+            await refuse(
+                scope,
+                send,
+                503,
+                "shutting_down",
+                "the server is shutting down and stopped this request at the end of its "
+                "grace period; retry on another instance",
+                {"field": "body", "message": "not answered; retry"},
+                headers=[(b"retry-after", b"1")],
+            )
+
+
+class AdmissionMiddleware(HttpMiddleware):
+    """A 503 before the body is read, parsed or hashed when the pool cannot take more work.
+
+    The check is one comparison (jobs admitted against workers plus queue); the refused
+    caller is told to retry after the queue's measured drain time.
+    """
+
+    async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
+        if scope.get("method") == "POST":
+            pool = getattr(scope["app"].state, "pool", None)
+            if pool is not None and pool.full():
+                retry = pool.retry_after()
+                await refuse(
+                    scope,
+                    send,
+                    503,
+                    "overloaded",
+                    "all workers are busy and the queue is full",
+                    {"field": "body", "message": f"not read; retry after {retry} s"},
+                    headers=[(b"retry-after", str(retry).encode())],
+                )
+                return
+        await self.app(scope, receive, send)
 
 
 def replay(first: Message, receive: Receive) -> Receive:
@@ -121,7 +247,13 @@ async def _too_large(scope: Scope, send: Send, limit: int) -> None:
 
 
 async def refuse(
-    scope: Scope, send: Send, status: int, code: str, detail: str, error: dict[str, str]
+    scope: Scope,
+    send: Send,
+    status: int,
+    code: str,
+    detail: str,
+    error: dict[str, str],
+    headers: list[tuple[bytes, bytes]] | None = None,
 ) -> None:
     """Answer a problem+json straight from ASGI and close the connection (body left unread)."""
     rid = scope.get("state", {}).get("request_id")
@@ -141,13 +273,14 @@ async def refuse(
         (b"content-type", b"application/problem+json"),
         (b"content-length", str(len(payload)).encode()),
         (b"connection", b"close"),
+        *(headers or []),
     ]
     # No x-request-id header here: RequestIdMiddleware, outside this one, adds it.
     await send({"type": "http.response.start", "status": status, "headers": headers})
     await send({"type": "http.response.body", "body": payload})
 
 
-class HeaderLimitMiddleware:
+class HeaderLimitMiddleware(HttpMiddleware):
     """Refuse a request line plus headers over the limit with a 431 problem.
 
     The HTTP server has already read them; the cap keeps a request with megabytes of headers
@@ -155,23 +288,22 @@ class HeaderLimitMiddleware:
     """
 
     def __init__(self, app: ASGIApp, max_bytes: int) -> None:
-        self.app = app
+        super().__init__(app)
         self.max_bytes = max_bytes
 
-    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] == "http":
-            size = len(scope.get("raw_path") or b"") + len(scope.get("query_string") or b"")
-            size += sum(len(k) + len(v) + 4 for k, v in scope.get("headers", []))
-            if size > self.max_bytes:
-                await refuse(
-                    scope,
-                    send,
-                    431,
-                    "headers_too_large",
-                    f"the request line and headers are larger than {self.max_bytes} bytes",
-                    {"field": "headers", "message": f"at most {self.max_bytes} bytes"},
-                )
-                return
+    async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
+        size = len(scope.get("raw_path") or b"") + len(scope.get("query_string") or b"")
+        size += sum(len(k) + len(v) + 4 for k, v in scope.get("headers", []))
+        if size > self.max_bytes:
+            await refuse(
+                scope,
+                send,
+                431,
+                "headers_too_large",
+                f"the request line and headers are larger than {self.max_bytes} bytes",
+                {"field": "headers", "message": f"at most {self.max_bytes} bytes"},
+            )
+            return
         await self.app(scope, receive, send)
 
 

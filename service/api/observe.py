@@ -16,6 +16,8 @@ from starlette.types import ASGIApp, Message, Receive, Scope, Send
 from service.runtime.logs import RequestRecord, log_request
 from service.runtime.telemetry import Telemetry
 
+# The client disconnected before the answer (as web servers log it): counted, never a 5xx.
+CLIENT_GONE = 499
 UNMATCHED = "unmatched"
 METHODS = frozenset({"GET", "HEAD", "POST", "PUT", "PATCH", "DELETE", "OPTIONS"})
 
@@ -45,6 +47,8 @@ class ObserveMiddleware:
             await self.app(scope, receive, observed_send)
         finally:
             seconds = time.perf_counter() - started
+            if scope.get("state", {}).get("client_gone"):
+                status = CLIENT_GONE  # no answer was sent: not a server error
             route = route_template(scope)
             method = str(scope.get("method", "GET"))
             method = method if method in METHODS else "other"

@@ -33,6 +33,7 @@ THREAD_VARIABLES = (
     "NUMEXPR_NUM_THREADS",
 )
 STARTUP_SECONDS = 120.0
+RECENT_JOBS = 32
 _READY = "ready"
 
 
@@ -167,7 +168,8 @@ class WorkPool:
         self._admitted = 0
         self._busy = 0
         self._recycled = 0
-        self._mean_seconds = 1.0
+        # Wall times of the latest jobs (budget overruns and crashes included): Retry-After.
+        self._recent: collections.deque[float] = collections.deque(maxlen=RECENT_JOBS)
         self._closed = False
         self._started = start
         if start:
@@ -181,13 +183,16 @@ class WorkPool:
         if self._closed:
             raise PoolClosed("the pool is shut down")
         budget = budget_seconds if budget_seconds is not None else self.budget_seconds
-        if self._admitted >= self.workers + self.queue_size:
+        if self.full():
             raise PoolBusy(self.retry_after())
         self._admitted += 1
         self._changed()
+        admitted = time.perf_counter()
         try:
             worker = await self._acquire(budget)
-            return await self._run_on(worker, fn, args, budget)
+            # The budget is the caller's: time spent queued for a worker counts against it.
+            waited = time.perf_counter() - admitted
+            return await self._run_on(worker, fn, args, budget, waited)
         finally:
             self._admitted -= 1
             self._changed()
@@ -227,9 +232,14 @@ class WorkPool:
             return "warming"
         if len(self._all) < self.workers:
             return "broken"
-        if self._admitted >= self.workers + self.queue_size:
+        if self.full():
             return "saturated"
         return "ok"
+
+    def full(self) -> bool:
+        """Every worker busy and the queue full: a new job would be refused. Cheap enough to
+        ask before a request's body is even read."""
+        return self._admitted >= self.workers + self.queue_size
 
     async def wait_until_ready(self, timeout: float | None = None) -> int:
         """Wait for every idle worker's start-up message; returns how many are ready.
@@ -249,10 +259,17 @@ class WorkPool:
             worker.ready = message == _READY
         return sum(1 for w in self._idle if w.ready)
 
+    def recent_job_seconds(self) -> float:
+        """Mean wall time of the latest jobs (1 s before any has run)."""
+        return sum(self._recent) / len(self._recent) if self._recent else 1.0
+
     def retry_after(self) -> int:
-        """Seconds a refused caller should wait: the queue ahead of it at the recent job time."""
+        """Seconds a refused caller should wait: the jobs admitted ahead of it, shared by the
+        workers, at the mean wall time of the latest jobs; at most the time the whole queue
+        takes if every job uses its full budget."""
         ahead = (self._admitted + 1) / max(1, self.workers)
-        return max(1, min(math.ceil(self.budget_seconds), math.ceil(ahead * self._mean_seconds)))
+        longest = self.budget_seconds * (1 + self.queue_size / max(1, self.workers))
+        return max(1, min(math.ceil(longest), math.ceil(ahead * self.recent_job_seconds())))
 
     def stats(self) -> PoolStats:
         """Workers configured and alive, busy and queued jobs, workers recycled so far."""
@@ -350,26 +367,31 @@ class WorkPool:
             with contextlib.suppress(ValueError):
                 self._waiters.remove(waiter)
 
-    async def _run_on(self, worker: _Worker, fn: Callable[..., T], args: Any, budget: float) -> T:
+    async def _run_on(
+        self, worker: _Worker, fn: Callable[..., T], args: Any, budget: float, waited: float = 0.0
+    ) -> T:
         recycle: str | None = None
         self._busy += 1
         self._changed()
         started = time.perf_counter()
+        sent = False
         try:
             if not worker.ready:
                 message = await _receive(worker, STARTUP_SECONDS)
                 if message != _READY:
                     raise WorkerCrashed(worker.process.exitcode)
                 worker.ready = True
+            left = budget - waited - (time.perf_counter() - started)
+            if left <= 0:
+                raise BudgetExceeded(budget)  # queued for the whole budget; the worker is free
             worker.conn.send((fn, args))
+            sent = True
             worker.jobs += 1
             try:
-                reply = await _receive(worker, budget)
+                reply = await _receive(worker, left)
             except TimeoutError:
                 recycle = "budget"
                 raise BudgetExceeded(budget) from None
-            elapsed = time.perf_counter() - started
-            self._mean_seconds = 0.8 * self._mean_seconds + 0.2 * elapsed
             if isinstance(reply, _Failure):
                 raise reply.error from WorkerTraceback(reply.trace)
             if self.max_jobs_per_worker and worker.jobs >= self.max_jobs_per_worker:
@@ -386,6 +408,8 @@ class WorkPool:
             recycle = "cancelled"
             raise
         finally:
+            if sent and recycle != "cancelled":
+                self._recent.append(time.perf_counter() - started)
             self._busy -= 1
             if recycle is None:
                 self._release(worker)

@@ -257,3 +257,49 @@ def test_a_full_queue_makes_the_pool_saturated() -> None:
             p.close()
 
     asyncio.run(scenario())
+
+
+def test_time_queued_for_a_worker_counts_against_the_budget() -> None:
+    small = WorkPool(1, 2, budget_seconds=3.0)
+    try:
+
+        async def scenario() -> None:
+            await small.run(pool_jobs.add, 0, 0)
+            running = asyncio.ensure_future(small.run(pool_jobs.sleep, 2.0))
+            await asyncio.sleep(0.05)
+            # Queued behind 2 s of work, 1.5 s of its own no longer fits a 3 s budget.
+            with pytest.raises(BudgetExceeded):
+                await small.run(pool_jobs.sleep, 1.5)
+            assert await running == 2.0
+            assert await small.run(pool_jobs.add, 1, 1) == 2
+
+        asyncio.run(scenario())
+    finally:
+        small.close()
+
+
+def test_retry_after_follows_the_recent_job_time() -> None:
+    small = WorkPool(1, 1, budget_seconds=30.0)
+    try:
+
+        async def scenario() -> None:
+            await small.run(pool_jobs.add, 0, 0)
+            for _ in range(3):
+                await small.run(pool_jobs.sleep, 1.0)
+            # The mean of the latest jobs is at least 3/4 s (three of 1 s, one instant one).
+            assert small.recent_job_seconds() >= 0.75
+            running = asyncio.ensure_future(small.run(pool_jobs.sleep, 1.0))
+            queued = asyncio.ensure_future(small.run(pool_jobs.sleep, 1.0))
+            await asyncio.sleep(0.05)
+            assert small.full()
+            with pytest.raises(PoolBusy) as caught:
+                await small.run(pool_jobs.add, 1, 1)
+            # Two jobs ahead on one worker at >= 0.75 s each, plus this one's turn.
+            assert caught.value.retry_after >= 3
+            await running
+            await queued
+            assert not small.full()
+
+        asyncio.run(scenario())
+    finally:
+        small.close()
