@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from service.api import render
 from service.api.caching import provenance_fields
 from service.api.schemas.backtests import BacktestRequest
 from service.api.schemas.diagnostics import DiagnosticsRequest
@@ -20,7 +21,7 @@ def answer(path: str, raw: str, settings: Settings | None = None) -> dict[str, A
     if path == "/v1/forecasts":
         request = ForecastRequest.model_validate_json(raw)
         task, series = forecast_task(request, settings)
-        body = jobs.forecast(task)
+        body = render.forecast_answer(jobs.forecast(task))
         body["provenance"] = {
             "data_hash": data_key(series.y).label,
             "cache": "off",
@@ -29,12 +30,13 @@ def answer(path: str, raw: str, settings: Settings | None = None) -> dict[str, A
         return body
     if path == "/v1/diagnostics":
         diagnostics = diagnostics_task(DiagnosticsRequest.model_validate_json(raw), settings)
-        found = jobs.diagnostics(diagnostics)
-        found["data_hash"] = data_key(diagnostics.y).label
-        return found
+        report, found = jobs.diagnostics(diagnostics)
+        return {
+            **render.diagnostics_body(report, found),
+            "data_hash": data_key(diagnostics.y).label,
+        }
     if path == "/v1/backtests":
         backtest = backtest_task(BacktestRequest.model_validate_json(raw), settings)
-        found = jobs.backtests(backtest)
-        found["data_hash"] = data_key(backtest.y).label
-        return found
+        result, found = jobs.backtests(backtest)
+        return {**render.backtest_body(result, found), "data_hash": data_key(backtest.y).label}
     raise ValueError(f"no local answer for {path}")

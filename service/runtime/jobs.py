@@ -12,21 +12,21 @@ import numpy as np
 import pandas as pd
 
 from service.core.data.regressors import RegressorSet
-from service.core.diagnostics.report import diagnose
+from service.core.diagnostics.report import Diagnostics, diagnose
 from service.core.errors import WindvaneError
+from service.core.evaluation.backtest import BacktestReport
 from service.core.evaluation.backtest import backtest as run_backtest
 
 # The families: the automatic selection looks them up in the registry only when a request
 # runs (candidate rules, refit), so without this import the first request of a process paid
 # ~0.24 s of statsmodels imports. The pool's fork server preloads this module.
 from service.core.models import registry as _registry  # noqa: F401
-from service.core.models.base import Fitted, FitWarning, Specification
+from service.core.models.base import Description, Fitted, FitWarning, Forecast, Specification
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
 from service.core.models.transforms import TransformedSpec, transform_from_value
-from service.core.selection.auto import backtest_auto, select
+from service.core.selection.auto import Selection, backtest_auto, select
 from service.core.selection.candidates import candidates_for, profile_series
-from service.runtime import render
 
 
 @dataclass(frozen=True)
@@ -117,7 +117,42 @@ def fit_explicit(task: ForecastTask) -> FittedBundle:
     return FittedBundle(fitted, (*found, *fitted.warnings))
 
 
-def forecast_from(bundle: FittedBundle, task: ForecastTask) -> dict[str, Any]:
+@dataclass(frozen=True)
+class ForecastAnswer:
+    """A worker's answer to a forecast: the forecast, the model, how it was chosen, warnings.
+
+    The server turns it into the response body (``service.api.render``)."""
+
+    name: str | None
+    forecast: Forecast
+    description: Description
+    selection: Selection | None
+    warnings: tuple[FitWarning, ...]
+    fitted: np.ndarray | None = None
+    residuals: np.ndarray | None = None
+
+
+def _answer(
+    task: ForecastTask,
+    fitted: Fitted,
+    result: Forecast,
+    found: list[FitWarning],
+    selection: Selection | None = None,
+) -> ForecastAnswer:
+    """The answer, with the in-sample values the request asked for."""
+    include = task.include
+    return ForecastAnswer(
+        name=task.name,
+        forecast=result,
+        description=fitted.describe(),
+        selection=selection,
+        warnings=tuple(found),
+        fitted=np.asarray(fitted.fitted_values(), dtype=float) if "fitted" in include else None,
+        residuals=np.asarray(fitted.residuals(), dtype=float) if "residuals" in include else None,
+    )
+
+
+def forecast_from(bundle: FittedBundle, task: ForecastTask) -> ForecastAnswer:
     """Forecast from an already fitted model: a new horizon or coverage needs no refit."""
     found = list(bundle.warnings)
     fitted = bundle.fitted
@@ -139,22 +174,17 @@ def forecast_from(bundle: FittedBundle, task: ForecastTask) -> dict[str, Any]:
         )
         fitted = fallback.fit(task.y, task.seasonal_period)
         result = fitted.forecast(task.horizon, task.coverage)
-    body: dict[str, Any] = {"name": task.name, **render.forecast_body(result)}
-    body["model"] = render.model_body(fitted.describe())
-    body["selection"] = None
-    body["warnings"] = render.warnings_body(found)
-    _add_in_sample(body, fitted, task.include)
-    return render.refuse_overflow(body)
+    return _answer(task, fitted, result, found)
 
 
-def fit_and_forecast(task: ForecastTask) -> tuple[dict[str, Any], FittedBundle]:
+def fit_and_forecast(task: ForecastTask) -> tuple[ForecastAnswer, FittedBundle]:
     """Fit, then forecast; the bundle goes back to the server for the fit store."""
     bundle = fit_explicit(task)
     return forecast_from(bundle, task), bundle
 
 
-def forecast(task: ForecastTask) -> dict[str, Any]:
-    """Fit (or select) a model and forecast; the response body without provenance."""
+def forecast(task: ForecastTask) -> ForecastAnswer:
+    """Fit (or select) a model and forecast."""
     if task.specification is None:
         return _auto_forecast(task)
     return fit_and_forecast(task)[0]
@@ -171,14 +201,7 @@ def with_transform(spec: Specification, transform: dict[str, Any] | None) -> Spe
     return TransformedSpec(base, chosen)
 
 
-def _add_in_sample(body: dict[str, Any], fitted: Fitted, include: tuple[str, ...]) -> None:
-    if "fitted" in include:
-        body["fitted"] = render.floats(fitted.fitted_values())
-    if "residuals" in include:
-        body["residuals"] = render.floats(fitted.residuals())
-
-
-def _auto_forecast(task: ForecastTask) -> dict[str, Any]:
+def _auto_forecast(task: ForecastTask) -> ForecastAnswer:
     """Model "auto": diagnostics, candidates, backtest, refit, calibrated forecast."""
     found: list[FitWarning] = []
     with collected_warnings(found):
@@ -198,12 +221,8 @@ def _auto_forecast(task: ForecastTask) -> dict[str, Any]:
             candidates=candidates,
             diagnostics=report,
         )
-    body: dict[str, Any] = {"name": task.name, **render.forecast_body(chosen.forecast)}
-    body["model"] = render.model_body(chosen.fitted.describe())
-    body["selection"] = render.plain(chosen.selection.to_dict())
-    body["warnings"] = render.warnings_body([*chosen.warnings, *found])
-    _add_in_sample(body, chosen.fitted, task.include)
-    return render.refuse_overflow(body)
+    found = [*chosen.warnings, *found]
+    return _answer(task, chosen.fitted, chosen.forecast, found, chosen.selection)
 
 
 @dataclass(frozen=True)
@@ -216,8 +235,8 @@ class DiagnosticsTask:
     include_components: bool = False
 
 
-def diagnostics(task: DiagnosticsTask) -> dict[str, Any]:
-    """The diagnostics report as a JSON-ready body."""
+def diagnostics(task: DiagnosticsTask) -> tuple[Diagnostics, list[FitWarning]]:
+    """The diagnostics report and the library warnings raised while making it."""
     found: list[FitWarning] = []
     with collected_warnings(found):
         report = diagnose(
@@ -226,10 +245,7 @@ def diagnostics(task: DiagnosticsTask) -> dict[str, Any]:
             max_lag=task.max_lag,
             include_components=task.include_components,
         )
-    body: dict[str, Any] = render.plain(report.to_dict())
-    body.setdefault("warnings", [])
-    body["warnings"] = [*body["warnings"], *render.warnings_body(found)]
-    return body
+    return report, found
 
 
 @dataclass(frozen=True)
@@ -246,7 +262,7 @@ class BacktestTask:
     metric: str
 
 
-def backtests(task: BacktestTask) -> dict[str, Any]:
+def backtests(task: BacktestTask) -> tuple[BacktestReport, list[FitWarning]]:
     """Rolling-origin evaluation of the given specifications, or of the auto candidates."""
     found: list[FitWarning] = []
     options: dict[str, Any] = {
@@ -262,6 +278,4 @@ def backtests(task: BacktestTask) -> dict[str, Any]:
             report = backtest_auto(task.y, task.seasonal_period, diagnostics=diagnostics, **options)
         else:
             report = run_backtest(task.y, task.specifications, task.seasonal_period, **options)
-    body: dict[str, Any] = render.plain(report.to_dict())
-    body["warnings"] = render.warnings_body(found)
-    return body
+    return report, found

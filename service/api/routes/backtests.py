@@ -7,7 +7,7 @@ from typing import Annotated, Any
 
 from fastapi import APIRouter, Body
 
-from service.api import examples
+from service.api import examples, render
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.problems import PROBLEM_RESPONSES
 from service.api.schemas.backtests import BacktestRequest, BacktestResponse
@@ -32,6 +32,5 @@ async def create_backtest(
     """Rolling-origin evaluation: per model and per step MAE, RMSE, MASE, sMAPE, interval
     coverage and scaled interval score, with a ranking by the chosen metric."""
     task = await asyncio.to_thread(backtest_task, body, settings)  # parsing can be slow
-    result = await pool.run(jobs.backtests, task)
-    result["data_hash"] = data_key(task.y).label
-    return result
+    report, found = await pool.run(jobs.backtests, task)
+    return {**render.backtest_body(report, found), "data_hash": data_key(task.y).label}

@@ -7,7 +7,7 @@ from typing import Annotated, Any
 
 from fastapi import APIRouter, Body
 
-from service.api import examples
+from service.api import examples, render
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.problems import PROBLEM_RESPONSES
 from service.api.schemas.diagnostics import DiagnosticsRequest, DiagnosticsResponse
@@ -34,6 +34,5 @@ async def create_diagnostics(
     """Stationarity, differencing, autocorrelation, seasonality, outliers and whether the
     series is a random walk, each verdict with its evidence and a plain-sentence finding."""
     task = await asyncio.to_thread(diagnostics_task, body, settings)  # parsing can be slow
-    result = await pool.run(jobs.diagnostics, task)
-    result["data_hash"] = data_key(task.y).label
-    return result
+    report, found = await pool.run(jobs.diagnostics, task)
+    return {**render.diagnostics_body(report, found), "data_hash": data_key(task.y).label}

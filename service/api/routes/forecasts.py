@@ -8,7 +8,7 @@ from typing import Annotated, Any
 
 from fastapi import APIRouter, Body, Request, Response
 
-from service.api import caching, examples
+from service.api import caching, examples, render
 from service.api.dependencies import PoolDep, SettingsDep, get_cache, get_telemetry
 from service.api.problems import PROBLEM_RESPONSES
 from service.api.schemas.forecasts import ForecastRequest, ForecastResponse
@@ -29,7 +29,7 @@ async def _computed(
     that a new horizon or coverage on the same data needs no refit."""
     cache = get_cache(request)
     if task.specification is None or not cache.enabled:
-        return dict(await pool.run(jobs.forecast, task)), None
+        return render.forecast_answer(await pool.run(jobs.forecast, task)), None
     telemetry = get_telemetry(request)
     options: dict[str, Any] = {"transform": task.transform}
     if task.regressors is not None:
@@ -39,10 +39,11 @@ async def _computed(
     stored = await asyncio.to_thread(cache.load_fitted, key)
     telemetry.record_cache("fitted", stored.result)
     if stored.hit and isinstance(stored.value, jobs.FittedBundle):
-        return dict(await pool.run(jobs.forecast_from, stored.value, task)), "hit"
-    body, bundle = await pool.run(jobs.fit_and_forecast, task)
+        return render.forecast_answer(await pool.run(jobs.forecast_from, stored.value, task)), "hit"
+    answer, bundle = await pool.run(jobs.fit_and_forecast, task)
+    body = render.forecast_answer(answer)  # an overflowing forecast is refused before storing
     await asyncio.to_thread(cache.save_fitted, key, bundle)
-    return dict(body), "miss"
+    return body, "miss"
 
 
 @router.post(

@@ -48,16 +48,28 @@ class OriginForecast:
 
 
 @dataclass(frozen=True)
-class StepScores:
-    """Accuracy at one horizon step (1-based), averaged over the origins."""
+class Scores:
+    """Accuracy measures, with coverage and scaled interval score per coverage level."""
 
-    step: int
     mae: float
     rmse: float
     mase: float
     smape: float
     coverage: dict[float, float]
     msis: dict[float, float]
+
+
+@dataclass(frozen=True)
+class StepScores(Scores):
+    """Accuracy at one horizon step (1-based), averaged over the origins."""
+
+    step: int
+
+
+def _finite_mean(values: Iterable[float]) -> float:
+    arr = np.array(list(values), dtype=float)
+    arr = arr[np.isfinite(arr)]
+    return float(arr.mean()) if arr.size else float("nan")
 
 
 @dataclass(frozen=True)
@@ -126,6 +138,20 @@ class ModelBacktest:
                 )
             )
         return tuple(out)
+
+    def overall(self) -> Scores | None:
+        """The step scores averaged over the steps; None when the model has no forecasts."""
+        steps = self.steps()
+        if not steps:
+            return None
+        return Scores(
+            mae=_finite_mean(s.mae for s in steps),
+            rmse=_finite_mean(s.rmse for s in steps),
+            mase=_finite_mean(s.mase for s in steps),
+            smape=_finite_mean(s.smape for s in steps),
+            coverage={v: _finite_mean(s.coverage[v] for s in steps) for v in self.levels},
+            msis={v: _finite_mean(s.msis[v] for s in steps) for v in self.levels},
+        )
 
     def score(self, metric: str) -> float:
         """The model's overall score by ``metric``: mean over origins and steps (inf if failed)."""
