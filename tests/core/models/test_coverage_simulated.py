@@ -17,7 +17,8 @@ import pandas as pd
 import pytest
 from threadpoolctl import threadpool_limits
 
-from service.core.models.ets.family import EtsFitted, EtsSpec
+from service.core.models.ets.family import EtsSpec
+from service.core.models.ets.fitted import EtsFitted
 
 HORIZON = 6
 TOLERANCE = 0.03

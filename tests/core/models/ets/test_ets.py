@@ -15,7 +15,9 @@ from threadpoolctl import threadpool_limits
 
 from service.core.errors import FitError, SpecificationError
 from service.core.models import registry
-from service.core.models.ets.family import EtsSpec, candidates_for, ets_label, search_ets
+from service.core.models.ets.family import EtsSpec, candidates_for
+from service.core.models.ets.fitted import ets_label
+from service.core.models.ets.search import search_ets
 
 
 @pytest.fixture(autouse=True)
@@ -75,7 +77,7 @@ def test_bad_choice_is_a_specification_error() -> None:
 
 
 def test_search_ranks_and_picks_the_lowest_aicc() -> None:
-    found = search_ets(monthly(), 12)
+    found = search_ets(monthly(), 12, EtsSpec())
     scores = [c.aicc for c in found.candidates if c.aicc is not None]
     assert scores == sorted(scores)
     assert found.best.label == found.candidates[0].label
@@ -147,7 +149,7 @@ def test_auto_on_two_hundred_monthly_points_is_cheap() -> None:
     y = monthly(n=200, seed=11)
     with threadpool_limits(1):
         start = time.perf_counter()
-        found = search_ets(y, 12)
+        found = search_ets(y, 12, EtsSpec())
         ours = time.perf_counter() - start
         start = time.perf_counter()
         ETSModel(y.to_numpy(), error="add", trend="add", seasonal="add", seasonal_periods=12).fit(

@@ -11,7 +11,7 @@ import pytest
 from statsmodels.tsa.exponential_smoothing.ets import ETSModel
 from threadpoolctl import threadpool_limits
 
-from service.core.models.ets.family import _EtsModel
+from service.core.models.ets.lean import LeanEtsModel
 
 SHAPES = [
     {"error": "add", "trend": "add", "damped_trend": True, "seasonal": "add"},
@@ -44,7 +44,7 @@ def test_fits_are_bit_identical_to_statsmodels(shape: dict[str, object]) -> None
     with warnings.catch_warnings(), np.errstate(all="ignore"):
         warnings.simplefilter("ignore")
         for method in ("heuristic", "estimated"):
-            ours = _EtsModel(y, initialization_method=method, **kwargs_for(shape))
+            ours = LeanEtsModel(y, initialization_method=method, **kwargs_for(shape))
             theirs = ETSModel(y, initialization_method=method, **kwargs_for(shape))
             a = ours.fit(disp=False, maxiter=300)
             b = theirs.fit(disp=False, maxiter=300)
@@ -57,7 +57,7 @@ def test_the_covariance_is_not_computed() -> None:
     y = positive_seasonal()
     with warnings.catch_warnings(), np.errstate(all="ignore"):
         warnings.simplefilter("ignore")
-        result = _EtsModel(y, **kwargs_for(SHAPES[0])).fit(disp=False, maxiter=50)
+        result = LeanEtsModel(y, **kwargs_for(SHAPES[0])).fit(disp=False, maxiter=50)
     k = len(result.params)
     assert result.cov_params_default.shape == (k, k)
     assert np.isnan(result.cov_params_default).all()

@@ -1,0 +1,278 @@
+"""The ETS search: rank the admissible models by AICc on cheap fits, then fit the winner
+exactly (estimated initial states started from the search solution)."""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+import pandas as pd
+from statsmodels.tools.eval_measures import aicc
+from statsmodels.tsa.exponential_smoothing.ets import ETSResults
+
+from service.core.errors import FitError
+from service.core.models.base import FitWarning
+from service.core.models.ets.fitted import EtsFitted, checked_values, ets_label
+from service.core.models.ets.lean import LeanEtsModel, model_kwargs, n_parameters
+from service.core.models.library_warnings import captured
+
+if TYPE_CHECKING:
+    from service.core.models.ets.family import EtsSpec
+
+SEARCH_MAXITER = 300
+"""Optimiser iterations for a candidate's cheap fit."""
+EXACT_MAXITER = 1000
+"""Optimiser iterations for the winner's exact fit."""
+
+
+@dataclass(frozen=True)
+class EtsCandidate:
+    """One model tried by the search: its label, AICc (None when it failed) and why it failed."""
+
+    label: str
+    specification: EtsSpec
+    aicc: float | None
+    failure: str | None = None
+
+
+@dataclass(frozen=True)
+class EtsSearch:
+    """The exactly fitted winner and the ranking of every candidate tried."""
+
+    best: EtsFitted
+    candidates: tuple[EtsCandidate, ...]
+
+
+def search_ets(
+    y: pd.Series,
+    seasonal_period: int,
+    spec: EtsSpec,
+    warm: tuple[EtsSpec, tuple[float, ...]] | None = None,
+) -> EtsSearch:
+    """Rank the admissible ETS models for ``y`` by AICc and fit the winner exactly; ``warm``
+    gives a model's earlier exact estimates as the exact fit's start when that model wins."""
+    start = time.perf_counter()
+    values = checked_values(y)
+    if spec.is_complete():
+        direct = _direct_fit(spec, y, values, seasonal_period)
+        if direct is not None:
+            direct.fit_seconds = time.perf_counter() - start
+            score = direct.information_criteria().get("aicc")
+            return EtsSearch(direct, (EtsCandidate(ets_label(spec), spec, score),))
+    notes: list[FitWarning] = []
+    tried: list[EtsCandidate] = []
+    scored: list[tuple[float, EtsSpec, _Estimate]] = []
+    for candidate in spec.candidates(values, seasonal_period):
+        label = ets_label(candidate)
+        estimate = _search_fit(candidate, values, seasonal_period)
+        problem = estimate.failure or _implausible(estimate, values, seasonal_period)
+        if problem is not None:
+            tried.append(EtsCandidate(label, candidate, None, problem))
+            notes.append(FitWarning("failed_candidate", f"{label} left out: {problem}"))
+            continue
+        tried.append(EtsCandidate(label, candidate, estimate.aicc))
+        scored.append((estimate.aicc, candidate, estimate))
+    if not scored:
+        reasons = "; ".join(f"{c.label}: {c.failure}" for c in tried)
+        raise FitError(f"no ETS model could be fitted to this series ({reasons})", field="model")
+    scored.sort(key=lambda item: item[0])
+    _, chosen, rough = scored[0]
+    earlier = warm[1] if warm is not None and warm[0] == chosen else None
+    fitted = _exact_fit(spec, chosen, y, values, seasonal_period, rough, earlier)
+    fitted.warnings[:0] = notes if not spec.is_complete() else []
+    fitted.fit_seconds = time.perf_counter() - start
+    ranking = sorted(tried, key=lambda c: (c.aicc is None, c.aicc or 0.0))
+    return EtsSearch(fitted, tuple(ranking))
+
+
+def _direct_fit(spec: EtsSpec, y: pd.Series, values: np.ndarray, period: int) -> EtsFitted | None:
+    """A fully specified model: one exact fit from statsmodels' own start, as a direct call
+    would make; None (so the two-stage path runs) when it fails, does not converge or
+    forecasts implausibly. On 20 seeded seasonal series the two-stage path found the same
+    likelihood to 1e-3, at 1.1-1.3 x the cost."""
+    caught: list[FitWarning] = []
+    label = ets_label(spec)
+    try:
+        with captured(caught, label):
+            model = LeanEtsModel(pd.Series(values), **model_kwargs(spec, period))
+            result = model.fit(disp=False, maxiter=EXACT_MAXITER)
+            check = np.asarray(result.forecast(max(2 * period, 12)), dtype=float)
+    except (ValueError, np.linalg.LinAlgError, OverflowError, ZeroDivisionError):
+        return None
+    converged = (result.mle_retvals or {}).get("converged", True)
+    estimate = _Estimate(
+        _smoothing_of(result),
+        _initial_of(result),
+        float(result.llf),
+        float(aicc(float(result.llf), values.size, n_parameters(spec, period))),
+        "estimated",
+        tuple(caught),
+        forecast_check=check,
+    )
+    if not converged or not math.isfinite(estimate.llf) or _implausible(estimate, values, period):
+        return None
+    fitted = EtsFitted(
+        specification=spec,
+        chosen=spec,
+        y=y,
+        seasonal_period=period,
+        smoothing=dict(estimate.smoothing),
+        initial=estimate.initial,
+        initialization="estimated",
+        warnings=list(caught),
+    )
+    fitted._cached = result
+    return fitted
+
+
+@dataclass(frozen=True)
+class _Estimate:
+    """A candidate's smoothing parameters, initial states, log-likelihood and AICc."""
+
+    smoothing: dict[str, float]
+    initial: tuple[float, ...]
+    llf: float
+    aicc: float
+    initialization: str
+    warnings: tuple[FitWarning, ...] = ()
+    failure: str | None = None
+    forecast_check: np.ndarray | None = None
+
+
+def _search_fit(spec: EtsSpec, values: np.ndarray, period: int) -> _Estimate:
+    """A cheap fit with heuristic initial states (estimated ones when the data are too short)."""
+    k = n_parameters(spec, period)
+    if values.size - k - 1 <= 0:
+        return _failed(f"too few observations ({values.size}) for {k} parameters")
+    method = "heuristic" if values.size >= max(10, 2 * period) else "estimated"
+    caught: list[FitWarning] = []
+    try:
+        with captured(caught, ets_label(spec)):
+            model = LeanEtsModel(values, initialization_method=method, **model_kwargs(spec, period))
+            result = model.fit(disp=False, maxiter=SEARCH_MAXITER)
+            check = np.asarray(result.forecast(max(2 * period, 12)), dtype=float)
+    except (ValueError, np.linalg.LinAlgError, OverflowError, ZeroDivisionError) as exc:
+        return _failed(f"the optimiser failed ({exc})")
+    retvals = result.mle_retvals or {}
+    llf = float(result.llf)
+    if not retvals.get("converged", True):
+        return _failed("the optimisation did not converge")
+    if not math.isfinite(llf):
+        return _failed("the likelihood is not finite")
+    return _Estimate(
+        _smoothing_of(result),
+        _initial_of(result),
+        llf,
+        float(aicc(llf, values.size, k)),
+        method,
+        tuple(caught),
+        forecast_check=check,
+    )
+
+
+def _failed(reason: str) -> _Estimate:
+    return _Estimate({}, (), math.nan, math.nan, "none", failure=reason)
+
+
+def _implausible(estimate: _Estimate, values: np.ndarray, period: int) -> str | None:
+    """A forecast that is non-finite or leaves a wide band around the history (trap 8)."""
+    check = estimate.forecast_check
+    if check is None:
+        return None
+    if not np.all(np.isfinite(check)):
+        return "its forecast is not finite"
+    spread = float(values.max() - values.min()) or abs(float(values.mean())) or 1.0
+    if check.min() < values.min() - 3 * spread or check.max() > values.max() + 3 * spread:
+        return "its forecast explodes beyond any plausible range of the history"
+    return None
+
+
+def _smoothing_of(result: ETSResults) -> dict[str, float]:
+    out = {"alpha": float(result.smoothing_level)}
+    if result.model.has_trend:
+        out["beta"] = float(result.smoothing_trend)
+    if result.model.has_seasonal:
+        out["gamma"] = float(result.smoothing_seasonal)
+    if result.model.damped_trend:
+        out["phi"] = float(result.damping_trend)
+    return out
+
+
+def _initial_of(result: ETSResults) -> tuple[float, ...]:
+    """Initial level, trend and season in the order ETSModel's 'known' initialisation takes."""
+    out = [float(result.initial_level)]
+    if result.model.has_trend:
+        out.append(float(result.initial_trend))
+    if result.model.has_seasonal:
+        out.extend(float(v) for v in np.asarray(result.initial_seasonal, dtype=float))
+    return tuple(out)
+
+
+def _exact_fit(
+    requested: EtsSpec,
+    chosen: EtsSpec,
+    y: pd.Series,
+    values: np.ndarray,
+    period: int,
+    rough: _Estimate,
+    warm: tuple[float, ...] | None = None,
+) -> EtsFitted:
+    """Re-estimate the winner with estimated initial states, started from the search solution
+    (or from ``warm``, earlier exact estimates of the same model on a shorter history)."""
+    notes = list(rough.warnings)
+    estimate = rough
+    kept: ETSResults | None = None
+    if rough.initialization == "heuristic":
+        caught: list[FitWarning] = []
+        try:
+            with captured(caught, ets_label(chosen)):
+                # A RangeIndex series, as in results(): statsmodels' prediction needs an index.
+                model = LeanEtsModel(pd.Series(values), **model_kwargs(chosen, period))
+                start = np.asarray(model.start_params, dtype=float).copy()
+                if warm is not None and len(warm) == start.size:
+                    start = np.asarray(warm, dtype=float)
+                else:
+                    start[: len(rough.smoothing)] = list(rough.smoothing.values())
+                result = model.fit(start_params=start, disp=False, maxiter=EXACT_MAXITER)
+            exact = _Estimate(
+                _smoothing_of(result),
+                _initial_of(result),
+                float(result.llf),
+                float(aicc(float(result.llf), values.size, n_parameters(chosen, period))),
+                "estimated",
+                tuple(caught),
+            )
+            converged = (result.mle_retvals or {}).get("converged", True)
+            if converged and math.isfinite(exact.llf) and exact.llf >= rough.llf:
+                estimate = exact
+                notes = list(caught)
+                kept = result
+            else:
+                notes.append(
+                    FitWarning(
+                        "kept_heuristic_start",
+                        f"{ets_label(chosen)}: estimating the initial states did not improve "
+                        "the likelihood; heuristic initial states kept",
+                    )
+                )
+        except (ValueError, np.linalg.LinAlgError, OverflowError, ZeroDivisionError) as exc:
+            notes.append(
+                FitWarning("kept_heuristic_start", f"{ets_label(chosen)}: exact fit failed ({exc})")
+            )
+    fitted = EtsFitted(
+        specification=requested,
+        chosen=chosen,
+        y=y,
+        seasonal_period=period,
+        smoothing=dict(estimate.smoothing),
+        initial=estimate.initial,
+        initialization=estimate.initialization,
+        warnings=notes,
+        estimates=tuple(float(v) for v in kept.params) if kept is not None else (),
+    )
+    # The exact fit's own results serve this history: no re-smoothing for the first forecast.
+    fitted._cached = kept
+    return fitted
