@@ -46,7 +46,7 @@ def _serve(args: argparse.Namespace) -> int:
     # uvicorn drains, then re-raises SIGTERM with the handler found here: make that exit 0.
     signal.signal(signal.SIGTERM, _exit_after_drain)
     uvicorn.run(
-        "service.api.app:create_app",
+        "service.api.boot:create_app",
         factory=True,
         host=settings.host,
         port=settings.port,

@@ -133,6 +133,9 @@ def running(directory: Path, **settings: str) -> Iterator[LiveServer]:
     server = LiveServer(process, f"http://127.0.0.1:{port}", log)
     try:
         wait_until_healthy(server)
+        # /healthz answers from the first second; any other path waits until the
+        # application is built (the pool may still be warming up).
+        httpx.get(server.url + "/metrics", timeout=START_SECONDS).raise_for_status()
         yield server
     finally:
         stop(server)

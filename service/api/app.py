@@ -13,6 +13,7 @@ from fastapi import FastAPI
 
 from service import __version__
 from service.api.auth import install_api_keys
+from service.api.boot import WARM_MODULES
 from service.api.hits import ResponseHitMiddleware
 from service.api.middleware import (
     AdmissionMiddleware,
@@ -97,7 +98,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             settings.pool_workers,
             settings.queue_size,
             settings.fit_seconds,
-            preload=("service.runtime.warmup",),
+            preload=WARM_MODULES,
             max_jobs_per_worker=settings.pool_max_jobs,
             on_change=occupancy,
             on_recycle=telemetry.record_recycle,
