@@ -28,7 +28,7 @@ from service.core.evaluation.backtest import (
 )
 from service.core.evaluation.calibration import Calibration
 from service.core.models.base import Description, FitWarning, Forecast, as_dict
-from service.core.selection.auto import Selection
+from service.core.selection.outcome import Selection
 from service.runtime.jobs import ForecastAnswer
 
 

@@ -25,8 +25,9 @@ from service.core.models.base import Description, Fitted, FitWarning, Forecast, 
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
 from service.core.models.transforms import TransformedSpec, transform_from_value
-from service.core.selection.auto import Selection, backtest_auto, select
+from service.core.selection.auto import backtest_auto, select
 from service.core.selection.candidates import candidates_for, profile_series
+from service.core.selection.outcome import Selection
 
 
 @dataclass(frozen=True)

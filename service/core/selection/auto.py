@@ -38,10 +38,8 @@ from __future__ import annotations
 import dataclasses
 import time
 from collections.abc import Sequence
-from dataclasses import dataclass, field
-from typing import Any, cast
+from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from service.core.checks import check_coverage, check_positive_int
@@ -50,7 +48,6 @@ from service.core.evaluation import calibration as cal
 from service.core.evaluation.backtest import (
     MapFn,
     ModelBacktest,
-    RankEntry,
     Task,
     rank,
     run,
@@ -63,16 +60,13 @@ from service.core.evaluation.origins import (
 )
 from service.core.evaluation.scoring import check_metric
 from service.core.models.base import (
-    Fitted,
     FitWarning,
     Forecast,
     Specification,
     family_of,
 )
 from service.core.models.intervals import Interval
-from service.core.models.naive import NaiveSpec
-from service.core.models.seasonal_naive import SeasonalNaiveSpec
-from service.core.selection.averaging import CombinedFitted, combine
+from service.core.selection.averaging import combine
 from service.core.selection.candidates import (
     CandidateSet,
     SeriesProfile,
@@ -80,99 +74,21 @@ from service.core.selection.candidates import (
     profile_series,
 )
 from service.core.selection.choice import choose, disjoint_windows
+from service.core.selection.outcome import AutoForecast, Selection
 from service.core.selection.plausibility import implausible
+from service.core.selection.refit import for_refit, model_periods, refit
+from service.core.selection.skill import (
+    NO_SKILL_MESSAGE,
+    SKILL_MARGIN,
+    benchmark_of,
+    skill,
+    with_benchmarks,
+)
 
-SKILL_MARGIN = 0.05
 MAX_HISTORY = 5000
 """auto estimates on at most the latest max(MAX_HISTORY, 4m) points: its cost grows with the
 length (10,000 daily points took 7.8 s, 100,000 would pass the time budget) while points that
 old add little to a forecast of the next few seasons (common practice)."""
-NO_SKILL_MESSAGE = (
-    "The series behaves like a random walk and no candidate beat the naive forecast by 5 % in "
-    "the backtest, so the naive forecast (the last value) is returned. A low error here does "
-    "not mean a useful model: it only says the next value is close to the current one."
-)
-
-
-@dataclass(frozen=True)
-class Selection:
-    """The response's ``selection`` part: how the model was chosen and how it scored."""
-
-    metric: str
-    rule: str
-    chosen: str
-    ranking: tuple[RankEntry, ...]
-    benchmark: str
-    skill_over_naive: float | None
-    horizon: int
-    step: int
-    origins: tuple[pd.Timestamp, ...]
-    calibration: cal.Calibration | None
-    candidates: CandidateSet
-    profile: SeriesProfile
-    failures: tuple[tuple[str, str], ...] = ()
-    observations_used: int = 0
-    """How many of the latest points the candidates were estimated on (see MAX_HISTORY)."""
-    candidate_seconds: tuple[tuple[str, float, float], ...] = ()
-    """(label, fit seconds, re-filter + forecast seconds) per candidate; for logs only, kept
-    out of ``to_dict`` so that identical requests give identical responses."""
-
-    def to_dict(self) -> dict[str, Any]:
-        """JSON form."""
-        return {
-            "metric": self.metric,
-            "rule": self.rule,
-            "chosen": self.chosen,
-            "ranking": [
-                {"label": r.label, "specification": r.specification, "score": _num(r.score)}
-                for r in self.ranking
-            ],
-            "benchmark": self.benchmark,
-            "skill_over_naive": self.skill_over_naive,
-            "backtest": {
-                "horizon": self.horizon,
-                "step": self.step,
-                "origins": [o.isoformat() for o in self.origins],
-            },
-            "calibration": self.calibration.to_dict() if self.calibration else None,
-            "candidates": self.candidates.to_dict(),
-            "profile": {
-                "seasonal": self.profile.seasonal,
-                "seasonal_period": self.profile.seasonal_period,
-                "positive": self.profile.positive,
-                "zero_share": self.profile.zero_share,
-                "intermittent": self.profile.intermittent,
-                "short": self.profile.short,
-                "random_walk": self.profile.random_walk,
-                "random_walk_reason": self.profile.random_walk_reason,
-            },
-            "failures": [{"label": label, "reason": why} for label, why in self.failures],
-            "observations_used": self.observations_used,
-        }
-
-
-@dataclass(frozen=True)
-class AutoForecast:
-    """The outcome of ``select``: the refitted model, its (calibrated) forecast and the story."""
-
-    fitted: Fitted
-    forecast: Forecast
-    selection: Selection
-    warnings: tuple[FitWarning, ...]
-    seconds: dict[str, float] = field(default_factory=dict)
-
-
-def _num(value: float) -> float | None:
-    return float(value) if np.isfinite(value) else None
-
-
-def _periods(specs: Sequence[Specification], profile: SeriesProfile) -> list[int]:
-    """Seasonal naive and STL see the true period; the rest the profile's model period."""
-    out = []
-    for s in specs:
-        full = family_of(s) in ("seasonal_naive", "stl")
-        out.append(profile.benchmark_period if full else profile.model_period)
-    return out
 
 
 def select(
@@ -203,11 +119,11 @@ def select(
     y = recent_history(y, seasonal_period)
     profile = profile_series(y, seasonal_period, diagnostics)
     chosen_set = candidates_for(profile, thorough) if candidates is None else _given(candidates)
-    specs = _with_benchmarks(list(chosen_set.specifications), profile)
+    specs = with_benchmarks(list(chosen_set.specifications), profile)
     clock.lap("profile")
 
     plan, shortened = feasible_plan(len(y), horizon, origins, profile.benchmark_period)
-    periods = _periods(specs, profile)
+    periods = model_periods(specs, profile)
     # One estimation per candidate serves both the ranking (the selection origins) and the
     # calibration (denser origins between the first and the last): only re-filtering is added.
     evaluation_plan = dense_plan(
@@ -229,7 +145,7 @@ def select(
     if not order:
         raise FitError("no candidate could be fitted to this series", field="series.values")
     failures = tuple((r.label, r.failure or "") for r in results if not r.ok)
-    bench = results[specs.index(_benchmark(specs, profile))]
+    bench = results[specs.index(benchmark_of(specs, profile))]
     bench_score = bench.score(metric)
 
     picked = choose(
@@ -244,7 +160,7 @@ def select(
     rule, members, ranking = picked.rule, list(picked.members), picked.ranking
     weights = picked.weights
     chosen_bt = _merged([results[i] for i in members], weights)
-    skill = _skill(chosen_bt.score(metric), bench_score)
+    skill_score = skill(chosen_bt.score(metric), bench_score)
 
     extra: list[FitWarning] = []
     if len(y) < full_length:
@@ -264,11 +180,11 @@ def select(
             )
         )
     naive_index = next(i for i, s in enumerate(specs) if family_of(s) == "naive")
-    over_naive = _skill(chosen_bt.score(metric), results[naive_index].score(metric))
+    over_naive = skill(chosen_bt.score(metric), results[naive_index].score(metric))
     if profile.random_walk and (over_naive is None or over_naive < SKILL_MARGIN):
         rule, members, weights = "naive_guard", [naive_index], ()
         chosen_bt = results[naive_index]
-        skill = _skill(chosen_bt.score(metric), bench_score)
+        skill_score = skill(chosen_bt.score(metric), bench_score)
         extra.append(FitWarning("no_skill_over_naive", NO_SKILL_MESSAGE))
 
     # The structure each family's search chose before the first origin is kept; only its
@@ -289,9 +205,9 @@ def select(
     # The family's own search runs again on the full series: the backtest scored the search
     # procedure, and a structure settled on the early part alone forecast worse (mean MASE
     # 1.097 against 0.998 on the accuracy benchmark).
-    fitted, dropped = _refit(
+    fitted, dropped = refit(
         y,
-        [_for_refit(specs[i], dense[i]) for i in members],
+        [for_refit(specs[i], dense[i]) for i in members],
         weights,
         profile,
         chosen_bt.label,
@@ -308,7 +224,7 @@ def select(
         chosen=chosen_bt.label,
         ranking=ranking,
         benchmark=bench.label,
-        skill_over_naive=skill,
+        skill_over_naive=skill_score,
         horizon=plan.horizon,
         step=plan.step,
         origins=tuple(y.index[o] for o in ranked_origins),
@@ -342,45 +258,10 @@ def recent_history(y: pd.Series, seasonal_period: int) -> pd.Series:
     return y.iloc[-keep:] if len(y) > keep else y
 
 
-def _for_refit(spec: Specification, backtest: ModelBacktest) -> Specification:
-    """ARIMA (on any scale) keeps the orders its search found before the first origin (a second
-    search costs more than the rest of auto); ETS searches again in full, its winner's exact
-    fit warm-started from the earlier one; the other families search again."""
-    if backtest.refit is not None:
-        narrowed: Specification = backtest.refit
-        return narrowed
-    if family_of(spec) == "arima" and backtest.resolved is not None:
-        resolved: Specification = backtest.resolved
-        return resolved
-    return spec
-
-
 def _given(candidates: Sequence[Specification]) -> CandidateSet:
     if not candidates:
         raise RequestError("candidates must not be empty", field="candidates")
     return CandidateSet(tuple(candidates), tuple("requested" for _ in candidates))
-
-
-def _with_benchmarks(specs: list[Specification], profile: SeriesProfile) -> list[Specification]:
-    """Naive, and seasonal naive when seasonal, are always evaluated: skill needs them."""
-    families = {family_of(s) for s in specs}
-    out = list(specs)
-    if "naive" not in families:
-        out.insert(0, NaiveSpec())
-    if profile.seasonal and "seasonal_naive" not in families:
-        out.insert(1, SeasonalNaiveSpec())
-    return out
-
-
-def _benchmark(specs: Sequence[Specification], profile: SeriesProfile) -> Specification:
-    wanted = "seasonal_naive" if profile.seasonal else "naive"
-    return next(s for s in specs if family_of(s) == wanted)
-
-
-def _skill(score: float, benchmark: float) -> float | None:
-    if not (np.isfinite(score) and np.isfinite(benchmark)) or benchmark <= 0:
-        return None
-    return float(1.0 - score / benchmark)
 
 
 def _merged(members: Sequence[ModelBacktest], weights: Sequence[float] = ()) -> ModelBacktest:
@@ -405,7 +286,7 @@ def _calibrate(
     if longer is None:
         return cal.calibrate(dense)
     results = run(
-        y, specs, profile.benchmark_period, longer, levels, map_fn, _periods(specs, profile)
+        y, specs, profile.benchmark_period, longer, levels, map_fn, model_periods(specs, profile)
     )
     if not all(r.ok for r in results):
         return cal.calibrate(dense)
@@ -426,51 +307,6 @@ def _screened(result: ModelBacktest, y: pd.Series) -> ModelBacktest:
     return result
 
 
-def _refit(
-    y: pd.Series,
-    specs: Sequence[Specification],
-    weights: Sequence[float],
-    profile: SeriesProfile,
-    label: str,
-    request: tuple[int, tuple[float, ...]],
-) -> tuple[Fitted, list[FitWarning]]:
-    """The chosen specification(s) estimated on the full series, without members whose
-    forecast for ``request`` (horizon, levels) leaves the plausible band (with a warning).
-
-    A combination whose members share one period becomes the registry's combination family;
-    members needing different periods (STL beside non-seasonal models) use a local adapter.
-    """
-    from service.core.models.combination import CombinationFitted, CombinationSpec
-
-    periods = _periods(specs, profile)
-    if len(specs) == 1:
-        return specs[0].fit(y, periods[0]), []
-    start = time.perf_counter()
-    fits = [s.fit(y, p) for s, p in zip(specs, periods, strict=True)]
-    values = y.to_numpy(dtype=float)
-    keep, dropped = [], []
-    for i, fit in enumerate(fits):
-        why = implausible(fit.forecast(*request), values)
-        if why is None:
-            keep.append(i)
-        else:
-            name = fit.describe().label
-            dropped.append(FitWarning("member_dropped", f"{name} left out of the forecast: {why}"))
-    if not keep:
-        # Nothing plausible: the best-weighted member answers; its intervals say the rest.
-        keep, dropped = [int(np.argmax(weights))], []
-    if len(keep) == 1:
-        return fits[keep[0]], dropped
-    kept_weights = tuple(weights[i] for i in keep)
-    if len({periods[i] for i in keep}) == 1:
-        spec = CombinationSpec(members=tuple(specs[i] for i in keep), weights=kept_weights)
-        members = [fits[i] for i in keep]
-        elapsed = time.perf_counter() - start
-        combined = CombinationFitted.of(spec, y, periods[keep[0]], members, elapsed)
-        return cast(Fitted, combined), dropped
-    return CombinedFitted(tuple(fits[i] for i in keep), label, kept_weights), dropped
-
-
 def backtest_auto(
     y: pd.Series,
     seasonal_period: int,
@@ -489,7 +325,7 @@ def backtest_auto(
 
     check_metric(metric)
     profile = profile_series(y, seasonal_period, diagnostics)
-    specs = _with_benchmarks(list(candidates_for(profile, thorough).specifications), profile)
+    specs = with_benchmarks(list(candidates_for(profile, thorough).specifications), profile)
     return backtest(
         y,
         specs,
@@ -500,5 +336,5 @@ def backtest_auto(
         coverage=coverage,
         metric=metric,
         map_fn=map_fn,
-        periods=_periods(specs, profile),
+        periods=model_periods(specs, profile),
     )

@@ -53,7 +53,7 @@ def test_auto_leaves_out_a_member_whose_log_scale_bounds_explode() -> None:
 def test_refit_drops_an_implausible_member_and_renormalises(monkeypatch) -> None:  # type: ignore[no-untyped-def]
     from service.core.models.drift import DriftSpec
     from service.core.models.naive import NaiveSpec
-    from service.core.selection import auto as selection
+    from service.core.selection import refit as selection
     from service.core.selection.candidates import profile_series
 
     y = pd.Series(
@@ -68,13 +68,13 @@ def test_refit_drops_an_implausible_member_and_renormalises(monkeypatch) -> None
 
     monkeypatch.setattr(selection, "implausible", second_explodes)
     profile = profile_series(y, 1)
-    fitted, dropped = selection._refit(
+    fitted, dropped = selection.refit(
         y, [NaiveSpec(), DriftSpec()], (0.6, 0.4), profile, "mix", (3, (0.8,))
     )
     assert [w.code for w in dropped] == ["member_dropped"]
     assert fitted.describe().label == "Naive"
     calls.clear()
-    both, none_dropped = selection._refit(
+    both, none_dropped = selection.refit(
         y, [NaiveSpec(), DriftSpec(), NaiveSpec()], (0.5, 0.25, 0.25), profile, "mix", (3, (0.8,))
     )
     assert none_dropped and both.describe().parameters["weight[0]"] == 2 / 3

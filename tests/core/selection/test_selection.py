@@ -9,12 +9,14 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from service.api.render import selection_body
 from service.core.errors import RequestError
 from service.core.evaluation.origins import calibration_plan, selection_plan
 from service.core.models.drift import DriftSpec
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
-from service.core.selection.auto import AutoForecast, backtest_auto, select
+from service.core.selection.auto import backtest_auto, select
+from service.core.selection.outcome import AutoForecast
 
 
 def monthly(values: np.ndarray) -> pd.Series:
@@ -34,7 +36,7 @@ def seasonal_result() -> AutoForecast:
 
 def test_selection_is_deterministic(seasonal_result: AutoForecast) -> None:
     again = select(seasonal_series(), 12, 12, coverage=(0.95, 0.8))
-    assert again.selection.to_dict() == seasonal_result.selection.to_dict()
+    assert selection_body(again.selection) == selection_body(seasonal_result.selection)
     np.testing.assert_array_equal(again.forecast.point, seasonal_result.forecast.point)
 
 
@@ -65,7 +67,7 @@ def test_seasonal_series_gets_a_seasonal_model(seasonal_result: AutoForecast) ->
 def test_selection_reports_ranking_skill_and_calibration(seasonal_result: AutoForecast) -> None:
     result = seasonal_result
     sel = result.selection
-    data = json.loads(json.dumps(sel.to_dict(), allow_nan=False))
+    data = json.loads(json.dumps(selection_body(sel), allow_nan=False))
     assert data["metric"] == "mase" and data["ranking"]
     scores = [r["score"] for r in data["ranking"]]
     assert scores == sorted(scores)
@@ -261,7 +263,6 @@ def test_long_series_are_estimated_on_their_latest_points_with_a_warning(
     y = seasonal_series(n=90)
     result = select(y, 12, 6)
     assert result.selection.observations_used == 60
-    assert result.selection.to_dict()["observations_used"] == 60
     assert "history_shortened" in {w.code for w in result.warnings}
     assert result.forecast.index[0] == y.index[-1] + y.index.freq
     # Four seasons are always kept, whatever the cap.

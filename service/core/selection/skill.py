@@ -1,0 +1,44 @@
+"""The benchmarks every automatic selection is measured against, and the skill over them."""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from service.core.models.base import Specification, family_of
+from service.core.models.naive import NaiveSpec
+from service.core.models.seasonal_naive import SeasonalNaiveSpec
+from service.core.selection.candidates import SeriesProfile
+
+SKILL_MARGIN = 0.05
+"""A random walk keeps the naive forecast unless the chosen model beats it by this share."""
+NO_SKILL_MESSAGE = (
+    "The series behaves like a random walk and no candidate beat the naive forecast by 5 % in "
+    "the backtest, so the naive forecast (the last value) is returned. A low error here does "
+    "not mean a useful model: it only says the next value is close to the current one."
+)
+
+
+def with_benchmarks(specs: list[Specification], profile: SeriesProfile) -> list[Specification]:
+    """Naive, and seasonal naive when seasonal, are always evaluated: skill needs them."""
+    families = {family_of(s) for s in specs}
+    out = list(specs)
+    if "naive" not in families:
+        out.insert(0, NaiveSpec())
+    if profile.seasonal and "seasonal_naive" not in families:
+        out.insert(1, SeasonalNaiveSpec())
+    return out
+
+
+def benchmark_of(specs: Sequence[Specification], profile: SeriesProfile) -> Specification:
+    """Seasonal naive for a seasonal series, naive otherwise."""
+    wanted = "seasonal_naive" if profile.seasonal else "naive"
+    return next(s for s in specs if family_of(s) == wanted)
+
+
+def skill(score: float, benchmark: float) -> float | None:
+    """1 - score / benchmark; None when either is not finite or the benchmark is not positive."""
+    if not (np.isfinite(score) and np.isfinite(benchmark)) or benchmark <= 0:
+        return None
+    return float(1.0 - score / benchmark)
