@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from service.core.data.frequency import default_seasonal_period, frequency_name, parse_frequency
+from service.core.data.grid import regular_grid
 from service.core.errors import FieldProblem, SeriesError
 
 MissingPolicy = Literal["interpolate", "keep", "error"]
@@ -174,7 +175,7 @@ def _build_index(
             raise SeriesError("frequency is required with start", field="frequency")
         offset = parse_frequency(frequency, first, "frequency")
         _check_anchor(first, offset, "start")
-        grid = pd.date_range(start=first, periods=n, freq=offset)
+        grid = regular_grid(first, n, offset)
         return grid, grid
     if isinstance(timestamps, (str, bytes)) or not isinstance(timestamps, Sequence):
         raise SeriesError("timestamps must be a list of ISO 8601 strings", field="timestamps")
@@ -287,7 +288,9 @@ def _check_anchor(first: pd.Timestamp, offset: pd.DateOffset, field: str) -> Non
 def _with_grid_check(
     index: pd.DatetimeIndex, offset: pd.DateOffset
 ) -> tuple[pd.DatetimeIndex, pd.DatetimeIndex]:
-    grid = pd.date_range(start=index[0], end=index[-1], freq=offset)
+    grid = regular_grid(index[0], len(index), offset)
+    if not grid.equals(index):  # gaps: the grid runs from the first timestamp to the last
+        grid = pd.date_range(start=index[0], end=index[-1], freq=offset)
     position = grid.get_indexer(index)
     if (position < 0).any():
         i = int(np.flatnonzero(position < 0)[0])
