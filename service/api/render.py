@@ -12,13 +12,14 @@ import pandas as pd
 
 from service.core.applicability import NotApplicable
 from service.core.diagnostics.autocorrelation import BAND_NOTE, Correlogram
-from service.core.diagnostics.differencing import REGULAR_RULE, SEASONAL_RULE, DifferencingOrders
+from service.core.diagnostics.differencing import SEASONAL_RULE, DifferencingOrders
 from service.core.diagnostics.differencing import label as difference_label
 from service.core.diagnostics.random_walk import RULE as RANDOM_WALK_RULE
 from service.core.diagnostics.random_walk import RandomWalkVerdict
 from service.core.diagnostics.report import Diagnostics, Seasonality
 from service.core.diagnostics.seasonality import OUTLIER_RULE, Outliers
 from service.core.diagnostics.stationarity import VERDICT_RULE, HypothesisTest, Stationarity
+from service.core.diagnostics.unit_root import PROCEDURE, UnitRootDecision, power_evidence
 from service.core.errors import FitError
 from service.core.evaluation.backtest import (
     BacktestReport,
@@ -162,7 +163,23 @@ def _stationarity(s: Stationarity | NotApplicable) -> dict[str, Any]:
         "kpss_trend": hypothesis_test(s.kpss_trend),
         "verdict": s.verdict,
         "decision_rule": VERDICT_RULE,
+        "unit_root_procedure": unit_root_procedure(s.procedure),
         "notes": s.notes,
+    }
+
+
+def unit_root_procedure(d: UnitRootDecision | NotApplicable | None) -> dict[str, Any] | None:
+    """The sequential unit-root procedure: its steps, decision and the power of the length."""
+    if d is None or isinstance(d, NotApplicable):
+        return None if d is None else not_applicable(d)
+    return {
+        "procedure": PROCEDURE,
+        "steps": [dataclasses.asdict(step) for step in d.steps],
+        "unit_root": d.unit_root,
+        "deterministic_terms": _TERMS[d.terms],
+        "trend_or_drift": d.trending,
+        "estimated_coefficient": d.coefficient,
+        "power": power_evidence(d),
     }
 
 
@@ -173,7 +190,7 @@ def _differencing(d: DifferencingOrders | NotApplicable) -> dict[str, Any]:
         "regular_differences": d.regular,
         "seasonal_differences": d.seasonal,
         "seasonal_period": d.seasonal_period,
-        "regular_rule": REGULAR_RULE,
+        "regular_rule": d.regular_rule,
         "seasonal_rule": SEASONAL_RULE,
         "steps": [dataclasses.asdict(s) for s in d.steps],
         "differenced_series": difference_label(d.regular, d.seasonal, d.seasonal_period),
@@ -208,13 +225,20 @@ def _random_walk(v: RandomWalkVerdict | NotApplicable) -> dict[str, Any]:
         return not_applicable(v)
     return {
         "applicable": True,
+        "verdict": v.grade,
         "is_random_walk": v.is_random_walk,
+        "is_seasonal_random_walk": v.is_seasonal_random_walk,
         "with_drift": v.with_drift,
+        "forecast_to_beat": v.forecast_to_beat,
         "differences_to_stationarity": v.differences,
         "reason": v.reason,
         "rule": RANDOM_WALK_RULE,
         "tolerated_lags": v.tolerated_lags,
-        "evidence": v.evidence,
+        "evidence": (
+            v.evidence
+            if v.decision is None
+            else {**v.evidence, "unit_root": unit_root_procedure(v.decision)}
+        ),
     }
 
 

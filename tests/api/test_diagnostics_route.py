@@ -19,6 +19,16 @@ def test_the_demo_fuel_index_is_called_a_random_walk(client: Any) -> None:
     body = response.json()
     assert body["random_walk"]["is_random_walk"] is True
     assert body["random_walk"]["reason"]
+    assert body["random_walk"]["verdict"] in ("random_walk", "behaves_like_random_walk")
+    assert body["random_walk"]["forecast_to_beat"] in ("naive", "drift")
+    procedure = body["stationarity"]["unit_root_procedure"]
+    assert (
+        procedure["unit_root"] is True
+        and body["stationarity"]["verdict"] == "difference_stationary"
+    )
+    assert procedure["power"]["observations"] == body["summary"]["length"]
+    assert 0 < procedure["power"]["largest_distinguishable_coefficient"] < 1
+    assert body["random_walk"]["evidence"]["unit_root"] == procedure
     assert any("random walk" in f for f in body["findings"])
     assert body["data_hash"].startswith("sha256:")
 

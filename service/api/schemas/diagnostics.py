@@ -67,15 +67,59 @@ class HypothesisTestOut(Out):
 TestOrNot = HypothesisTestOut | NotApplicableOut
 
 
+class ProcedureStepOut(Out):
+    """One step of the unit-root procedure: the question, the test and the answer."""
+
+    question: str
+    test: str
+    statistic: float | None
+    critical_value: float | None
+    p_value: float | None
+    answer: str
+
+
+class PowerOut(Out):
+    """What a series of this length can tell apart from a random walk, and how we know."""
+
+    observations: int
+    smallest_distinguishable_root: float | None
+    largest_distinguishable_coefficient: float | None
+    half_life_steps: float | None = Field(
+        description="Steps a series with that coefficient takes to close half of a gap."
+    )
+    definition: str
+    source: str
+
+
+class UnitRootProcedureOut(Out):
+    """The sequential unit-root procedure: deterministic terms chosen on evidence."""
+
+    procedure: str
+    steps: list[ProcedureStepOut]
+    unit_root: bool
+    deterministic_terms: Literal["constant", "constant_and_trend"]
+    trend_or_drift: bool
+    estimated_coefficient: float | None
+    power: PowerOut
+
+
 class StationarityOut(Out):
-    """ADF (constant; constant and trend), KPSS (level; trend) and the combined verdict."""
+    """ADF (constant; constant and trend), KPSS (level; trend) and the procedure's verdict."""
 
     adf_constant: TestOrNot
     adf_constant_and_trend: TestOrNot
     kpss_level: TestOrNot
     kpss_trend: TestOrNot
-    verdict: str
+    verdict: Literal[
+        "stationary",
+        "trend_stationary",
+        "difference_stationary",
+        "seasonal_difference_stationary",
+        "inconclusive",
+        "not_applicable",
+    ]
     decision_rule: str
+    unit_root_procedure: UnitRootProcedureOut | NotApplicableOut | None
     notes: list[str]
 
 
@@ -149,15 +193,6 @@ class AutocorrelationOut(Out):
     differenced: DifferencedCorrelogramOut | DifferencedNotApplicableOut
 
 
-class AdfEvidenceOut(Out):
-    """An ADF test as evidence of the random-walk verdict."""
-
-    statistic: float | None
-    p_value: float | None
-    lags_used: int
-    rejects_unit_root_at_5_percent: bool
-
-
 class DriftOut(Out):
     """One-sample t-test of the mean difference against zero."""
 
@@ -168,23 +203,30 @@ class DriftOut(Out):
 
 
 class RandomWalkEvidenceOut(Sparse):
-    """The tests the verdict rests on; later steps are absent when an earlier one decided."""
+    """The tests the verdict rests on (absent for a straight line)."""
 
-    adf_level: AdfEvidenceOut
-    adf_differences: AdfEvidenceOut | None = None
+    observations: int | None = None
     ljung_box_differences: LjungBoxOut | None = None
-    significant_acf_lags_of_differences: list[int] | None = None
-    acf_lags_examined: int | None = None
-    chance_allowance: int | None = None
     mean_difference: DriftOut | None = None
+    unit_root: UnitRootProcedureOut | None = None
+    ljung_box_seasonal_differences: LjungBoxOut | None = None
+    mean_seasonal_difference: DriftOut | None = None
+    seasonal_lag_autocorrelation: float | None = None
 
 
 class RandomWalkOut(Out):
-    """Whether the series is a random walk, the evidence and a one-sentence reason."""
+    """Is forecasting this series worth more than its last value? The graded verdict."""
 
     applicable: Literal[True]
-    is_random_walk: bool
+    verdict: Literal[
+        "random_walk", "behaves_like_random_walk", "seasonal_random_walk", "not_random_walk"
+    ]
+    is_random_walk: bool = Field(description="random_walk or behaves_like_random_walk.")
+    is_seasonal_random_walk: bool
     with_drift: bool
+    forecast_to_beat: Literal["naive", "drift", "seasonal_naive"] | None = Field(
+        description="The benchmark no model is expected to beat by much, when there is one."
+    )
     differences_to_stationarity: int | None
     reason: str
     rule: str

@@ -15,8 +15,10 @@ import pandas as pd
 from service.core.applicability import NotApplicable, plain_float
 from service.core.checks import check_positive_int
 from service.core.data.filling import check_series, fill_gaps
+from service.core.diagnostics.random_walk import RandomWalkVerdict
 from service.core.diagnostics.seasonality import Decomposition, decompose, seasonal_strength
 from service.core.diagnostics.stationarity import HypothesisTest, adf_test, applicability, kpss_test
+from service.core.diagnostics.unit_root import UnitRootDecision, integration_order
 
 SEASONAL_THRESHOLD = 0.64
 MAX_REGULAR = 2
@@ -24,6 +26,13 @@ REGULAR_RULE = (
     "d = the number of successive KPSS (level) tests that reject stationarity at 5 %, at most 2, "
     "each on the previous difference (Hyndman & Khandakar 2008); run on the seasonally "
     "differenced series when D = 1"
+)
+STORY_REGULAR_RULE = (
+    "d from the unit-root procedure and the random-walk verdict: 0 for a stationary series, a "
+    "seasonal random walk or a slowly mean-reverting one; 1 for a random walk; otherwise, with "
+    "a unit root, 1, or 2 when ADF (constant) keeps a unit root in the differences at 5 %; when "
+    "D = 1 and a unit root remains, the KPSS search on the seasonally differenced series "
+    "(Hyndman & Khandakar 2008). The automatic ARIMA search runs its own KPSS search"
 )
 SEASONAL_RULE = (
     "D = 1 when the STL seasonal strength max(0, 1 - Var(R)/Var(S+R)) of Wang, Smith & "
@@ -66,6 +75,7 @@ class DifferencingOrders:
     adf_after: HypothesisTest | NotApplicable
     kpss_after: HypothesisTest | NotApplicable
     notes: tuple[str, ...]
+    regular_rule: str = REGULAR_RULE
 
     @property
     def stationary_after(self) -> bool | None:
@@ -81,7 +91,7 @@ class DifferencingOrders:
             "regular_differences": self.regular,
             "seasonal_differences": self.seasonal,
             "seasonal_period": self.seasonal_period,
-            "regular_rule": REGULAR_RULE,
+            "regular_rule": self.regular_rule,
             "seasonal_rule": SEASONAL_RULE,
             "steps": [s.to_dict() for s in self.steps],
             "differenced_series": label(self.regular, self.seasonal, self.seasonal_period),
@@ -187,3 +197,50 @@ def label(regular: int, seasonal: int, seasonal_period: int) -> str:
     if seasonal:
         parts.append(f"Δ{seasonal_period} ")
     return "".join(parts) + "y"
+
+
+def story_orders(
+    x: np.ndarray,
+    seasonal_period: int,
+    decomposition: Decomposition | NotApplicable,
+    notes: tuple[str, ...],
+    decision: UnitRootDecision | NotApplicable,
+    walk: RandomWalkVerdict | NotApplicable,
+) -> DifferencingOrders:
+    """The orders the diagnostics report: the same story as the unit-root decision and the
+    random-walk verdict; the KPSS search (``orders_from``) where those leave d open."""
+    searched = orders_from(x, seasonal_period, decomposition, notes)
+    if isinstance(decision, NotApplicable):
+        return searched
+    m = seasonal_period
+    seasonal, regular = searched.seasonal, searched.regular
+    why: str
+    if isinstance(walk, RandomWalkVerdict) and walk.is_seasonal_random_walk:
+        seasonal, regular, why = 1, 0, "seasonal random walk: one seasonal difference is white"
+    elif isinstance(walk, RandomWalkVerdict) and walk.is_random_walk:
+        seasonal = 0
+        regular = 1 if decision.unit_root else 0
+        why = "random walk: one difference is white" if regular else "slowly mean-reverting"
+    elif not decision.unit_root:
+        regular, why = 0, f"{decision.verdict}: no regular difference"
+    elif seasonal:
+        regular = searched.regular
+        why = "unit root and a seasonal difference: the KPSS search decides d"
+    else:
+        regular = integration_order(np.diff(x))
+        why = f"unit root: {regular} regular difference(s)"
+    steps = (
+        *searched.steps,
+        DifferencingStep(label(regular, seasonal, m), "unit_root_procedure", None, None, None, why),
+    )
+    current = difference(x, regular, seasonal, m)
+    return DifferencingOrders(
+        regular=regular,
+        seasonal=seasonal,
+        seasonal_period=m,
+        steps=steps,
+        adf_after=adf_test(current, "c"),
+        kpss_after=kpss_test(current, "c"),
+        notes=searched.notes,
+        regular_rule=STORY_REGULAR_RULE,
+    )

@@ -30,7 +30,7 @@ def findings(d: Diagnostics) -> tuple[str, ...]:
         out.append(f"No statistical test applies: {d.stationarity.reason}.")
         return tuple(out)
     out += _random_walk(d.random_walk)
-    out += _stationarity(d.stationarity)
+    out += _stationarity(d.stationarity, d.random_walk)
     if isinstance(d.differencing, DifferencingOrders):
         out.append(_differencing(d.differencing))
     out += _seasonality(d)
@@ -44,22 +44,14 @@ def findings(d: Diagnostics) -> tuple[str, ...]:
 
 
 def _random_walk(v: RandomWalkVerdict | NotApplicable) -> list[str]:
-    if isinstance(v, NotApplicable) or not v.is_random_walk:
+    """The verdict's own reason: written for a reader who is not a statistician."""
+    if isinstance(v, NotApplicable):
         return []
-    if v.with_drift:
-        sentence = (
-            "Differences of this series behave like white noise around a non-zero mean: it is "
-            "a random walk with drift; expect drift forecasts to be as good as any model."
-        )
-    else:
-        sentence = (
-            "Differences of this series behave like white noise: it is a random walk; expect "
-            "naive forecasts to be as good as any model."
-        )
-    if v.tolerated_lags:
+    sentence = v.reason
+    if v.is_random_walk and v.tolerated_lags:
         sentence += (
-            f" Isolated significant lags ({', '.join(map(str, v.tolerated_lags))}) are within "
-            "what chance explains and do not change this."
+            f" The few step-to-step correlations that stand out (lags "
+            f"{', '.join(map(str, v.tolerated_lags))}) are no more than chance produces."
         )
     return [sentence]
 
@@ -67,18 +59,26 @@ def _random_walk(v: RandomWalkVerdict | NotApplicable) -> list[str]:
 _VERDICTS = {
     "stationary": "The series is stationary: it returns to a constant mean.",
     "trend_stationary": (
-        "The series is stationary around a deterministic trend: a trend model suits it better "
-        "than differencing."
+        "The series is stationary around a straight-line trend: forecast it with the trend "
+        "rather than by differencing."
     ),
     "difference_stationary": (
-        "The series has a unit root: its level wanders, so it must be differenced (or modelled "
-        "with a stochastic trend)."
+        "The series has a unit root: its level wanders without returning to a fixed mean, so "
+        "models work on its changes from step to step."
     ),
-    "inconclusive": "The unit-root and stationarity tests disagree: treat the verdict as open.",
+    "seasonal_difference_stationary": (
+        "Its seasonal pattern wanders from one year to the next: models work on the change "
+        "from the same season a year before."
+    ),
+    "inconclusive": (
+        "The unit-root tests leave open whether the series wanders or returns to a mean."
+    ),
 }
 
 
-def _stationarity(s: Stationarity) -> list[str]:
+def _stationarity(s: Stationarity, walk: RandomWalkVerdict | NotApplicable) -> list[str]:
+    if s.verdict == "stationary" and isinstance(walk, RandomWalkVerdict):
+        return []  # the random-walk sentence already says that it returns to its mean
     sentence = _VERDICTS.get(s.verdict)
     return [sentence] if sentence else []
 

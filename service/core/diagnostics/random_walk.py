@@ -1,167 +1,285 @@
-"""Is the series a random walk? The classical procedure, with its evidence and reason.
+"""Is forecasting this series worth more than repeating its last value? The graded verdict.
 
-Difference until the ADF test (constant) rejects a unit root, at most twice; a series that
-is stationary at level is not a random walk. Otherwise the first differences must behave like
-white noise: Ljung-Box does not reject at 5 %, and the ACF has no more lags outside the band
-than chance explains (about one in twenty), none of them adjacent. A drift is a mean of the
-differences significantly different from zero by a one-sample t-test.
+Read from the unit-root decision (``unit_root``) and the whiteness of the differences:
+
+- ``seasonal_random_walk``: one seasonal difference leaves white noise (Ljung-Box at 1 % up to
+  at least lag m) while the first differences do not; the value one season ago (seasonal
+  naive) is the forecast to beat;
+- ``random_walk``: a unit root, uncorrelated differences, and a series long enough that the
+  test would have told a stationary series that matters apart from a random walk: every AR(1)
+  coefficient it cannot catch 4 times in 5 is at least CLOSE_TO_ONE;
+- ``behaves_like_random_walk``: the same on a shorter series, where a slowly mean-reverting
+  series would look the same; or a stationary series so persistent (estimated coefficient at
+  least CLOSE_TO_ONE) that the last value is within 5 % of the best one-step forecast;
+- ``not_random_walk``: stationary, or autocorrelated differences a model can use.
+
+The naive (or drift, with a drift; seasonal naive for a seasonal random walk) forecast is the
+one to beat whenever the verdict is one of the first three.
 """
 
 from __future__ import annotations
 
-import itertools
-from dataclasses import dataclass
+import math
+from dataclasses import asdict, dataclass, replace
 from typing import Any
 
 import numpy as np
 from scipy import stats
 
 from service.core.applicability import NotApplicable, plain_float
+from service.core.diagnostics import symmetric_test
 from service.core.diagnostics.autocorrelation import (
-    Correlogram,
-    correlogram,
-    default_max_lag,
+    LjungBox,
     ljung_box,
-    primary_ljung_box_lag,
+    sample_acf,
+    significant_lags,
+    white_noise_band,
 )
-from service.core.diagnostics.stationarity import LEVEL, HypothesisTest, adf_test
+from service.core.diagnostics.unit_root import (
+    LEVEL_DRIFT,
+    LEVEL_WHITE,
+    UnitRootDecision,
+    integration_order,
+)
+
+CLOSE_TO_ONE = 0.905
+"""AR(1) coefficient from which the naive forecast's one-step mean squared error is within 5 %
+of the best forecast's: 2/(1 + φ) <= 1.05, the margin of auto's naive guard."""
 
 RULE = (
-    "difference until ADF (constant) rejects a unit root at 5 % (at most twice); a random walk "
-    "needs exactly one difference whose ACF is white noise: Ljung-Box p >= 0.05 at lag 10 "
-    "(2m when seasonal, at most n/5), and of the first L ACF lags no more outside "
-    "±1.959964/√n than the 95th percentile of Binomial(L, 0.05), none adjacent; with drift "
-    "when a t-test finds the mean difference non-zero at 5 %"
+    "seasonal_random_walk when m > 1, n >= 6m, Ljung-Box at 1 % finds the seasonal "
+    "differences white, their lag-m autocorrelation is not below -2.576/√n (a stable season "
+    "differenced away), and the first differences are not white; otherwise random_walk when "
+    "the unit-root procedure keeps the unit root, Ljung-Box at 1 % finds the first differences "
+    "white and the length tells every AR(1) coefficient below 0.905 apart from 1 (4 times in "
+    "5); behaves_like_random_walk when the same holds on a shorter series, or when the series "
+    "is stationary with white differences and an estimated coefficient of at least 0.905 (the "
+    "naive forecast then within 5 % of the best one-step mean squared error, 2/(1 + φ)); "
+    "otherwise not_random_walk. Drift: a t-test on the mean difference at 5 %"
 )
+
+GRADES = ("random_walk", "behaves_like_random_walk", "seasonal_random_walk", "not_random_walk")
 
 
 @dataclass(frozen=True)
 class RandomWalkVerdict:
-    """The verdict, the evidence it rests on and a one-sentence reason."""
+    """The graded verdict, the forecast to beat, the evidence and a plain reason."""
 
-    is_random_walk: bool
+    grade: str
     with_drift: bool
     differences: int | None
     reason: str
     evidence: dict[str, Any]
     tolerated_lags: tuple[int, ...]
+    decision: UnitRootDecision | None = None
+    """The unit-root decision the verdict read (None for a straight line)."""
+
+    @property
+    def is_random_walk(self) -> bool:
+        """True for random_walk and behaves_like_random_walk (for model selection)."""
+        return self.grade in ("random_walk", "behaves_like_random_walk")
+
+    @property
+    def is_seasonal_random_walk(self) -> bool:
+        """True when one seasonal difference leaves white noise."""
+        return self.grade == "seasonal_random_walk"
+
+    @property
+    def forecast_to_beat(self) -> str | None:
+        """The benchmark no model is expected to beat by much, or None."""
+        if self.is_seasonal_random_walk:
+            return "seasonal_naive"
+        if self.is_random_walk:
+            return "drift" if self.with_drift else "naive"
+        return None
 
     def to_dict(self) -> dict[str, Any]:
         """The wire form."""
         return {
             "applicable": True,
+            "verdict": self.grade,
             "is_random_walk": self.is_random_walk,
+            "is_seasonal_random_walk": self.is_seasonal_random_walk,
             "with_drift": self.with_drift,
+            "forecast_to_beat": self.forecast_to_beat,
             "differences_to_stationarity": self.differences,
             "reason": self.reason,
             "rule": RULE,
             "tolerated_lags": list(self.tolerated_lags),
-            "evidence": self.evidence,
+            "evidence": {k: _plain(v) for k, v in self.evidence.items()},
         }
 
 
-def chance_allowance(lags: int) -> int:
-    """How many of L white-noise ACF estimates may fall outside a 5 % band by chance.
-
-    The 95th percentile of Binomial(L, 0.05): expected about one in twenty, and more than
-    this happens by chance less than one time in twenty.
-    """
-    return int(stats.binom.ppf(0.95, lags, 0.05))
+OVERDIFFERENCED_Z = 2.575829
+"""Two-sided 1 % normal quantile: a lag-m autocorrelation of the seasonal differences below
+-2.576/√n marks a stable season differenced once too often (the pure case gives -0.5)."""
 
 
-def isolated(lags: tuple[int, ...]) -> bool:
-    """Whether no two of the lags are adjacent."""
-    return all(b - a > 1 for a, b in itertools.pairwise(lags))
+@dataclass(frozen=True)
+class SeasonalCheck:
+    """Ljung-Box on the seasonal differences, their lag-m autocorrelation and their drift."""
+
+    white: LjungBox
+    seasonal_lag_autocorrelation: float
+    observations: int
+    drift: dict[str, Any]
+
+    @property
+    def uncorrelated(self) -> bool:
+        """Seasonal differences like white noise: Ljung-Box at 1 % does not reject, and the
+        lag-m autocorrelation is not the negative one of a stable season differenced away."""
+        floor = -OVERDIFFERENCED_Z / math.sqrt(self.observations)
+        return self.white.p_value >= LEVEL_WHITE and self.seasonal_lag_autocorrelation >= floor
 
 
-def random_walk(
-    x: np.ndarray, seasonal_period: int, level: HypothesisTest | NotApplicable | None = None
+def seasonal_check(x: np.ndarray, seasonal_period: int) -> SeasonalCheck | None:
+    """The seasonal-difference check, or None when m = 1 or the series is under 6 seasons
+    (Ljung-Box at n/5 lags would not reach lag m)."""
+    m = seasonal_period
+    if m <= 1 or x.size < 6 * m:
+        return None
+    seasonal = x[m:] - x[:-m]
+    if not np.any(seasonal != seasonal[0]):
+        return None
+    lag = max(m, min(2 * m, seasonal.size // 5))
+    acf = sample_acf(seasonal, lag)
+    box = ljung_box(acf, seasonal.size, lag)
+    return SeasonalCheck(box, float(acf[m - 1]), int(seasonal.size), _drift(seasonal))
+
+
+def random_walk(x: np.ndarray, seasonal_period: int) -> RandomWalkVerdict | NotApplicable:
+    """The verdict of a gap-free series, running the unit-root procedure itself."""
+    from service.core.diagnostics.stationarity import stationarity
+
+    decision = stationarity(x, (), seasonal_period).procedure
+    if decision is None:
+        decision = NotApplicable("the unit-root tests do not apply to this series")
+    return judge(x, seasonal_period, decision, seasonal_check(x, seasonal_period))
+
+
+def judge(
+    x: np.ndarray,
+    seasonal_period: int,
+    decision: UnitRootDecision | NotApplicable,
+    seasonal: SeasonalCheck | None,
 ) -> RandomWalkVerdict | NotApplicable:
-    """The random-walk verdict of a gap-free series (``level``: its ADF test, if already run)."""
+    """The verdict from the unit-root decision and the seasonal check already made."""
     if x.size > 2 and not np.any(np.diff(x) != x[1] - x[0]):
         return RandomWalkVerdict(
-            False,
+            "not_random_walk",
             False,
             None,
-            "The differences are constant: the series is a deterministic straight line.",
+            "The series is a straight line: every step is the same, so it is not a random walk.",
             {},
             (),
         )
-    level = adf_test(x, "c") if level is None else level
-    if isinstance(level, NotApplicable):
-        return level
-    evidence: dict[str, Any] = {"adf_level": _adf_evidence(level)}
-    if level.rejects:
-        return RandomWalkVerdict(
-            False,
-            False,
-            0,
-            "ADF rejects a unit root at level: the series is stationary, not a random walk.",
-            evidence,
-            (),
-        )
+    if isinstance(decision, NotApplicable):
+        return decision
+    return replace(_judged(x, seasonal_period, decision, seasonal), decision=decision)
+
+
+def _judged(
+    x: np.ndarray,
+    seasonal_period: int,
+    decision: UnitRootDecision,
+    seasonal: SeasonalCheck | None,
+) -> RandomWalkVerdict:
     steps = np.diff(x)
-    first = adf_test(steps, "c")
-    if isinstance(first, NotApplicable):
-        return NotApplicable(f"the differenced series cannot be tested: {first.reason}")
-    evidence["adf_differences"] = _adf_evidence(first)
-    if not first.rejects:
-        return RandomWalkVerdict(
-            False,
-            False,
-            2,
-            "ADF does not reject a unit root even in the first differences: the series is "
-            "integrated of order two, not a random walk.",
-            evidence,
-            (),
+    evidence: dict[str, Any] = {
+        "observations": int(x.size),
+        "ljung_box_differences": asdict(decision.differences_white),
+        "mean_difference": _drift(steps),
+    }
+    if seasonal is not None:
+        evidence["ljung_box_seasonal_differences"] = asdict(seasonal.white)
+        evidence["mean_seasonal_difference"] = seasonal.drift
+        evidence["seasonal_lag_autocorrelation"] = plain_float(
+            seasonal.seasonal_lag_autocorrelation
         )
-    return _judge_differences(steps, seasonal_period, evidence)
-
-
-def _judge_differences(
-    steps: np.ndarray, seasonal_period: int, evidence: dict[str, Any]
-) -> RandomWalkVerdict | NotApplicable:
-    """White-noise check and drift test on the first differences."""
+        if seasonal.uncorrelated and not decision.uncorrelated_differences:
+            return _seasonal(seasonal, seasonal_period, evidence)
     n = steps.size
-    acf = correlogram(steps, max(1, default_max_lag(n, seasonal_period)), seasonal_period)
-    if not isinstance(acf, Correlogram):
-        return NotApplicable(f"the differences' autocorrelations are not available: {acf.reason}")
-    box = ljung_box(acf.acf, n, min(primary_ljung_box_lag(n, seasonal_period), acf.max_lag))
-    significant = acf.significant_acf_lags
-    allowance = chance_allowance(acf.max_lag)
-    by_chance = len(significant) <= allowance and isolated(significant)
-    white = box.p_value >= LEVEL and by_chance
-    drift = _drift(steps)
-    evidence["ljung_box_differences"] = box.to_dict()
-    evidence["significant_acf_lags_of_differences"] = list(significant)
-    evidence["acf_lags_examined"] = acf.max_lag
-    evidence["chance_allowance"] = allowance
-    evidence["mean_difference"] = drift
-    if not white:
-        why = (
-            f"Ljung-Box rejects white noise (p = {box.p_value:.3g} at lag {box.lag})"
-            if box.p_value < LEVEL
-            else f"{len(significant)} ACF lags lie outside the band ({_lags(significant)})"
-        )
+    band = white_noise_band(n)
+    lag = decision.differences_white.lag
+    significant = significant_lags(sample_acf(steps, lag), band)
+    if not decision.uncorrelated_differences:
+        box = decision.differences_white
+        differences = 0 if not decision.unit_root else integration_order(steps)
         return RandomWalkVerdict(
+            "not_random_walk",
             False,
-            False,
-            1,
-            f"The differences are autocorrelated ({why}): the series is not a random walk and "
-            "a model can exploit that structure.",
+            differences,
+            f"The step-to-step changes are correlated with each other (Ljung-Box p = "
+            f"{box.p_value:.2g} over {box.lag} lags), so the history holds a pattern a model can "
+            "use: this is not a random walk.",
             evidence,
             (),
         )
-    with_drift = bool(drift["p_value"] is not None and drift["p_value"] < LEVEL)
-    kind = "a random walk with drift" if with_drift else "a random walk"
-    tolerated = significant
-    reason = f"The differences behave like white noise: the series is {kind}."
-    if tolerated:
+    drift = decision.trending
+    return _graded(decision, drift, evidence, significant)
+
+
+def _graded(
+    decision: UnitRootDecision, drift: bool, evidence: dict[str, Any], lags: tuple[int, ...]
+) -> RandomWalkVerdict:
+    n = decision.observations
+    phi = decision.distinguishable_coefficient
+    what = "random walk with drift" if drift else "random walk"
+    last = "the last value plus the average step" if drift else "the last value"
+    if decision.unit_root:
+        if phi >= CLOSE_TO_ONE:
+            reason = (
+                f"The tests keep a unit root and the changes from step to step look like "
+                f"independent noise: this is a {what}. With {n} points the tests would have "
+                f"caught a series that drifts back to {'its trend' if drift else 'a mean'} "
+                "fast enough to matter, so no model is expected to forecast much better than "
+                f"{last}."
+            )
+            return RandomWalkVerdict("random_walk", drift, 1, reason, evidence, lags)
+        half = symmetric_test.half_life(phi)
         reason = (
-            f"The differences behave like white noise apart from isolated lag(s) "
-            f"{_lags(tolerated)}, which chance explains at 5 %: the series is {kind}."
+            f"The series behaves like a {what} over this history: the changes from step to "
+            f"step look like independent noise and the tests keep a unit root. With only {n} "
+            "points they cannot tell it from a series that slowly returns to "
+            f"{'its trend' if drift else 'a mean'} (one that closes half of any gap in "
+            f"{half:.0f} steps or more); either way {last} is as good a forecast as any model "
+            "at short horizons."
         )
-    return RandomWalkVerdict(True, with_drift, 1, reason, evidence, tolerated)
+        return RandomWalkVerdict("behaves_like_random_walk", drift, 1, reason, evidence, lags)
+    rho = decision.coefficient
+    if rho is not None and rho >= CLOSE_TO_ONE:
+        half = symmetric_test.half_life(rho)
+        when = f"about {half:.0f} steps" if half is not None else "many steps"
+        reason = (
+            f"The series returns to {'its trend' if drift else 'a mean'}, but so slowly "
+            f"(estimated coefficient {rho:.3f}: half of any gap closes in {when}) that "
+            f"{last} stays within 5 % of the best forecast one step ahead: it behaves like a "
+            f"{what} at short horizons."
+        )
+        return RandomWalkVerdict("behaves_like_random_walk", drift, 0, reason, evidence, lags)
+    where = "its trend" if decision.trending else "its mean"
+    reason = (
+        f"The series returns to {where}, so it is not a random walk: a model that uses the "
+        "pull back towards it forecasts better than the last value."
+    )
+    return RandomWalkVerdict("not_random_walk", False, 0, reason, evidence, ())
+
+
+def _seasonal(check: SeasonalCheck, m: int, evidence: dict[str, Any]) -> RandomWalkVerdict:
+    drift = bool(check.drift["p_value"] is not None and check.drift["p_value"] < LEVEL_DRIFT)
+    extra = ", moved on by the average yearly change," if drift else ""
+    reason = (
+        f"Each value is the value one season ({m} steps) earlier plus independent noise: "
+        f"this is a seasonal random walk{' with drift' if drift else ''}. The value one season "
+        f"ago{extra} (the seasonal naive forecast) is the one to beat."
+    )
+    return RandomWalkVerdict("seasonal_random_walk", drift, 0, reason, evidence, ())
+
+
+def _plain(value: Any) -> Any:
+    if isinstance(value, dict):
+        return {k: _plain(v) for k, v in value.items()}
+    return plain_float(value) if isinstance(value, float) else value
 
 
 def _drift(steps: np.ndarray) -> dict[str, Any]:
@@ -173,16 +291,3 @@ def _drift(steps: np.ndarray) -> dict[str, Any]:
         "p_value": plain_float(float(result.pvalue)),
         "degrees_of_freedom": int(steps.size - 1),
     }
-
-
-def _adf_evidence(test: HypothesisTest) -> dict[str, Any]:
-    return {
-        "statistic": plain_float(test.statistic),
-        "p_value": plain_float(test.p_value),
-        "lags_used": test.lags_used,
-        "rejects_unit_root_at_5_percent": test.rejects,
-    }
-
-
-def _lags(lags: tuple[int, ...]) -> str:
-    return ", ".join(map(str, lags)) if lags else "none"

@@ -7,7 +7,7 @@ why. Requested lags beyond what the series supports are clamped, with a note, no
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -24,9 +24,15 @@ from service.core.diagnostics.autocorrelation import (
     sample_acf,
     white_noise_band,
 )
-from service.core.diagnostics.differencing import DifferencingOrders, difference, label, orders_from
+from service.core.diagnostics.differencing import (
+    DifferencingOrders,
+    difference,
+    label,
+    orders_from,
+    story_orders,
+)
 from service.core.diagnostics.findings import findings
-from service.core.diagnostics.random_walk import RandomWalkVerdict, random_walk
+from service.core.diagnostics.random_walk import RandomWalkVerdict, judge, seasonal_check
 from service.core.diagnostics.seasonality import (
     CandidatePeriod,
     Decomposition,
@@ -39,6 +45,7 @@ from service.core.diagnostics.seasonality import (
     trend_strength,
 )
 from service.core.diagnostics.stationarity import Stationarity, stationarity
+from service.core.diagnostics.story import contradictions
 from service.core.errors import RequestError
 
 
@@ -172,18 +179,24 @@ def diagnose(
     if not np.any(x != x[0]):
         return _empty(summary, NotApplicable("the series is constant"), notes, x, seasonal_period)
     decomposition = decompose(x, seasonal_period)
-    tests = stationarity(x, notes)
-    orders = orders_from(x, seasonal_period, decomposition, notes)
+    tests = stationarity(x, notes, seasonal_period)
+    decision = tests.procedure
+    if decision is None:
+        decision = NotApplicable("the unit-root tests do not apply to this series")
+    walk = judge(x, seasonal_period, decision, seasonal_check(x, seasonal_period))
+    if isinstance(walk, RandomWalkVerdict) and walk.is_seasonal_random_walk:
+        tests = replace(tests, verdict="seasonal_difference_stationary")
+    orders = story_orders(x, seasonal_period, decomposition, notes, decision, walk)
     stationary_form = difference(x, orders.regular, orders.seasonal, seasonal_period)
     acf = _correlogram(x, seasonal_period, max_lag, notes)
-    return Diagnostics(
+    report = Diagnostics(
         summary=summary,
         stationarity=tests,
         differencing=orders,
         autocorrelation=acf,
         differenced_autocorrelation=_correlogram(stationary_form, seasonal_period, max_lag, ()),
         differenced_series=label(orders.regular, orders.seasonal, seasonal_period),
-        random_walk=random_walk(x, seasonal_period, tests.adf_constant),
+        random_walk=walk,
         seasonality=_seasonality(x, decomposition, filled.index, include_components),
         outliers=(
             outliers(decomposition.remainder, x, filled.observed, filled.index)
@@ -192,6 +205,11 @@ def diagnose(
         ),
         notes=notes,
     )
+    conflicts = contradictions(report)
+    if conflicts:
+        said = tuple(f"the sections disagree: {c}" for c in conflicts)
+        report = replace(report, notes=(*notes, *said))
+    return report
 
 
 def summarise(y: pd.Series, seasonal_period: int) -> Summary:

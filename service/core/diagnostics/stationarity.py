@@ -41,10 +41,11 @@ KPSS_LAG_RULE = (
 )
 
 VERDICT_RULE = (
-    "at 5 %: stationary if ADF (constant) rejects a unit root and KPSS (level) does not reject "
-    "stationarity; otherwise trend_stationary if ADF (constant and trend) rejects and KPSS "
-    "(trend) does not reject; otherwise difference_stationary if neither ADF rejects and KPSS "
-    "(level) rejects; otherwise inconclusive"
+    "the unit-root procedure's decision (unit_root_procedure: deterministic terms by the "
+    "sequence of Dolado, Jenkinson & Sosvilla-Rivero 1990): stationary, trend_stationary or "
+    "difference_stationary; seasonal_difference_stationary when the random-walk verdict finds "
+    "a seasonal random walk; inconclusive below 20 points. KPSS, whose null is the opposite, is "
+    "reported beside it as a check and a note says when it disagrees"
 )
 
 _NAMES = {"c": "constant", "ct": "constant_and_trend"}
@@ -92,7 +93,8 @@ class HypothesisTest:
 
 @dataclass(frozen=True)
 class Stationarity:
-    """ADF (constant; constant and trend), KPSS (level; trend) and the combined verdict."""
+    """ADF (constant; constant and trend), KPSS (level; trend) and the verdict of the unit-root
+    procedure (``unit_root.decide``), whose steps are reported with it."""
 
     adf_constant: HypothesisTest | NotApplicable
     adf_trend: HypothesisTest | NotApplicable
@@ -100,6 +102,8 @@ class Stationarity:
     kpss_trend: HypothesisTest | NotApplicable
     verdict: str
     notes: tuple[str, ...]
+    procedure: Any = None
+    """The ``UnitRootDecision`` (or a NotApplicable saying why there is none)."""
 
     def to_dict(self) -> dict[str, Any]:
         """The wire form, with the decision rule spelt out."""
@@ -319,31 +323,47 @@ def _autocovariances(e: np.ndarray, lags: int) -> np.ndarray:
     return np.asarray(np.fft.irfft(spectrum * np.conj(spectrum), size)[: lags + 1] / n)
 
 
-def stationarity(x: np.ndarray, notes: tuple[str, ...] = ()) -> Stationarity:
-    """All four tests on a finite series and the verdict of VERDICT_RULE."""
+def stationarity(
+    x: np.ndarray,
+    notes: tuple[str, ...] = (),
+    seasonal_period: int = 1,
+) -> Stationarity:
+    """All four tests on a finite series, the unit-root procedure and its verdict.
+
+    A seasonal random walk is invisible to the regular-unit-root procedure: the caller that
+    finds one (``report.diagnose``) replaces the verdict with seasonal_difference_stationary.
+    """
+    from service.core.diagnostics.unit_root import decide
+
     adf_c, adf_ct = adf_test(x, "c"), adf_test(x, "ct")
     kpss_c, kpss_ct = kpss_test(x, "c"), kpss_test(x, "ct")
-    return Stationarity(
-        adf_c, adf_ct, kpss_c, kpss_ct, verdict(adf_c, adf_ct, kpss_c, kpss_ct), notes
-    )
+    if any(isinstance(t, NotApplicable) for t in (adf_c, adf_ct, kpss_c, kpss_ct)):
+        return Stationarity(adf_c, adf_ct, kpss_c, kpss_ct, "not_applicable", notes)
+    decision = decide(x, seasonal_period, adf_c, adf_ct)
+    if isinstance(decision, NotApplicable):
+        verdict = "inconclusive"
+        notes = (*notes, f"no verdict: {decision.reason}")
+    else:
+        verdict = decision.verdict
+        kpss = kpss_ct if decision.terms == "ct" else kpss_c
+        assert isinstance(kpss, HypothesisTest)
+        notes = (*notes, *_kpss_note(verdict, kpss))
+    return Stationarity(adf_c, adf_ct, kpss_c, kpss_ct, verdict, notes, decision)
 
 
-def verdict(
-    adf_c: HypothesisTest | NotApplicable,
-    adf_ct: HypothesisTest | NotApplicable,
-    kpss_c: HypothesisTest | NotApplicable,
-    kpss_ct: HypothesisTest | NotApplicable,
-) -> str:
-    """stationary, trend_stationary, difference_stationary, inconclusive or not_applicable."""
-    tests = (adf_c, adf_ct, kpss_c, kpss_ct)
-    if not all(isinstance(t, HypothesisTest) for t in tests):
-        return "not_applicable"
-    assert isinstance(adf_c, HypothesisTest) and isinstance(adf_ct, HypothesisTest)
-    assert isinstance(kpss_c, HypothesisTest) and isinstance(kpss_ct, HypothesisTest)
-    if adf_c.rejects and not kpss_c.rejects:
-        return "stationary"
-    if adf_ct.rejects and not kpss_ct.rejects:
-        return "trend_stationary"
-    if not adf_c.rejects and not adf_ct.rejects and kpss_c.rejects:
-        return "difference_stationary"
-    return "inconclusive"
+def _kpss_note(verdict: str, kpss: HypothesisTest) -> tuple[str, ...]:
+    """A note when KPSS, testing the other way round, points the other way."""
+    stationary = verdict != "difference_stationary"
+    if stationary and kpss.rejects:
+        return (
+            "KPSS rejects stationarity although the unit-root procedure rejects a unit root: "
+            "common for a stationary series that returns to its mean slowly (KPSS with a short "
+            "bandwidth over-rejects there); the verdict follows the unit-root procedure",
+        )
+    if not stationary and not kpss.rejects:
+        return (
+            "KPSS does not reject stationarity although the unit-root procedure keeps a unit "
+            "root: at this length neither test can rule out the other's hypothesis; the "
+            "verdict follows the unit-root procedure",
+        )
+    return ()
