@@ -21,13 +21,8 @@ from service.core.diagnostics.seasonality import OUTLIER_RULE, Outliers
 from service.core.diagnostics.stationarity import VERDICT_RULE, HypothesisTest, Stationarity
 from service.core.diagnostics.unit_root import PROCEDURE, UnitRootDecision, power_evidence
 from service.core.errors import FitError
-from service.core.evaluation.backtest import (
-    BacktestReport,
-    ModelBacktest,
-    RankEntry,
-    Scores,
-)
 from service.core.evaluation.calibration import Calibration
+from service.core.evaluation.records import BacktestReport, ModelBacktest, RankEntry, Scores
 from service.core.models.base import Description, FitWarning, Forecast, as_dict
 from service.core.selection.outcome import Selection
 from service.runtime.jobs import ForecastAnswer

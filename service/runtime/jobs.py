@@ -14,8 +14,8 @@ import pandas as pd
 from service.core.data.regressors import RegressorSet
 from service.core.diagnostics.report import Diagnostics, diagnose
 from service.core.errors import WindvaneError
-from service.core.evaluation.backtest import BacktestReport
 from service.core.evaluation.backtest import backtest as run_backtest
+from service.core.evaluation.records import BacktestReport
 
 # The families: the automatic selection looks them up in the registry only when a request
 # runs (candidate rules, refit), so without this import the first request of a process paid

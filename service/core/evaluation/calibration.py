@@ -13,12 +13,11 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 
-from service.core.evaluation.backtest import ModelBacktest
 from service.core.evaluation.origins import MINIMUM_ORIGINS
+from service.core.evaluation.records import ModelBacktest
 from service.core.models.base import Forecast
 from service.core.models.intervals import Interval
 
@@ -60,27 +59,6 @@ class Calibration:
             if math.isclose(item.coverage, level):
                 return item.factor
         return 1.0
-
-    def to_dict(self) -> dict[str, Any]:
-        """JSON form for the response's ``selection.calibration``."""
-        return {
-            "origins": self.origins,
-            "applied": self.applied,
-            "reason": self.reason,
-            "levels": [
-                {
-                    "coverage": item.coverage,
-                    "empirical_coverage": _num(item.empirical),
-                    "factor": _num(item.factor),
-                    "scores": item.scores,
-                }
-                for item in self.levels
-            ],
-        }
-
-
-def _num(value: float) -> float | None:
-    return float(value) if np.isfinite(value) else None
 
 
 def nonconformity(backtest: ModelBacktest, level: float) -> np.ndarray:

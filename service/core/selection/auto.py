@@ -45,19 +45,14 @@ import pandas as pd
 from service.core.checks import check_coverage, check_positive_int
 from service.core.errors import FitError, RequestError
 from service.core.evaluation import calibration as cal
-from service.core.evaluation.backtest import (
-    MapFn,
-    ModelBacktest,
-    Task,
-    rank,
-    run,
-)
+from service.core.evaluation.backtest import MapFn, Task, run
 from service.core.evaluation.origins import (
     MINIMUM_ORIGINS,
     calibration_plan,
     dense_plan,
     feasible_plan,
 )
+from service.core.evaluation.records import ModelBacktest, rank
 from service.core.evaluation.scoring import check_metric
 from service.core.models.base import (
     FitWarning,

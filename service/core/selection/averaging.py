@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from service.core.evaluation.backtest import ModelBacktest, OriginForecast
+from service.core.evaluation.records import ModelBacktest, OriginForecast
 from service.core.models.base import Description, Fitted, FitWarning, Forecast
 from service.core.models.intervals import Interval
 

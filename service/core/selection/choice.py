@@ -35,7 +35,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from service.core.evaluation.backtest import ModelBacktest, RankEntry
+from service.core.evaluation.records import ModelBacktest, RankEntry
 from service.core.models.base import Specification, family_of
 from service.core.selection.averaging import combine
 

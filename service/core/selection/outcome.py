@@ -6,8 +6,8 @@ from dataclasses import dataclass, field
 
 import pandas as pd
 
-from service.core.evaluation.backtest import RankEntry
 from service.core.evaluation.calibration import Calibration
+from service.core.evaluation.records import RankEntry
 from service.core.models.base import Fitted, FitWarning, Forecast
 from service.core.selection.candidates import CandidateSet, SeriesProfile
 

@@ -9,7 +9,7 @@ from typing import cast
 import numpy as np
 import pandas as pd
 
-from service.core.evaluation.backtest import ModelBacktest
+from service.core.evaluation.records import ModelBacktest
 from service.core.models.base import Fitted, FitWarning, Specification, family_of
 from service.core.models.combination import CombinationFitted, CombinationSpec
 from service.core.selection.averaging import CombinedFitted

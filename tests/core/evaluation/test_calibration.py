@@ -6,8 +6,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from service.core.evaluation.backtest import ModelBacktest, OriginForecast
 from service.core.evaluation.calibration import apply, calibrate, conformal_quantile, nonconformity
+from service.core.evaluation.records import ModelBacktest, OriginForecast
 from service.core.models.base import Forecast
 from service.core.models.intervals import Interval, normal_quantile
 

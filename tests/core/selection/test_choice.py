@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from service.core.evaluation.backtest import ModelBacktest, OriginForecast, rank
+from service.core.evaluation.records import ModelBacktest, OriginForecast, rank
 from service.core.models.drift import DriftSpec
 from service.core.models.ets.family import EtsSpec
 from service.core.models.naive import NaiveSpec
