@@ -14,6 +14,7 @@ from fastapi import FastAPI
 from service import __version__
 from service.api.auth import install_api_keys
 from service.api.boot import WARM_MODULES
+from service.api.docs import install_docs
 from service.api.hits import ResponseHitMiddleware
 from service.api.middleware import (
     AdmissionMiddleware,
@@ -26,6 +27,7 @@ from service.api.middleware import (
 from service.api.observe import ObserveMiddleware
 from service.api.openapi import install_limits
 from service.api.problems import install_problem_handlers
+from service.api.representations import RepresentationMiddleware, describe_representations
 from service.api.routes import backtests, batches, diagnostics, forecasts, health, models
 from service.api.schemas.specification import add_specification_schemas
 from service.config import Settings
@@ -68,7 +70,9 @@ def _report_failed_start(task: asyncio.Task[int]) -> None:
 def _openapi(app: FastAPI) -> dict[str, Any]:
     """FastAPI's document with the specification schemas the registry defines."""
     if app.openapi_schema is None:
-        app.openapi_schema = add_specification_schemas(FastAPI.openapi(app))
+        app.openapi_schema = describe_representations(
+            add_specification_schemas(FastAPI.openapi(app))
+        )
     return app.openapi_schema
 
 
@@ -124,8 +128,10 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         version=__version__,
         description=description(settings),
         lifespan=lifespan,
-        docs_url="/docs",
+        docs_url=None,  # served by install_docs, with assets from the installed package
         redoc_url=None,
+        # Operation ids in plain words: the handler's name (create_forecast).
+        generate_unique_id_function=lambda route: route.name,
         # Response parts that leave out what the answer lacks (Sparse) keep their field list.
         separate_input_output_schemas=False,
     )
@@ -133,6 +139,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.settings = settings
     app.state.telemetry = telemetry
     install_problem_handlers(app)
+    install_docs(app)
     app.include_router(health.router)
     app.include_router(models.router)
     app.include_router(forecasts.router)
@@ -142,6 +149,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     install_limits(app, settings)
     # Innermost, behind the key check: a cache hit needs an accepted key as well.
     app.add_middleware(ResponseHitMiddleware)
+    # Outside the hit: CSV bodies become JSON first, tables and charts are made from JSON.
+    app.add_middleware(RepresentationMiddleware)
     app.state.key_ring = install_api_keys(app, settings)  # request ids reach its 401 problems
     app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
     app.add_middleware(AdmissionMiddleware)  # outside the body limit: refuses before reading
