@@ -149,12 +149,12 @@ def csv_request(path: str, body: bytes, query: bytes) -> dict[str, Any]:
     given = parse_qs(query.decode("latin-1"), keep_blank_values=True)
     allowed = _ROUTE_OPTIONS[path]
     options: dict[str, str] = {}
-    for name, values in given.items():
+    for name, given_values in given.items():
         known = name in allowed or name in _SERIES_OPTIONS + _CSV_OPTIONS + _CHART_OPTIONS
         if not known:
             choices = ", ".join([*allowed, *_SERIES_OPTIONS, *_CSV_OPTIONS])
             raise CsvProblem(f"unknown option; allowed: {choices}", f"query.{name[:40]}")
-        options[name] = values[-1]
+        options[name] = given_values[-1]
     rows = _rows(body)
     if not rows:
         raise CsvProblem("the CSV body has no rows", "body")

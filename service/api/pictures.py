@@ -43,9 +43,10 @@ def forecast_picture(request: dict[str, Any], result: dict[str, Any], series: An
     label = str(result.get("model", {}).get("label", "forecast"))
     name = str(request.get("series", {}).get("name") or "forecast")
     skill = (result.get("selection") or {}).get("skill_over_naive")
-    title = f"{name}: {label}"
+    title = name
     if isinstance(skill, int | float):
-        title += f"; skill over naive {skill * 100:+.0f} %"
+        title += f"; skill over naive {skill * 100:+.0f} % in backtests"
+    title += f"\nmodel: {label}"
     levels = ", ".join(f"{i['coverage'] * 100:g} %" for i in result.get("intervals", []))
     description = str(result.get("summary") or "") or (
         f"{len(result.get('point', []))} forecast steps of {name} by {label}, "

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import io
 import re
+import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -147,11 +148,17 @@ def forecast_chart(picture: ForecastPicture, fmt: str, width: int, height: int) 
     )
     if len(history_x):
         axis.axvline(history_x[-1], color=HISTORY_COLOUR, lw=0.9, ls=":")
-    axis.set_title(picture.title, fontsize=FONT_SIZE + 1, family=FONT, loc="left")
+    axis.set_title(_wrapped(picture.title, width), fontsize=FONT_SIZE + 1, family=FONT, loc="left")
     axis.legend(fontsize=FONT_SIZE - 1, frameon=False, loc="upper left")
     figure.autofmt_xdate()
     figure.tight_layout()
-    return _save(figure, fmt, picture.title, picture.description)
+    return _save(figure, fmt, picture.title.replace("\n", "; "), picture.description)
+
+
+def _wrapped(title: str, width: int) -> str:
+    """Each line of ``title`` wrapped to the chart's width (about 9 pixels a character)."""
+    columns = max(20, width // 9)
+    return "\n".join(textwrap.fill(line, columns) for line in title.splitlines())
 
 
 def _correlogram(
@@ -215,6 +222,8 @@ def diagnostics_chart(picture: DiagnosticsPicture, fmt: str, width: int, height:
         _style(axis)
         axis.plot(np.arange(series.size), series, color=HISTORY_COLOUR, lw=1.0)
         axis.set_title(name, fontsize=FONT_SIZE, family=FONT, loc="left")
-    figure.suptitle(picture.title, fontsize=FONT_SIZE + 1, family=FONT, x=0.01, ha="left")
+    figure.suptitle(
+        _wrapped(picture.title, width), fontsize=FONT_SIZE + 1, family=FONT, x=0.01, ha="left"
+    )
     figure.tight_layout()
-    return _save(figure, fmt, picture.title, picture.description)
+    return _save(figure, fmt, picture.title.replace("\n", "; "), picture.description)

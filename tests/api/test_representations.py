@@ -147,7 +147,7 @@ def test_forecast_charts_render_at_the_asked_size(client: TestClient) -> None:
     ns = "{http://www.w3.org/2000/svg}"
     title = root.find(f"{ns}title")
     label = client.post(FORECASTS, json=body).json()["model"]["label"]
-    assert title is not None and title.text == f"north depot orders: {label}"
+    assert title is not None and title.text == f"north depot orders; model: {label}"
     assert root.find(f"{ns}desc") is not None
     again = client.post(FORECASTS, json=body, headers={"accept": "image/svg+xml"})
     assert again.content == svg.content
