@@ -69,7 +69,7 @@ def test_forecast_answers_a_demo_body_from_a_file_and_from_stdin(tmp_path: Path)
     assert from_file.returncode == 0, from_file.stderr
     answer = json.loads(from_file.stdout)
     ForecastResponse.model_validate(answer)
-    assert answer["model"]["label"] == "SeasonalNaive(52)"
+    assert answer["model"]["label"] == "seasonal naive, period 52"
     assert answer["point"] == request["series"]["values"][-52:-47]
     from_stdin = run("forecast", "-", stdin=json.dumps(request), cwd=tmp_path)
     assert from_stdin.returncode == 0, from_stdin.stderr

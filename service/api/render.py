@@ -316,7 +316,7 @@ def _scores(s: Scores) -> dict[str, Any]:
         "rmse": s.rmse,
         "mase": s.mase,
         "smape": s.smape,
-        "coverage": {_level_key(k): v for k, v in s.coverage.items()},
+        "observed_coverage": {_level_key(k): v for k, v in s.coverage.items()},
         "msis": {_level_key(k): v for k, v in s.msis.items()},
     }
 
@@ -366,7 +366,7 @@ def _calibration(c: Calibration) -> dict[str, Any]:
         "levels": [
             {
                 "coverage": item.coverage,
-                "empirical_coverage": item.empirical,
+                "observed_coverage": item.empirical,
                 "factor": item.factor,
                 "scores": item.scores,
             }

@@ -13,11 +13,11 @@ def test_a_backtest_ranks_the_given_models(client: Any) -> None:
     response = client.post("/v1/backtests", json=body)
     assert response.status_code == 200
     found = response.json()
-    assert [m["label"] for m in found["models"]][:1] == ["Naive"]
+    assert [m["label"] for m in found["models"]][:1] == ["naive"]
     assert len(found["ranking"]) == 3
     first = found["models"][0]
     assert len(first["steps"]) == 4
-    for key in ("mae", "rmse", "mase", "smape", "coverage", "msis"):
+    for key in ("mae", "rmse", "mase", "smape", "observed_coverage", "msis"):
         assert key in first["overall"], key
 
 

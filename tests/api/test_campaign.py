@@ -68,10 +68,10 @@ CASES: dict[str, Case] = {
         forecast({"family": "mean"}, series=series(values=[1e-300, 1e300] * 20))
     ),
     "box-cox-exponent-minus-fifty": case(
-        forecast(transform={"kind": "boxcox", "lambda": -50}), status=422, field="transform.lambda"
+        forecast(transform={"kind": "boxcox", "power": -50}), status=422, field="transform.power"
     ),
     "box-cox-exponent-plus-fifty": case(
-        forecast(transform={"kind": "boxcox", "lambda": 50}), status=422, field="transform.lambda"
+        forecast(transform={"kind": "boxcox", "power": 50}), status=422, field="transform.power"
     ),
     # Structure: nesting, odd strings, unknown keys.
     "combinations-nested-300-deep": case(forecast(nested(300)), status=422, field="model"),

@@ -1,4 +1,6 @@
-"""Speed of diagnose() at 1,000 / 10,000 / 100,000 points, and its ADF against adfuller's.
+"""Speed of diagnose() at 1,000 / 10,000 / 100,000 points, and its ADF against adfuller's;
+how often the KPSS differencing search finds d = 1 on random walks with our short bandwidth
+trunc(3 √n / 13) and with statsmodels' data-driven one (why the short one was chosen).
 
 Run: python -m tests.benchmarks.diagnostics. Targets: 1,000 points well under 50 ms,
 100,000 under 2 s. BLAS threads matter on a shared 2-core machine: compare a run with
@@ -17,7 +19,7 @@ import pandas as pd
 from statsmodels.tsa.stattools import adfuller
 
 from service.core.diagnostics.report import diagnose
-from service.core.diagnostics.stationarity import ADF_LAG_CAP, adf_test
+from service.core.diagnostics.stationarity import ADF_LAG_CAP, HypothesisTest, adf_test, kpss_test
 
 
 def best_of(run: Callable[[], object], repeats: int) -> float:
@@ -63,6 +65,38 @@ def main() -> None:
                 3,
             )
         print(f"{n:>8} {ours:>9.4f} {theirs:>11.4f} {theirs / ours:>9.1f}")
+    kpss_bandwidths()
+
+
+def successive_kpss(x: np.ndarray, reject: Callable[[np.ndarray], bool], most: int = 2) -> int:
+    """d: how many successive differences the KPSS (level) test rejects, at most ``most``."""
+    d = 0
+    while d < most and reject(x):
+        x, d = np.diff(x), d + 1
+    return d
+
+
+def kpss_bandwidths(walks: int = 40, n: int = 200) -> None:
+    """d = 1 counts on seeded random walks: the short bandwidth against the data-driven one."""
+    from statsmodels.tsa.stattools import kpss
+
+    def ours(x: np.ndarray) -> bool:
+        test = kpss_test(x, "c")
+        return isinstance(test, HypothesisTest) and test.rejects
+
+    def data_driven(x: np.ndarray) -> bool:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            return bool(kpss(x, "c", nlags="auto")[1] < 0.05)
+
+    found = {"short": 0, "data-driven": 0}
+    for seed in range(walks):
+        x = np.cumsum(np.random.default_rng(seed).normal(size=n))
+        found["short"] += successive_kpss(x, ours) == 1
+        found["data-driven"] += successive_kpss(x, data_driven) == 1
+    print(f"\nKPSS differencing on {walks} random walks of {n} points: d = 1 found")
+    for name, count in found.items():
+        print(f"{name:>12} bandwidth: {count} times in {walks}")
 
 
 if __name__ == "__main__":

@@ -48,14 +48,14 @@ def test_lh_fits_match_r_arima(
 ) -> None:
     fitted = ArimaSpec(order=order).fit(_lh())
     described = fitted.describe()
-    assert described.label == f"ARIMA({order[0]},{order[1]},{order[2]}) with mean"
+    assert described.label == f"ARIMA({order[0]},{order[1]},{order[2]}), constant: mean"
     for name, value in expected.items():
         assert_allclose(described.parameters[name], value, atol=5e-4, err_msg=name)
     assert_allclose(described.information_criteria["log_likelihood"], loglik, atol=0.01)
 
 
 def test_lh_ar1_aic() -> None:
-    # R `arima` documentation example (from memory): AIC 64.76 for AR(1) with mean.
+    # R `arima` documentation example (from memory): AIC 64.76 for AR(1) with a mean.
     fitted = ArimaSpec(order=(1, 0, 0)).fit(_lh())
     assert_allclose(fitted.describe().information_criteria["aic"], 64.76, atol=0.01)
 

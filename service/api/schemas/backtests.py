@@ -38,13 +38,16 @@ class BacktestRequest(Strict):
 
 
 class ScoresOut(Out):
-    """Accuracy measures; coverage and interval score per coverage level (e.g. "0.8")."""
+    """Accuracy measures; the observed coverage (share of actual values inside the interval)
+    and the interval score per requested coverage level (e.g. "0.8")."""
 
     mae: float | None
     rmse: float | None
     mase: float | None
     smape: float | None
-    coverage: dict[str, float | None]
+    observed_coverage: dict[str, float | None] = Field(
+        description="Share of actual values inside the interval, per requested level."
+    )
     msis: dict[str, float | None] = Field(description="Scaled interval score per level.")
 
 

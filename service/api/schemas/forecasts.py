@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, Discriminator, Field, Tag, model_validator
 
 from service.api.schemas.common import (
     LjungBoxOut,
@@ -21,7 +21,7 @@ from service.api.schemas.common import (
 from service.api.schemas.selection import SelectionOut
 
 # Beyond a few units the Box-Cox back-transform overflows float64 (-50 gave infinite bounds).
-LAMBDA_BOUND = 5.0
+POWER_BOUND = 5.0
 
 
 class RegressorIn(Strict):
@@ -32,22 +32,49 @@ class RegressorIn(Strict):
     future: list[Any] | None = Field(None, description="One value per forecast step.")
 
 
+RENAMED_TRANSFORM_OPTIONS = {"lambda": "power", "bias_adjusted": "back_transform"}
+"""Former transform option names; a request that still uses one gets a 422 naming the new one."""
+
+
 class TransformIn(Strict):
     """A variance-stabilising transform applied before fitting and undone after."""
 
-    model_config = ConfigDict(extra="forbid", populate_by_name=True)
-
     kind: Literal["none", "log", "boxcox"] = "none"
-    lambda_: float | None = Field(
+    power: float | None = Field(
         None,
-        alias="lambda",
-        ge=-LAMBDA_BOUND,
-        le=LAMBDA_BOUND,
-        description="Box-Cox lambda; estimated by maximum likelihood when absent.",
+        ge=-POWER_BOUND,
+        le=POWER_BOUND,
+        description="The Box-Cox exponent (0 is the log); estimated by maximum likelihood "
+        "when absent.",
     )
-    bias_adjusted: bool = Field(
-        True, description="Back-transform to the mean (true) or to the median (false)."
+    back_transform: Literal["mean", "median"] = Field(
+        "mean",
+        description="The point forecast on the original scale: the mean (bias-adjusted) or "
+        "the median (the plain inverse).",
     )
+
+    @model_validator(mode="before")
+    @classmethod
+    def _renamed(cls, data: Any) -> Any:
+        """Former option names are refused with the name that replaced them."""
+        if isinstance(data, dict):
+            for old, new in RENAMED_TRANSFORM_OPTIONS.items():
+                if old in data:
+                    raise ValueError(f"{old!r} is not an option; use transform.{new}")
+        return data
+
+
+def _transform_shape(value: Any) -> str:
+    return "Name" if isinstance(value, str) else "Options"
+
+
+# A name or an object: only the branch that fits the input's shape reports errors (the tags
+# are capitalised so that problem fields leave them out, as for other union branches).
+TransformField = Annotated[
+    Annotated[Literal["none", "log", "boxcox"], Tag("Name")]
+    | Annotated[TransformIn, Tag("Options")],
+    Discriminator(_transform_shape),
+]
 
 
 class ForecastRequest(Strict):
@@ -67,7 +94,7 @@ class ForecastRequest(Strict):
     candidates: list[SpecificationObject] | None = Field(
         None, max_length=20, description="With `auto`: the specifications to choose among."
     )
-    transform: Literal["none", "log", "boxcox"] | TransformIn = "none"
+    transform: TransformField = "none"
     regressors: list[RegressorIn] | None = Field(None, max_length=20)
     include: list[Literal["fitted", "residuals"]] = Field(default_factory=list)
     metric: Literal["mase", "smape", "rmse"] = Field(

@@ -20,7 +20,9 @@ class LevelCalibrationOut(Out):
     """One coverage level: nominal, measured in the backtest, and the width factor used."""
 
     coverage: float
-    empirical_coverage: float | None
+    observed_coverage: float | None = Field(
+        description="Share of actual values inside the interval in the backtest."
+    )
     factor: float | None
     scores: int
 

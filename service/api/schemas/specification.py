@@ -22,10 +22,10 @@ _TRANSFORM: dict[str, Any] = {
     "description": "The transform the model was fitted under.",
     "properties": {
         "kind": {"type": "string", "enum": ["none", "log", "boxcox"]},
-        "lambda": {"anyOf": [{"type": "number"}, {"type": "null"}]},
-        "bias_adjusted": {"type": "boolean"},
+        "power": {"anyOf": [{"type": "number"}, {"type": "null"}]},
+        "back_transform": {"type": "string", "enum": ["mean", "median"]},
     },
-    "required": ["kind", "lambda", "bias_adjusted"],
+    "required": ["kind", "power", "back_transform"],
     "additionalProperties": False,
 }
 

@@ -23,8 +23,8 @@ LAG_LIMIT = 1000
 """Hard ceiling on lags: the PACF recursion costs O(L²), and no season we serve needs more."""
 
 BAND_NOTE = (
-    "white-noise band ±1.959964/√n centred on 0 (Bartlett 1946, under the hypothesis of white "
-    "noise); not the widening band centred on each estimate that statsmodels' acf(alpha=) gives"
+    "An autocorrelation outside ±1.959964/√n, centred on zero, differs from white noise at 5 % "
+    "(Bartlett 1946)."
 )
 
 

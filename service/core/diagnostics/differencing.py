@@ -35,9 +35,8 @@ STORY_REGULAR_RULE = (
     "(Hyndman & Khandakar 2008). The automatic ARIMA search runs its own KPSS search"
 )
 SEASONAL_RULE = (
-    "D = 1 when the STL seasonal strength max(0, 1 - Var(R)/Var(S+R)) of Wang, Smith & "
-    "Hyndman (2006) exceeds 0.64, the default threshold of Hyndman's seasonal-differencing "
-    "heuristic (from memory); D = 0 for period 1 or fewer than two full seasons"
+    "D = 1 when there are two full seasons and the STL seasonal strength "
+    "max(0, 1 - Var(R)/Var(S + R)) exceeds 0.64 (Wang, Smith & Hyndman 2006)."
 )
 
 

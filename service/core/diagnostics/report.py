@@ -102,7 +102,8 @@ class Seasonality:
             "applicable": True,
             "decomposition": self.method,
             "settings": self.settings,
-            "strength_rule": "max(0, 1 - Var(R)/Var(C + R)), Wang, Smith & Hyndman (2006)",
+            "strength_rule": "A component C is as strong as max(0, 1 - Var(R)/Var(C + R)), "
+            "R the STL remainder (Wang, Smith & Hyndman 2006).",
             "trend_strength": plain_float(self.trend_strength),
             "seasonal_strength": season,
             "seasonal_period_from_frequency": self.seasonal_period,

@@ -25,7 +25,10 @@ from service.core.applicability import NotApplicable, plain_float, plain_floats
 SEASONAL_WINDOW = 13
 """STL seasonal smoother span in cycles (odd, >= 7 as Cleveland et al. 1990 advise)."""
 
-OUTLIER_RULE = "|r - median(r)| > 3 x 1.4826 x MAD(r) on the decomposition remainder r"
+OUTLIER_RULE = (
+    "A point is an outlier when its decomposition remainder r has |r - median(r)| > "
+    "3 x 1.4826 x MAD(r) (Leys, Ley, Klein, Bernard & Licata 2013)."
+)
 OUTLIER_LIST_LIMIT = 100
 MIN_TREND_POINTS = 7
 PERIODOGRAM_SHARE = 0.05

@@ -31,13 +31,11 @@ ADF_LAG_CAP = 24
 extra candidate lag widens every regression of a long series."""
 
 ADF_LAG_RULE = (
-    "lag order chosen by AIC over 0..max_lag with max_lag = ceil(12 (n/100)^(1/4)) "
-    f"(Schwert 1989), at most n/2 - terms - 1 and at most {ADF_LAG_CAP}"
+    "Augmentation lags chosen by AIC from 0 up to ceil(12 (n/100)^(1/4)), at most "
+    f"n/2 - terms - 1 and {ADF_LAG_CAP} (Schwert 1989)."
 )
 KPSS_LAG_RULE = (
-    "Newey-West bandwidth trunc(3 sqrt(n) / 13), the short bandwidth Hyndman's unit-root "
-    "differencing search uses (from memory); in seeded simulations it found d = 1 for random "
-    "walks of 200 points 37 times in 40, the data-driven bandwidth 28 times"
+    "Long-run variance by the Bartlett kernel with bandwidth trunc(3 √n / 13) (Newey & West 1987)."
 )
 
 VERDICT_RULE = (
@@ -272,7 +270,7 @@ def kpss_test(x: np.ndarray, regression: Regression) -> HypothesisTest | NotAppl
 
     Computed here as statsmodels' ``kpss`` does (same statistic and interpolated p-value,
     tested) but with the autocovariances by FFT: its loop over lags took 0.9 s at 100,000
-    points. Where the table ends the p-value is a bound, as REFERENCES trap 7 requires.
+    points. Where the table ends the p-value is a bound (tests/reference/README.md, trap 7).
     """
     reason = applicability(x)
     if reason is not None:

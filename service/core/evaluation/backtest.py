@@ -123,7 +123,9 @@ def resolved_specification(fitted: Any) -> Any:
             spec,
             order=(orders.p, orders.d, orders.q),
             seasonal_order=(orders.P, orders.D, orders.Q),
-            include_constant=orders.constant,
+            constant=("mean" if orders.d + orders.D == 0 else "drift")
+            if orders.constant
+            else "none",
         )
     return spec
 

@@ -25,6 +25,7 @@ from service.core.models.base import (
     parameter,
 )
 from service.core.models.intervals import Interval
+from service.core.models.labels import model_label
 from service.core.models.simple import ljung_box_summary, timed
 
 
@@ -128,8 +129,9 @@ class CombinationFitted:
 
     @property
     def label(self) -> str:
-        """'Combination(label, label, ...)'."""
-        return "Combination(" + ", ".join(m.describe().label for m in self.members) + ")"
+        """'(weighted) combination of N models'; the members' labels are in the description."""
+        weighted = bool(self.specification.weights)
+        return model_label("combination", members=len(self.members), weighted=weighted)
 
     def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast:
         """Weighted mean of the points; weighted mean of the bounds per coverage level."""
@@ -181,7 +183,7 @@ class CombinationFitted:
         resid = resid[np.isfinite(resid)]
         return Description(
             family="combination",
-            label="Combination(" + ", ".join(d.label for d in described) + ")",
+            label=self.label,
             specification=as_dict(self.specification),
             parameters=params,
             information_criteria={},

@@ -28,6 +28,7 @@ from service.core.models.base import (
     residuals_from,
 )
 from service.core.models.intervals import Interval
+from service.core.models.labels import model_label
 from service.core.models.simple import ljung_box_summary, timed
 
 
@@ -115,8 +116,8 @@ class CrostonFitted:
 
     @property
     def label(self) -> str:
-        """'Croston' or 'SBA'."""
-        return "SBA" if self.specification.variant == "sba" else "Croston"
+        """Croston's method, with the Syntetos-Boylan correction for the SBA variant."""
+        return model_label("croston", variant=self.specification.variant)
 
     @property
     def _factor(self) -> float:

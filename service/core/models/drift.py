@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from service.core.errors import FitError
+from service.core.models.labels import model_label
 from service.core.models.naive import lagged
 from service.core.models.simple import SimpleFitted, last_observed, residual_sigma, timed
 
@@ -38,7 +39,7 @@ class DriftSpec:
 class DriftFitted(SimpleFitted):
     """Fitted drift benchmark; T is the estimation sample, held fixed on re-filtering."""
 
-    label = "Drift"
+    label = model_label("drift")
 
     def _steps(self, horizon: int) -> np.ndarray:
         """Steps from the last observation: missing values kept at the end widen the gap."""

@@ -8,6 +8,7 @@ from typing import ClassVar
 import numpy as np
 import pandas as pd
 
+from service.core.models.labels import model_label
 from service.core.models.simple import SimpleFitted, residual_sigma, timed
 
 
@@ -30,7 +31,7 @@ class MeanSpec:
 class MeanFitted(SimpleFitted):
     """Fitted mean benchmark: sd = σ̂√(1 + 1/T)."""
 
-    label = "Mean"
+    label = model_label("mean")
 
     def _point(self, horizon: int) -> np.ndarray:
         return np.full(horizon, self.parameters["mean"])

@@ -8,6 +8,7 @@ from typing import ClassVar
 import numpy as np
 import pandas as pd
 
+from service.core.models.labels import model_label
 from service.core.models.simple import SimpleFitted, last_observed, residual_sigma, timed
 
 
@@ -37,7 +38,7 @@ class NaiveSpec:
 class NaiveFitted(SimpleFitted):
     """Fitted naive benchmark: sd = σ̂√h."""
 
-    label = "Naive"
+    label = model_label("naive")
 
     def _point(self, horizon: int) -> np.ndarray:
         return np.full(horizon, last_observed(self.y.to_numpy(dtype=float)))

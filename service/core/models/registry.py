@@ -113,10 +113,13 @@ def specification_from_dict(data: Any, field: str = "model") -> Specification:
         )
     cls = FAMILIES[family]
     known = {p.name: p for p in parameters_of(cls)}
+    renamed: Mapping[str, str] = getattr(cls, "renamed", {})
     problems = [
         FieldProblem(
             f"{field}.{key}",
-            f"unknown parameter {key!r} for family {family!r}; allowed: "
+            f"{key!r} is not a parameter; use {field}.{renamed[key]}"
+            if key in renamed
+            else f"unknown parameter {key!r} for family {family!r}; allowed: "
             f"{', '.join(known) or 'none'}",
         )
         for key in data

@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from service.core.errors import FitError
+from service.core.models.labels import model_label
 from service.core.models.naive import lagged
 from service.core.models.simple import SimpleFitted, residual_sigma, timed
 
@@ -43,7 +44,7 @@ class SeasonalNaiveFitted(SimpleFitted):
 
     @property
     def label(self) -> str:  # type: ignore[override]
-        return f"SeasonalNaive({self.seasonal_period})"
+        return model_label("seasonal_naive", period=self.seasonal_period)
 
     def _last_cycle(self) -> np.ndarray:
         values = self.y.to_numpy(dtype=float)

@@ -24,6 +24,7 @@ from service.core.models.arima.estimation import _as_fit_warning
 from service.core.models.base import Description, FitWarning, Forecast, as_dict, parameter
 from service.core.models.ets.family import EtsSpec
 from service.core.models.intervals import Interval
+from service.core.models.labels import model_label
 
 DEFAULT_BASE = EtsSpec(season="none")
 
@@ -138,11 +139,11 @@ class StlFitted:
         return pd.Series(values, index=index, name="seasonal")
 
     def describe(self) -> Description:
-        """The base model's description under an ``STL(m) + base`` label."""
+        """The base model's description under an ``STL (period m) then base`` label."""
         inner = self.base.describe()
         return Description(
             family=StlSpec.family,
-            label=f"STL({self.seasonal_period}) + {inner.label}",
+            label=model_label("stl", period=self.seasonal_period, base=inner.label),
             specification=as_dict(self.specification),
             parameters=inner.parameters,
             information_criteria=inner.information_criteria,

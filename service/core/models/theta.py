@@ -3,7 +3,7 @@
 b0 is the OLS slope of the (seasonally adjusted) series on time; the SES starts at the
 first observation and its α minimises the one-step squared errors, as in the original
 method. Intervals use the IMA(1,1) variance σ²[1 + (h−1)α²], not statsmodels' ThetaModel
-intervals (REFERENCES trap 4).
+intervals (tests/reference/README.md, trap 4).
 """
 
 from __future__ import annotations
@@ -21,6 +21,7 @@ from service.core.errors import FitError
 from service.core.models.base import Description, FitWarning, Forecast, as_dict, future_index
 from service.core.models.base import parameter as param
 from service.core.models.intervals import Interval, normal_intervals
+from service.core.models.labels import model_label
 from service.core.models.simple import ljung_box_summary, timed
 
 SEASONALITY_TEST_LEVEL = 0.90
@@ -177,10 +178,8 @@ class ThetaFitted:
 
     @property
     def label(self) -> str:
-        """'Theta', or 'Theta (seasonally adjusted, m)' when indices were applied."""
-        if len(self.seasonal_indices) > 1:
-            return f"Theta (seasonally adjusted, m={len(self.seasonal_indices)})"
-        return "Theta"
+        """Theta, naming the seasonal period when indices were applied."""
+        return model_label("theta", period=max(len(self.seasonal_indices), 1))
 
     def _adjusted(self) -> np.ndarray:
         values = self.y.to_numpy(dtype=float)

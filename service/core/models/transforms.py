@@ -30,18 +30,21 @@ from service.core.models.base import (
     residuals_from,
 )
 from service.core.models.intervals import Interval, normal_quantile
+from service.core.models.labels import model_label
 
 KINDS = ("none", "log", "boxcox")
+BACK_TRANSFORMS = ("mean", "median")
 _VARIANCE_LEVEL = 0.8
 
 
 @dataclass(frozen=True)
 class Transform:
-    """A transform: kind, a fixed Box-Cox λ (None to estimate by MLE) and the point rule."""
+    """A transform: kind, a fixed Box-Cox exponent (None to estimate it by maximum
+    likelihood) and how the point comes back to the original scale (mean or median)."""
 
     kind: str = "none"
-    lam: float | None = None
-    bias_adjusted: bool = True
+    power: float | None = None
+    back_transform: str = "mean"
 
     def __post_init__(self) -> None:
         if self.kind not in KINDS:
@@ -49,12 +52,17 @@ class Transform:
                 f"transform must be one of {', '.join(KINDS)}; got {self.kind!r}",
                 field="transform",
             )
-        if self.lam is not None and not math.isfinite(self.lam):
-            raise SpecificationError("lambda must be a finite number", field="transform.lambda")
+        if self.power is not None and not math.isfinite(self.power):
+            raise SpecificationError("power must be a finite number", field="transform.power")
+        if self.back_transform not in BACK_TRANSFORMS:
+            raise SpecificationError(
+                f"back_transform must be mean or median; got {self.back_transform!r}",
+                field="transform.back_transform",
+            )
 
 
 def transform_from_value(value: Any, field: str = "transform") -> Transform:
-    """Parse the request's ``transform``: a kind name, or {"kind", "lambda", "bias_adjusted"}."""
+    """Parse the request's ``transform``: a kind name, or {"kind", "power", "back_transform"}."""
     if value is None:
         return Transform()
     if isinstance(value, str):
@@ -62,24 +70,24 @@ def transform_from_value(value: Any, field: str = "transform") -> Transform:
         return Transform(value)
     if not isinstance(value, Mapping):
         raise SpecificationError("transform must be a name or an object", field=field)
-    unknown = set(value) - {"kind", "lambda", "bias_adjusted"}
+    unknown = set(value) - {"kind", "power", "back_transform"}
     if unknown:
         raise SpecificationError(
-            f"unknown transform option {sorted(unknown)[0]!r}; allowed: kind, lambda, "
-            "bias_adjusted",
+            f"unknown transform option {sorted(unknown)[0]!r}; allowed: kind, power, "
+            "back_transform",
             field=f"{field}.{sorted(unknown)[0]}",
         )
     kind = value.get("kind", "none")
     _check_kind(kind, f"{field}.kind")
-    lam = value.get("lambda")
-    if lam is not None and (isinstance(lam, bool) or not isinstance(lam, (int, float))):
-        raise SpecificationError("lambda must be a number", field=f"{field}.lambda")
-    adjusted = value.get("bias_adjusted", True)
-    if not isinstance(adjusted, bool):
+    power = value.get("power")
+    if power is not None and (isinstance(power, bool) or not isinstance(power, (int, float))):
+        raise SpecificationError("power must be a number", field=f"{field}.power")
+    back = value.get("back_transform", "mean")
+    if back not in BACK_TRANSFORMS:
         raise SpecificationError(
-            "bias_adjusted must be true or false", field=f"{field}.bias_adjusted"
+            "back_transform must be mean or median", field=f"{field}.back_transform"
         )
-    return Transform(kind, None if lam is None else float(lam), adjusted)
+    return Transform(kind, None if power is None else float(power), back)
 
 
 def _check_kind(kind: Any, field: str) -> None:
@@ -145,8 +153,8 @@ def resolve_lambda(transform: Transform, values: np.ndarray) -> float | None:
         )
     if transform.kind == "log":
         return 0.0
-    if transform.lam is not None:
-        return transform.lam
+    if transform.power is not None:
+        return transform.power
     return boxcox_lambda(values)
 
 
@@ -169,7 +177,7 @@ class TransformedSpec:
         t = self.transform
         return {
             **as_dict(self.base),
-            "transform": {"kind": t.kind, "lambda": t.lam, "bias_adjusted": t.bias_adjusted},
+            "transform": {"kind": t.kind, "power": t.power, "back_transform": t.back_transform},
         }
 
 
@@ -205,7 +213,7 @@ class TransformedFitted:
         by_level = {i.coverage: i for i in inner.intervals}
         w = inner.point
         point = inverse_boxcox(w, self.lam)
-        if self.specification.transform.bias_adjusted:
+        if self.specification.transform.back_transform == "mean":
             band = by_level[_VARIANCE_LEVEL]
             var = ((band.upper - band.lower) / (2.0 * normal_quantile(_VARIANCE_LEVEL))) ** 2
             point = point * bias_factor(w, var, self.lam)
@@ -244,14 +252,14 @@ class TransformedFitted:
         return TransformedFitted(self.specification, y, self.lam, self.inner.refilter(z), [])
 
     def describe(self) -> Description:
-        """The inner description with the transform in the label and λ among the parameters."""
+        """The inner description with the scale in the label and the exponent among the
+        parameters."""
         d = self.inner.describe()
-        name = "log" if self.specification.transform.kind == "log" else f"Box-Cox({self.lam:.4g})"
         return Description(
             family=d.family,
-            label=f"{d.label} on {name} scale",
+            label=model_label("transformed", base=d.label, power=self.lam),
             specification={**d.specification, "transform": as_transform_dict(self)},
-            parameters={**d.parameters, "boxcox_lambda": self.lam},
+            parameters={**d.parameters, "box_cox_power": self.lam},
             information_criteria=d.information_criteria,
             residual_variance=d.residual_variance,
             residual_diagnostics={**d.residual_diagnostics, "scale": "transformed"},
@@ -261,9 +269,9 @@ class TransformedFitted:
 
 
 def as_transform_dict(fitted: TransformedFitted) -> dict[str, Any]:
-    """The transform as JSON, with the λ actually used."""
+    """The transform as JSON, with the exponent actually used."""
     t = fitted.specification.transform
-    return {"kind": t.kind, "lambda": fitted.lam, "bias_adjusted": t.bias_adjusted}
+    return {"kind": t.kind, "power": fitted.lam, "back_transform": t.back_transform}
 
 
 def bias_factor(w: np.ndarray, variance: np.ndarray, lam: float) -> np.ndarray:

@@ -205,7 +205,6 @@ def select(
         [for_refit(specs[i], dense[i]) for i in members],
         weights,
         profile,
-        chosen_bt.label,
         (horizon, levels),
     )
     extra.extend(dropped)

@@ -17,6 +17,7 @@ import pandas as pd
 from service.core.evaluation.records import ModelBacktest, OriginForecast
 from service.core.models.base import Description, Fitted, FitWarning, Forecast
 from service.core.models.intervals import Interval
+from service.core.models.labels import model_label
 
 
 def normalised(weights: Sequence[float] | None, count: int) -> np.ndarray:
@@ -59,7 +60,7 @@ def combine(
         specification["weights"] = [float(x) for x in w]
     return ModelBacktest(
         specification,
-        label or "Combination(" + ", ".join(m.label for m in members) + ")",
+        label or model_label("combination", members=len(members), weighted=bool(weights)),
         tuple(forecasts),
         first.levels,
         sum(m.fit_seconds for m in members),

@@ -2,11 +2,12 @@
 
 A guard for the automatic selection, not a statistical test: models fitted on a transformed
 scale or with a near-unit smoothing of the trend can forecast, or bound, values that explode
-once back on the original scale (REFERENCES, trap 8; seen here on the lynx series, where a
-log-scale ETS member's 95 % upper bound reached 9e11 against a history below 7,000, and an
-averaged bound inherited it through a weight of 1e-5). The band is the history's range
-widened by POINT_SPREADS of that range for point forecasts and BOUND_SPREADS for interval
-bounds (our choice: wider than any honest interval of a series that lies within its range).
+once back on the original scale (tests/reference/README.md, trap 8; seen here on the lynx
+series, where a log-scale ETS member's 95 % upper bound reached 9e11 against a history
+below 7,000, and an averaged bound inherited it through a weight of 1e-5). The band is the
+history's range widened by POINT_SPREADS of that range for point forecasts and BOUND_SPREADS
+for interval bounds (our choice: wider than any honest interval of a series that lies
+within its range).
 """
 
 from __future__ import annotations

@@ -12,6 +12,7 @@ import pandas as pd
 from service.core.evaluation.records import ModelBacktest
 from service.core.models.base import Fitted, FitWarning, Specification, family_of
 from service.core.models.combination import CombinationFitted, CombinationSpec
+from service.core.models.labels import model_label
 from service.core.selection.averaging import CombinedFitted
 from service.core.selection.candidates import SeriesProfile
 from service.core.selection.plausibility import implausible
@@ -44,7 +45,6 @@ def refit(
     specs: Sequence[Specification],
     weights: Sequence[float],
     profile: SeriesProfile,
-    label: str,
     request: tuple[int, tuple[float, ...]],
 ) -> tuple[Fitted, list[FitWarning]]:
     """The chosen specification(s) estimated on the full series, without members whose
@@ -79,4 +79,5 @@ def refit(
         elapsed = time.perf_counter() - start
         combined = CombinationFitted.of(spec, y, periods[keep[0]], members, elapsed)
         return cast(Fitted, combined), dropped
+    label = model_label("combination", members=len(keep), weighted=True)
     return CombinedFitted(tuple(fits[i] for i in keep), label, kept_weights), dropped

@@ -83,7 +83,7 @@ def test_failures_are_data_and_ranking_skips_them() -> None:
     assert scores == sorted(scores)
     assert len(report.ranking) == 3
     text = json.dumps(backtest_body(report, []), allow_nan=False)
-    assert '"msis"' in text and '"coverage"' in text
+    assert '"msis"' in text and '"observed_coverage"' in text
 
 
 def test_per_step_coverage_and_msis_are_reported_per_level() -> None:

@@ -56,5 +56,5 @@ def test_bad_demand_is_refused(values: list[float], field: str) -> None:
 
 def test_describe_names_the_state() -> None:
     d = CrostonSpec("sba").fit(demand([0, 3, 0, 0, 5, 0])).describe()
-    assert d.label == "SBA"
+    assert d.label == "Croston's method, Syntetos-Boylan correction"
     assert set(d.parameters) == {"alpha", "demand_size", "demand_interval", "rate"}

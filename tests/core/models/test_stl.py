@@ -41,7 +41,7 @@ def test_weekly_period_on_hourly_data_is_re_added_from_the_last_cycle() -> None:
     assert_allclose(forecast.point - inner.point, cycle[np.arange(200) % 168], atol=1e-9)
     width = forecast.intervals[0].upper - forecast.intervals[0].lower
     assert_allclose(width, inner.intervals[0].upper - inner.intervals[0].lower)
-    assert fitted.describe().label.startswith("STL(168) + ")
+    assert fitted.describe().label.startswith("STL (period 168) then ")
 
 
 def test_arima_base_is_accepted_and_fitted_without_season() -> None:
@@ -49,7 +49,7 @@ def test_arima_base_is_accepted_and_fitted_without_season() -> None:
         {"family": "stl", "base": {"family": "arima", "order": [1, 0, 0]}}
     )
     fitted = spec.fit(hourly(3), 168)
-    assert fitted.describe().label == "STL(168) + ARIMA(1,0,0) with mean"
+    assert fitted.describe().label == "STL (period 168) then ARIMA(1,0,0), constant: mean"
 
 
 def test_fewer_than_two_seasons_is_a_fit_error() -> None:

@@ -45,10 +45,11 @@ def test_alpha_minimises_the_one_step_errors() -> None:
 
 
 def test_point_forecasts_agree_with_statsmodels_thetamodel() -> None:
-    # Golden value: ThetaModel point forecasts are right (REFERENCES trap 4 is about its intervals).
+    # Golden value: ThetaModel point forecasts are right (tests/reference/README.md, trap 4,
+    # is about its intervals).
     y = seasonal_series()
     ours = ThetaSpec().fit(y, 12)
-    assert ours.label.startswith("Theta (seasonally adjusted")
+    assert ours.label == "theta, seasonally adjusted (period 12)"
     direct = ThetaModel(y.to_numpy(), period=12, method="multiplicative").fit()
     assert_allclose(ours.slope, direct.params["b0"], rtol=1e-6)
     assert_allclose(ours.forecast(12, [0.8]).point, direct.forecast(12), rtol=1e-3)

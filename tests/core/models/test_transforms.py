@@ -57,7 +57,7 @@ def test_log_bias_factor_is_the_lognormal_mean() -> None:
 
 def test_log_transform_of_naive_back_transforms_quantiles() -> None:
     y = positive_series()
-    fitted = fit_transformed(NaiveSpec(), y, 12, Transform("log", bias_adjusted=False))
+    fitted = fit_transformed(NaiveSpec(), y, 12, Transform("log", back_transform="median"))
     fc = fitted.forecast(3, [0.95])
     inner = NaiveSpec().fit(np.log(y), 12).forecast(3, [0.95])
     assert_allclose(fc.point, np.exp(inner.point))
@@ -65,9 +65,9 @@ def test_log_transform_of_naive_back_transforms_quantiles() -> None:
     assert_allclose(fc.intervals[0].upper, np.exp(inner.intervals[0].upper))
 
 
-def test_bias_adjusted_mean_exceeds_the_median_for_log() -> None:
+def test_the_mean_back_transform_exceeds_the_median_for_log() -> None:
     y = positive_series()
-    median = fit_transformed(NaiveSpec(), y, 12, Transform("log", bias_adjusted=False))
+    median = fit_transformed(NaiveSpec(), y, 12, Transform("log", back_transform="median"))
     mean = fit_transformed(NaiveSpec(), y, 12, Transform("log"))
     m, a = median.forecast(4, [0.8]).point, mean.forecast(4, [0.8]).point
     sigma = NaiveSpec().fit(np.log(y), 12).sigma
@@ -81,8 +81,8 @@ def test_boxcox_wrapper_estimates_lambda_describes_and_refilters() -> None:
     spec = TransformedSpec(EtsSpec("add", "add", False, "none"), Transform("boxcox"))
     fitted = spec.fit(y[:60], 12)
     d = fitted.describe()
-    assert_allclose(d.parameters["boxcox_lambda"], boxcox_lambda(y[:60].to_numpy()))
-    assert "Box-Cox" in d.label
+    assert_allclose(d.parameters["box_cox_power"], boxcox_lambda(y[:60].to_numpy()))
+    assert d.label == f"ETS(A,A,N), on the Box-Cox scale (power {fitted.lam:.4g})"
     longer = fitted.refilter(y)
     assert longer.lam == fitted.lam
     fc = pickle.loads(pickle.dumps(longer)).forecast(2, [0.8, 0.95])
@@ -107,8 +107,8 @@ def test_none_transform_fits_the_base_directly() -> None:
     ("value", "expected"),
     [
         ("log", Transform("log")),
-        ({"kind": "boxcox", "lambda": 0.5}, Transform("boxcox", 0.5)),
-        ({"kind": "boxcox", "bias_adjusted": False}, Transform("boxcox", None, False)),
+        ({"kind": "boxcox", "power": 0.5}, Transform("boxcox", 0.5)),
+        ({"kind": "boxcox", "back_transform": "median"}, Transform("boxcox", None, "median")),
         (None, Transform()),
     ],
 )
@@ -121,7 +121,9 @@ def test_parse(value: object, expected: Transform) -> None:
     [
         ("sqrt", "transform"),
         ({"kind": "cube"}, "transform.kind"),
-        ({"power": 2}, "transform.power"),
+        ({"power": "2"}, "transform.power"),
+        ({"back_transform": True}, "transform.back_transform"),
+        ({"lambda": 0.5}, "transform.lambda"),
     ],
 )
 def test_parse_errors_name_the_field(value: object, field: str) -> None:

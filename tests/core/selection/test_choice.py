@@ -55,7 +55,7 @@ def test_the_combination_is_the_default_even_when_one_member_scores_a_little_bet
     )
     assert picked.rule == "combination"
     assert sorted(picked.members) == [2, 3]
-    assert any(r.label.startswith("Combination(") for r in picked.ranking)
+    assert any(r.specification["family"] == "combination" for r in picked.ranking)
 
 
 def test_members_are_weighted_by_the_inverse_square_of_their_backtest_score() -> None:
@@ -67,7 +67,7 @@ def test_members_are_weighted_by_the_inverse_square_of_their_backtest_score() ->
     weights = dict(zip(picked.members, picked.weights, strict=True))
     # Scores 1 and 2: weights 1 and 1/4, normalised to 0.8 and 0.2.
     np.testing.assert_allclose([weights[2], weights[3]], [0.8, 0.2], rtol=1e-12)
-    combined = next(r for r in picked.ranking if r.label.startswith("Combination("))
+    combined = next(r for r in picked.ranking if r.specification["family"] == "combination")
     # Both miss on the same side: 0.8 x 1 + 0.2 x 2.
     assert combined.score == pytest.approx(1.2, rel=1e-12)
 
@@ -94,7 +94,8 @@ def test_drift_is_never_chosen_from_the_default_set_but_may_be_when_requested() 
     picked = decide(errors, windows=MIN_WINDOWS)
     assert 1 not in picked.members
     assert decide(errors, windows=MIN_WINDOWS, default_set=False).members == (1,)
-    assert "Drift" not in {r.label for r in picked.ranking if r.label.startswith("Comb")}
+    mixed = next(r for r in picked.ranking if r.specification["family"] == "combination")
+    assert {"family": "drift"} not in mixed.specification["members"]
 
 
 def test_ties_go_to_the_simpler_model_and_majority_counts_origins() -> None:

@@ -2,8 +2,9 @@
 
 Both work on the differenced series (simple differencing), so every candidate of one search
 shares one likelihood and one initialisation and their AICc values are comparable
-(REFERENCES trap 1). The constant is a regression column: an intercept (the mean) when
-d + D = 0, a time index (the drift per step) when d + D = 1, as regression with ARIMA errors.
+(tests/reference/README.md, trap 1). The constant is a regression column: an intercept (the
+mean) when d + D = 0, a time index (the drift per step) when d + D = 1, as regression with
+ARIMA errors.
 """
 
 from __future__ import annotations
@@ -18,6 +19,7 @@ from statsmodels.tsa.statespace.sarimax import SARIMAX
 
 from service.core.models.arima.likelihood import DENSE_LIMIT, ArmaShape, dense_fit
 from service.core.models.base import FitWarning
+from service.core.models.labels import model_label
 
 CSS_EVALUATIONS = 30
 
@@ -37,13 +39,14 @@ class ArimaOrders:
 
     @property
     def label(self) -> str:
-        """Box and Jenkins notation: ``ARIMA(0,1,1)x(0,1,1)12``, ``ARIMA(2,0,0) with mean``."""
-        text = f"ARIMA({self.p},{self.d},{self.q})"
-        if self.m > 1 and (self.P or self.D or self.Q):
-            text += f"x({self.P},{self.D},{self.Q}){self.m}"
-        if self.constant:
-            text += " with mean" if self.d + self.D == 0 else " with drift"
-        return text
+        """Box and Jenkins notation (``ARIMA(0,1,1)x(0,1,1)12``), then the constant in words."""
+        return model_label(
+            "arima",
+            period=self.m,
+            orders=(self.p, self.d, self.q),
+            seasonal_orders=(self.P, self.D, self.Q),
+            constant=("mean" if self.d + self.D == 0 else "drift") if self.constant else "none",
+        )
 
     @property
     def constant_name(self) -> str:

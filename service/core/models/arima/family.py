@@ -3,9 +3,9 @@
 Estimation is exact maximum likelihood of the ARMA on the differenced series (as Box and
 Jenkins, and R's ``arima``, define it); forecasts come from the undifferenced state-space
 model filtered with those parameters under an exact diffuse initialisation, so the
-approximate-diffuse prior never biases the estimates (REFERENCES trap 1). The fitted object
-keeps only orders, parameters and data, and rebuilds the statsmodels model when needed:
-a results object would pickle to megabytes.
+approximate-diffuse prior never biases the estimates (tests/reference/README.md, trap 1).
+The fitted object keeps only orders, parameters and data, and rebuilds the statsmodels model
+when needed: a results object would pickle to megabytes.
 """
 
 from __future__ import annotations
@@ -13,7 +13,7 @@ from __future__ import annotations
 import math
 import time
 import warnings
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any, ClassVar
 
@@ -45,6 +45,9 @@ from service.core.models.intervals import normal_intervals
 from service.core.models.simple import ljung_box_summary
 
 FINAL_MAXITER = 500
+CONSTANTS = ("auto", "none", "mean", "drift")
+_DIFFERENCES = {"mean": 0, "drift": 1}
+"""The total differencing d + D that each named constant stands for."""
 
 
 @dataclass(frozen=True)
@@ -61,9 +64,14 @@ class ArimaSpec:
         "series' seasonal_period.",
         "Orders left out (null) are searched: d and D by KPSS tests and seasonal strength, "
         "then p, q, P, Q stepwise by AICc (p, q <= 5, P, Q <= 2, p + q + P + Q <= 5).",
-        "A constant (mean when d + D = 0, drift when d + D = 1) is not allowed when d + D >= 2.",
+        "constant: auto (searched with searched orders; a mean for fixed orders without "
+        "differencing), none, mean (d + D = 0) or drift (d + D = 1); differencing left to the "
+        "search is set to match mean or drift. No constant when d + D >= 2.",
         "Seasonal terms need at least two full seasons of data.",
     )
+
+    renamed: ClassVar[Mapping[str, str]] = {"include_constant": "constant"}
+    """Former parameter names: the registry refuses them naming the new one."""
 
     order: tuple[int, ...] | None = parameter(
         None, "[p, d, q]; null to search", kind="integers", minimum=0, maximum=10
@@ -71,11 +79,12 @@ class ArimaSpec:
     seasonal_order: tuple[int, ...] | None = parameter(
         None, "[P, D, Q]; null to search", kind="integers", minimum=0, maximum=3
     )
-    include_constant: bool | None = parameter(
-        None,
-        "mean (d + D = 0) or drift (d + D = 1); null: searched when orders are searched, "
-        "a mean for fixed undifferenced orders",
-        kind="boolean",
+    constant: str = parameter(
+        "auto",
+        "auto (searched when orders are searched, a mean for fixed orders without differencing), "
+        "none, mean (needs d + D = 0) or drift (needs d + D = 1)",
+        kind="choice",
+        allowed=CONSTANTS,
     )
     search: str = parameter(
         "thorough",
@@ -87,6 +96,11 @@ class ArimaSpec:
     )
 
     def __post_init__(self) -> None:
+        if self.constant not in CONSTANTS:
+            raise SpecificationError(
+                f"constant must be one of {', '.join(CONSTANTS)}, got {self.constant!r}",
+                field="model.constant",
+            )
         if self.search not in EFFORTS:
             raise SpecificationError(
                 f"search must be one of {list(EFFORTS)}, got {self.search!r}",
@@ -114,6 +128,7 @@ class ArimaSpec:
         names = tuple(str(c) for c in regressors.columns) if regressors is not None else ()
         values = y.to_numpy(dtype=float)
         self._check_seasonal(values.size, m)
+        self._check_constant()
         fixed = self._fixed_orders(m)
         search: OrderSearchResult | None = None
         notes: list[FitWarning] = []
@@ -140,6 +155,13 @@ class ArimaSpec:
             warnings=_unique(notes),
         )
 
+    def _check_constant(self) -> None:
+        """A named constant fixes d + D: 0 for a mean, 1 for a drift."""
+        want = _DIFFERENCES.get(self.constant)
+        given = [o[1] for o in (self.order, self.seasonal_order) if o is not None]
+        if want is not None and any(g > want for g in given):
+            raise _constant_mismatch(self.constant, want, sum(given))
+
     def _check_seasonal(self, n: int, m: int) -> None:
         if self.seasonal_order is None or not any(self.seasonal_order):
             return
@@ -162,16 +184,12 @@ class ArimaSpec:
         P, D, Q = self.seasonal_order if self.seasonal_order is not None else (0, 0, 0)
         if not (P or D or Q):
             m = 1
-        constant = self.include_constant
-        if constant is None:
-            constant = d + D == 0
-        if constant and d + D >= 2:
-            raise FitError(
-                f"a constant with d + D = {d + D} would imply a polynomial trend; "
-                "set include_constant to false or null",
-                field="model.include_constant",
-            )
-        return ArimaOrders(p, d, q, P, D, Q, m, bool(constant))
+        if self.constant == "auto":
+            return ArimaOrders(p, d, q, P, D, Q, m, d + D == 0)
+        want = _DIFFERENCES.get(self.constant)
+        if want is not None and d + D != want:
+            raise _constant_mismatch(self.constant, want, d + D)
+        return ArimaOrders(p, d, q, P, D, Q, m, self.constant != "none")
 
     def _search(
         self, values: np.ndarray, m: int, exog: np.ndarray | None, names: tuple[str, ...]
@@ -183,11 +201,19 @@ class ArimaSpec:
             m,
             order=order,  # type: ignore[arg-type]
             seasonal_order=seasonal,  # type: ignore[arg-type]
-            include_constant=self.include_constant,
+            include_constant=None if self.constant == "auto" else self.constant != "none",
+            differences=_DIFFERENCES.get(self.constant),
             regressors=exog,
             regressor_names=names,
             effort=self.search,
         )
+
+
+def _constant_mismatch(constant: str, want: int, got: int) -> SpecificationError:
+    return SpecificationError(
+        f"constant {constant!r} needs d + D = {want}; the orders give {got}",
+        field="model.constant",
+    )
 
 
 @dataclass

@@ -118,6 +118,7 @@ def search_orders(
     order: tuple[int, int, int] | None = None,
     seasonal_order: tuple[int, int, int] | None = None,
     include_constant: bool | None = None,
+    differences: int | None = None,
     regressors: np.ndarray | None = None,
     regressor_names: tuple[str, ...] = (),
     limits: SearchLimits | None = None,
@@ -128,6 +129,7 @@ def search_orders(
     ``effort="thorough"`` screens by CSS, then walks exactly around the exact winner;
     ``"quick"`` walks on CSS AICc alone and fits only the best two CSS orders exactly
     (Hyndman & Khandakar 2008, sec. 3.2's approximation): see ``EFFORTS`` for cost and accuracy.
+    ``differences`` fixes d + D where the orders leave them open (0 for a mean, 1 for a drift).
     """
     if effort not in EFFORTS:
         raise SpecificationError(
@@ -149,6 +151,8 @@ def search_orders(
             )
         )
     choice = _differencing(values, m if seasonal_ok else 1, order, seasonal_order, limits)
+    if differences is not None:
+        choice = _matched(choice, differences, order, seasonal_order)
     d, D = choice.d, choice.D
     stages = {"differencing": time.perf_counter() - clock}
 
@@ -218,6 +222,28 @@ def _differencing(
         again = _regular_only(difference(values, 0, D, m))
         return DifferencingChoice(min(again.d, limits.max_d), D, again.reason)
     return DifferencingChoice(min(chosen.d, limits.max_d), D, chosen.reason)
+
+
+def _matched(
+    choice: DifferencingChoice,
+    total: int,
+    order: tuple[int, int, int] | None,
+    seasonal_order: tuple[int, int, int] | None,
+) -> DifferencingChoice:
+    """d and D adjusted to sum to ``total`` (the constant's), keeping any order given and
+    preferring the seasonal difference the tests chose."""
+    if choice.d + choice.D == total:
+        return choice
+    if seasonal_order is not None:
+        D = seasonal_order[1]
+        d = total - D
+    elif order is not None:
+        d = order[1]
+        D = total - d
+    else:
+        D = min(choice.D, total)
+        d = total - D
+    return DifferencingChoice(d, D, f"d + D = {total}, as the constant asks")
 
 
 @dataclass(frozen=True)

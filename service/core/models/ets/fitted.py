@@ -22,6 +22,7 @@ from service.core.models.base import (
 )
 from service.core.models.ets.lean import LeanEtsModel, model_kwargs, n_parameters
 from service.core.models.intervals import Interval, normal_intervals
+from service.core.models.labels import model_label
 from service.core.models.library_warnings import captured
 from service.core.models.simple import ljung_box_summary
 
@@ -41,12 +42,13 @@ ANALYTIC_CLASS = frozenset({"ANN", "AAN", "AAdN", "ANA", "AAA", "AAdA"})
 
 def ets_label(spec: EtsSpec) -> str:
     """Textbook label, e.g. ETS(M,Ad,M)."""
-    error = {"add": "A", "mul": "M"}[spec.error or "add"]
-    trend = {"none": "N", "add": "A", "mul": "M"}[spec.trend or "none"]
-    if trend != "N" and spec.damped:
-        trend += "d"
-    season = {"none": "N", "add": "A", "mul": "M"}[spec.season or "none"]
-    return f"ETS({error},{trend},{season})"
+    components = (
+        spec.error or "add",
+        spec.trend or "none",
+        bool(spec.damped),
+        spec.season or "none",
+    )
+    return model_label("ets", components=components)
 
 
 def checked_values(y: pd.Series) -> np.ndarray:

@@ -61,8 +61,9 @@ def test_forecast_matches_the_undifferenced_model_filtered_at_the_estimates() ->
 @pytest.mark.parametrize(
     ("spec", "label"),
     [
-        (ArimaSpec(order=(2, 0, 0)), "ARIMA(2,0,0) with mean"),
-        (ArimaSpec(order=(0, 1, 1), include_constant=True), "ARIMA(0,1,1) with drift"),
+        (ArimaSpec(order=(2, 0, 0)), "ARIMA(2,0,0), constant: mean"),
+        (ArimaSpec(order=(2, 0, 0), constant="none"), "ARIMA(2,0,0)"),
+        (ArimaSpec(order=(0, 1, 1), constant="drift"), "ARIMA(0,1,1), constant: drift"),
         (ArimaSpec(order=(0, 1, 1)), "ARIMA(0,1,1)"),
     ],
 )
@@ -71,7 +72,7 @@ def test_labels_as_box_and_jenkins_write_them(spec: ArimaSpec, label: str) -> No
 
 
 def test_drift_forecast_keeps_rising() -> None:
-    fitted = ArimaSpec(order=(0, 1, 0), include_constant=True).fit(monthly(), 1)
+    fitted = ArimaSpec(order=(0, 1, 0), constant="drift").fit(monthly(), 1)
     drift = fitted.describe().parameters["drift"]
     assert drift > 0
     point = fitted.forecast(5, [0.8]).point
@@ -163,11 +164,38 @@ def test_seasonal_model_needs_two_full_seasons() -> None:
     assert caught.value.problems[0].field == "model.seasonal_order"
 
 
-def test_constant_with_two_differences_is_refused() -> None:
-    spec = ArimaSpec(order=(0, 2, 1), include_constant=True)
-    with pytest.raises(FitError) as caught:
-        spec.fit(monthly(), 1)
+@pytest.mark.parametrize(
+    "spec",
+    [
+        ArimaSpec(order=(0, 2, 1), constant="drift"),
+        ArimaSpec(order=(0, 1, 1), constant="mean"),
+        ArimaSpec(order=(0, 0, 1), seasonal_order=(0, 0, 0), constant="drift"),
+        ArimaSpec(order=(1, 1, 0), constant="mean", seasonal_order=None),
+    ],
+)
+def test_a_named_constant_must_match_the_differencing(spec: ArimaSpec) -> None:
+    with pytest.raises(SpecificationError) as caught:
+        spec.fit(monthly(), 12)
+    assert caught.value.problems[0].field == "model.constant"
+
+
+@pytest.mark.parametrize(("constant", "total"), [("mean", 0), ("drift", 1)])
+def test_a_named_constant_sets_the_searched_differencing(constant: str, total: int) -> None:
+    fitted = ArimaSpec(constant=constant, search="quick").fit(monthly(), 1)
+    assert fitted.orders.d + fitted.orders.D == total
+    assert fitted.orders.constant
+    assert fitted.describe().label.endswith(f", constant: {constant}")
+
+
+def test_no_constant_means_none() -> None:
+    assert not ArimaSpec(constant="none", search="quick").fit(monthly(), 1).orders.constant
+
+
+def test_the_former_constant_option_is_refused_naming_the_new_one() -> None:
+    with pytest.raises(SpecificationError) as caught:
+        registry.specification_from_dict({"family": "arima", "include_constant": True})
     assert caught.value.problems[0].field == "model.include_constant"
+    assert "model.constant" in caught.value.problems[0].message
 
 
 def test_registry_checks_order_length() -> None:

@@ -1,0 +1,77 @@
+"""Every model label, built in one place.
+
+The trade's notations stay as the textbooks write them: the ETS taxonomy letters of Hyndman,
+Koehler, Ord & Snyder (2008), e.g. ``ETS(A,Ad,N)``, and Box and Jenkins' orders, e.g.
+``ARIMA(0,1,1)x(0,1,1)12``. Everything else is said in plain lower-case words, with details
+after a comma: ``ARIMA(2,1,1), constant: drift``, ``seasonal naive, period 12``,
+``STL (period 24) then ETS(A,N,N)``, ``combination of 4 models``.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+_ETS_LETTERS = {"none": "N", "add": "A", "mul": "M"}
+
+
+def model_label(
+    family: str,
+    *,
+    period: int | Sequence[int] = 1,
+    components: tuple[str, str, bool, str] = ("add", "none", False, "none"),
+    orders: tuple[int, int, int] = (0, 0, 0),
+    seasonal_orders: tuple[int, int, int] = (0, 0, 0),
+    constant: str = "none",
+    variant: str = "classic",
+    base: str = "",
+    members: int = 0,
+    weighted: bool = False,
+    power: float = 0.0,
+) -> str:
+    """The label of one fitted model (or of one candidate in a search).
+
+    ``period``: the seasonal period(s) of seasonal naive, Theta's adjustment and STL;
+    ``components``: ETS error, trend, damped, season; ``orders``, ``seasonal_orders`` and
+    ``constant`` ("none", "mean" or "drift"): ARIMA; ``variant``: Croston's; ``base``: the
+    label of the model inside STL or a transform; ``members``, ``weighted``: a combination's
+    size and whether it was given weights; ``power``: the Box-Cox exponent of the
+    "transformed" family (0 is the log).
+    """
+    periods = [period] if isinstance(period, int) else list(period)
+    seasonal = [m for m in periods if m > 1]
+    match family:
+        case "mean" | "naive" | "drift":
+            return family
+        case "seasonal_naive":
+            return f"seasonal naive, {_periods(seasonal or periods)}"
+        case "ets":
+            error, trend, damped, season = components
+            letters = _ETS_LETTERS[trend] + ("d" if damped and trend != "none" else "")
+            return f"ETS({_ETS_LETTERS[error]},{letters},{_ETS_LETTERS[season]})"
+        case "arima":
+            text = "ARIMA({},{},{})".format(*orders)
+            if seasonal and any(seasonal_orders):
+                text += "x({},{},{}){}".format(*seasonal_orders, seasonal[0])
+            return text if constant == "none" else f"{text}, constant: {constant}"
+        case "theta":
+            return f"theta, seasonally adjusted ({_periods(seasonal)})" if seasonal else "theta"
+        case "stl":
+            return f"STL ({_periods(seasonal or periods)}) then {base}"
+        case "croston":
+            if variant == "sba":
+                return "Croston's method, Syntetos-Boylan correction"
+            return "Croston's method"
+        case "combination":
+            text = f"combination of {members} models"
+            return f"weighted {text}" if weighted else text
+        case "transformed":
+            if power == 0.0:
+                return f"{base}, on the log scale"
+            return f"{base}, on the Box-Cox scale (power {power:.4g})"
+    raise ValueError(f"no label for family {family!r}")
+
+
+def _periods(periods: Sequence[int]) -> str:
+    if len(periods) == 1:
+        return f"period {periods[0]}"
+    return "periods " + ", ".join(str(m) for m in periods)
