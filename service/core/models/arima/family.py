@@ -201,7 +201,7 @@ class ArimaSpec:
             m,
             order=order,  # type: ignore[arg-type]
             seasonal_order=seasonal,  # type: ignore[arg-type]
-            include_constant=None if self.constant == "auto" else self.constant != "none",
+            fit_constant=None if self.constant == "auto" else self.constant != "none",
             differences=_DIFFERENCES.get(self.constant),
             regressors=exog,
             regressor_names=names,

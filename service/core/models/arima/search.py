@@ -117,7 +117,7 @@ def search_orders(
     *,
     order: tuple[int, int, int] | None = None,
     seasonal_order: tuple[int, int, int] | None = None,
-    include_constant: bool | None = None,
+    fit_constant: bool | None = None,
     differences: int | None = None,
     regressors: np.ndarray | None = None,
     regressor_names: tuple[str, ...] = (),
@@ -163,7 +163,7 @@ def search_orders(
             field="series.values",
         )
     constant_allowed = d + D <= 1
-    if include_constant and not constant_allowed:
+    if fit_constant and not constant_allowed:
         notes.append(
             FitWarning(
                 "constant_dropped",
@@ -178,7 +178,7 @@ def search_orders(
         d,
         D,
         _bounds(order, seasonal_order, seasonal_ok, limits),
-        _constant_options(include_constant, constant_allowed),
+        _constant_options(fit_constant, constant_allowed),
         limits,
     )
     starts = _starting_points(order, seasonal_order, seasonal_ok, m)
@@ -271,10 +271,10 @@ def _bounds(
     return _Bounds((lo[0], lo[1], lo[2], lo[3]), (hi[0], hi[1], hi[2], hi[3]))
 
 
-def _constant_options(include_constant: bool | None, allowed: bool) -> tuple[bool, ...]:
-    if not allowed or include_constant is False:
+def _constant_options(fit_constant: bool | None, allowed: bool) -> tuple[bool, ...]:
+    if not allowed or fit_constant is False:
         return (False,)
-    if include_constant:
+    if fit_constant:
         return (True,)
     return (True, False)
 
