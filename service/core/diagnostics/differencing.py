@@ -23,16 +23,15 @@ from service.core.diagnostics.unit_root import UnitRootDecision, integration_ord
 SEASONAL_THRESHOLD = 0.64
 MAX_REGULAR = 2
 REGULAR_RULE = (
-    "d = the number of successive KPSS (level) tests that reject stationarity at 5 %, at most 2, "
-    "each on the previous difference (Hyndman & Khandakar 2008); run on the seasonally "
-    "differenced series when D = 1"
+    "d is the number of successive KPSS (level) tests at 5 % that reject stationarity, each "
+    "on the previous difference and after any seasonal difference, at most 2 (Hyndman & "
+    "Khandakar 2008)."
 )
 STORY_REGULAR_RULE = (
-    "d from the unit-root procedure and the random-walk verdict: 0 for a stationary series, a "
-    "seasonal random walk or a slowly mean-reverting one; 1 for a random walk; otherwise, with "
-    "a unit root, 1, or 2 when ADF (constant) keeps a unit root in the differences at 5 %; when "
-    "D = 1 and a unit root remains, the KPSS search on the seasonally differenced series "
-    "(Hyndman & Khandakar 2008). The automatic ARIMA search runs its own KPSS search"
+    "d is 0 for a stationary or slowly mean-reverting series and for a seasonal random walk, "
+    "1 for a random walk, and otherwise 1, or 2 when ADF with a constant keeps a unit root in "
+    "the differences at 5 % (Dickey & Fuller 1979), by KPSS tests after a seasonal difference "
+    "(Hyndman & Khandakar 2008)."
 )
 SEASONAL_RULE = (
     "D = 1 when there are two full seasons and the STL seasonal strength "

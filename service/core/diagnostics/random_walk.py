@@ -47,15 +47,12 @@ CLOSE_TO_ONE = 0.905
 of the best forecast's: 2/(1 + φ) <= 1.05, the margin of auto's naive guard."""
 
 RULE = (
-    "seasonal_random_walk when m > 1, n >= 6m, Ljung-Box at 1 % finds the seasonal "
-    "differences white, their lag-m autocorrelation is not below -2.576/√n (a stable season "
-    "differenced away), and the first differences are not white; otherwise random_walk when "
-    "the unit-root procedure keeps the unit root, Ljung-Box at 1 % finds the first differences "
-    "white and the length tells every AR(1) coefficient below 0.905 apart from 1 (4 times in "
-    "5); behaves_like_random_walk when the same holds on a shorter series, or when the series "
-    "is stationary with white differences and an estimated coefficient of at least 0.905 (the "
-    "naive forecast then within 5 % of the best one-step mean squared error, 2/(1 + φ)); "
-    "otherwise not_random_walk. Drift: a t-test on the mean difference at 5 %"
+    "seasonal_random_walk when the seasonal differences are white noise and the first "
+    "differences are not, random_walk when a unit root remains and the first differences are "
+    "white noise at 1 % (Ljung & Box 1978) on a series long enough to tell an AR(1) "
+    "coefficient of 0.905 from 1, behaves_like_random_walk on a shorter series or when a "
+    "stationary series has that coefficient at 0.905 or above, otherwise not_random_walk, "
+    "with drift when a t-test finds the mean difference non-zero at 5 %."
 )
 
 GRADES = ("random_walk", "behaves_like_random_walk", "seasonal_random_walk", "not_random_walk")

@@ -39,11 +39,10 @@ KPSS_LAG_RULE = (
 )
 
 VERDICT_RULE = (
-    "the unit-root procedure's decision (unit_root_procedure: deterministic terms by the "
-    "sequence of Dolado, Jenkinson & Sosvilla-Rivero 1990): stationary, trend_stationary or "
-    "difference_stationary; seasonal_difference_stationary when the random-walk verdict finds "
-    "a seasonal random walk; inconclusive below 20 points. KPSS, whose null is the opposite, is "
-    "reported beside it as a check and a note says when it disagrees"
+    "The unit-root procedure's decision, its deterministic terms chosen in the sequence of "
+    "Dolado, Jenkinson & Sosvilla-Rivero (1990): stationary, trend_stationary, "
+    "difference_stationary, seasonal_difference_stationary for a seasonal random walk, or "
+    "inconclusive below 20 points, with KPSS reported beside it as a check."
 )
 
 _NAMES = {"c": "constant", "ct": "constant_and_trend"}

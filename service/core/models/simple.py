@@ -121,7 +121,7 @@ def last_observed(values: np.ndarray) -> float:
 def ljung_box_summary(
     residuals: np.ndarray, seasonal_period: int, model_dof: int = 0
 ) -> dict[str, Any]:
-    """Ljung-Box (1978) Q at lag min(10, n/5) (2m for seasonal data, Hyndman's rule of thumb)."""
+    """Ljung-Box (1978) Q at lag min(10, n/5) (2m for seasonal data, common practice)."""
     n = residuals.size
     if n < 4 or not np.any(residuals - residuals.mean()):
         return {"ljung_box": None, "reason": "too few or constant residuals"}

@@ -47,7 +47,7 @@ def test_auto_leaves_out_a_member_whose_log_scale_bounds_explode() -> None:
     upper = result.forecast.intervals[-1].upper
     assert upper.max() < values.max() + BOUND_SPREADS * np.ptp(values)
     failed = dict(result.selection.failures)
-    assert any("on log scale" in label for label in failed)
+    assert any("on the log scale" in label for label in failed)
 
 
 def test_refit_drops_an_implausible_member_and_renormalises(monkeypatch) -> None:  # type: ignore[no-untyped-def]
@@ -69,12 +69,12 @@ def test_refit_drops_an_implausible_member_and_renormalises(monkeypatch) -> None
     monkeypatch.setattr(selection, "implausible", second_explodes)
     profile = profile_series(y, 1)
     fitted, dropped = selection.refit(
-        y, [NaiveSpec(), DriftSpec()], (0.6, 0.4), profile, "mix", (3, (0.8,))
+        y, [NaiveSpec(), DriftSpec()], (0.6, 0.4), profile, (3, (0.8,))
     )
     assert [w.code for w in dropped] == ["member_dropped"]
-    assert fitted.describe().label == "Naive"
+    assert fitted.describe().label == "naive"
     calls.clear()
     both, none_dropped = selection.refit(
-        y, [NaiveSpec(), DriftSpec(), NaiveSpec()], (0.5, 0.25, 0.25), profile, "mix", (3, (0.8,))
+        y, [NaiveSpec(), DriftSpec(), NaiveSpec()], (0.5, 0.25, 0.25), profile, (3, (0.8,))
     )
     assert none_dropped and both.describe().parameters["weight[0]"] == 2 / 3
