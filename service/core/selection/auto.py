@@ -73,9 +73,9 @@ from service.core.selection.outcome import AutoForecast, Selection
 from service.core.selection.plausibility import implausible
 from service.core.selection.refit import for_refit, model_periods, refit
 from service.core.selection.skill import (
-    NO_SKILL_MESSAGE,
     SKILL_MARGIN,
     benchmark_of,
+    guarded_benchmark,
     skill,
     with_benchmarks,
 )
@@ -174,13 +174,18 @@ def select(
                 f"compared {plan.horizon} steps ahead instead",
             )
         )
-    naive_index = next(i for i, s in enumerate(specs) if family_of(s) == "naive")
+    guard = guarded_benchmark(profile)
+    guard_family, message = guard or ("naive", "")
+    naive_index = next(
+        (i for i, s in enumerate(specs) if family_of(s) == guard_family),
+        next(i for i, s in enumerate(specs) if family_of(s) == "naive"),
+    )
     over_naive = skill(chosen_bt.score(metric), results[naive_index].score(metric))
-    if profile.random_walk and (over_naive is None or over_naive < SKILL_MARGIN):
+    if guard and (over_naive is None or over_naive < SKILL_MARGIN):
         rule, members, weights = "naive_guard", [naive_index], ()
         chosen_bt = results[naive_index]
         skill_score = skill(chosen_bt.score(metric), bench_score)
-        extra.append(FitWarning("no_skill_over_naive", NO_SKILL_MESSAGE))
+        extra.append(FitWarning("no_skill_over_naive", message))
 
     # The structure each family's search chose before the first origin is kept; only its
     # parameters are estimated again on the full series: no second search.

@@ -89,6 +89,8 @@ class SeriesProfile:
     zero_share: float
     random_walk: bool
     random_walk_reason: str = ""
+    seasonal_random_walk: bool = False
+    """The diagnostics found y_t = y_{t-m} + noise: seasonal naive is the forecast to beat."""
 
     @property
     def intermittent(self) -> bool:
@@ -181,6 +183,8 @@ def profile_series(
         seasonal = seasonal or (enough and float(strength) >= SEASONAL_STRENGTH)
     walk = _lookup(diagnostics, ("random_walk", "is_random_walk"))
     reason = _lookup(diagnostics, ("random_walk", "reason"))
+    seasonal_walk = _lookup(diagnostics, ("random_walk", "is_seasonal_random_walk")) is True
+    seasonal = seasonal or (enough and seasonal_walk)
     if isinstance(walk, bool):
         random_walk, why = walk, str(reason or "from the diagnostics")
     else:
@@ -195,6 +199,7 @@ def profile_series(
         zero_share=zero_share,
         random_walk=random_walk,
         random_walk_reason=why,
+        seasonal_random_walk=seasonal and seasonal_walk,
     )
 
 

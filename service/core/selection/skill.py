@@ -20,6 +20,24 @@ NO_SKILL_MESSAGE = (
 )
 
 
+SEASONAL_NO_SKILL_MESSAGE = (
+    "The series behaves like a seasonal random walk and no candidate beat the seasonal naive "
+    "forecast by 5 % in the backtest, so the seasonal naive forecast (the value one season "
+    "earlier) is returned."
+)
+
+
+def guarded_benchmark(profile: SeriesProfile) -> tuple[str, str] | None:
+    """The family the random-walk guard falls back to and its warning, or None (no guard):
+    naive for a random walk, seasonal naive for a seasonal random walk (the diagnostics'
+    verdict)."""
+    if profile.seasonal_random_walk:
+        return "seasonal_naive", SEASONAL_NO_SKILL_MESSAGE
+    if profile.random_walk:
+        return "naive", NO_SKILL_MESSAGE
+    return None
+
+
 def with_benchmarks(specs: list[Specification], profile: SeriesProfile) -> list[Specification]:
     """Naive, and seasonal naive when seasonal, are always evaluated: skill needs them."""
     families = {family_of(s) for s in specs}

@@ -56,6 +56,23 @@ def test_random_walk_gets_the_naive_forecast_and_the_warning() -> None:
     np.testing.assert_allclose(result.forecast.point, y.iloc[-1])
 
 
+def test_seasonal_random_walk_gets_the_seasonal_naive_guard() -> None:
+    from service.core.diagnostics.report import diagnose
+
+    rng = np.random.default_rng(7)
+    y = monthly(100 + np.cumsum(rng.normal(size=(10, 12)), axis=0).ravel())
+    report = diagnose(y, 12)
+    assert report.random_walk.is_seasonal_random_walk  # type: ignore[union-attr]
+    result = select(y, 12, 12, diagnostics=report)
+    assert result.selection.profile.seasonal_random_walk
+    assert not result.selection.profile.random_walk
+    assert result.selection.rule == "naive_guard"
+    assert result.fitted.describe().family == "seasonal_naive"
+    np.testing.assert_allclose(result.forecast.point, y.iloc[-12:].to_numpy())
+    message = next(w.message for w in result.warnings if w.code == "no_skill_over_naive")
+    assert "seasonal naive" in message
+
+
 def test_seasonal_series_gets_a_seasonal_model(seasonal_result: AutoForecast) -> None:
     result = seasonal_result
     assert result.selection.profile.seasonal
