@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from service.core.applicability import NotApplicable
+from service.core.data.frequency import frequency_name
 from service.core.diagnostics.autocorrelation import BAND_NOTE, Correlogram
 from service.core.diagnostics.differencing import SEASONAL_RULE, DifferencingOrders
 from service.core.diagnostics.differencing import label as difference_label
@@ -64,8 +65,10 @@ def plain(value: Any) -> Any:
 
 
 def forecast_body(forecast: Forecast) -> dict[str, Any]:
-    """timestamps, point and intervals of a forecast."""
+    """frequency, timestamps, point and intervals of a forecast."""
+    freq = forecast.index.freq
     return {
+        "frequency": frequency_name(freq) if freq is not None else None,
         "timestamps": timestamps(forecast.index),
         "point": floats(forecast.point),
         "intervals": [

@@ -13,7 +13,7 @@ from service.api.schemas.forecasts import ForecastRequest
 from service.config import Settings
 from service.core.checks import check_coverage, check_positive_int
 from service.core.data.regressors import regressors_from_wire
-from service.core.data.series import ParsedSeries
+from service.core.data.series import ParsedSeries, check_horizon_in_range
 from service.core.errors import RequestError, WindvaneError
 from service.core.models.transforms import transform_from_value
 from service.runtime import jobs
@@ -25,6 +25,7 @@ def forecast_task(
     """The forecast task and the parsed series (its hash goes into the provenance)."""
     series = parsed_series(body.series, settings)
     horizon = check_positive_int(body.horizon, "horizon", settings.max_horizon)
+    check_horizon_in_range(series.y.index, horizon)
     coverage = check_coverage(body.coverage)
     spec = None if body.model == "auto" else specification(body.model, "model")
     candidates = None

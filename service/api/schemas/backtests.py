@@ -7,6 +7,7 @@ from typing import Annotated, Literal
 from pydantic import Field
 
 from service.api.schemas.common import (
+    CoverageLevels,
     OriginCount,
     OriginStep,
     Out,
@@ -31,7 +32,9 @@ class BacktestRequest(Strict):
     horizon: PositiveWhole = Field(description="Steps ahead evaluated at each origin.")
     origins: OriginCount = Field(3, description="How many forecast origins.")
     step: OriginStep = Field(1, description="Observations between successive origins.")
-    coverage: list[float] = Field(default_factory=lambda: [0.8, 0.95], min_length=1, max_length=10)
+    coverage: CoverageLevels = Field(
+        default_factory=lambda: [0.8, 0.95], min_length=1, max_length=10
+    )
     metric: Literal["mase", "smape", "rmse", "mae"] = Field(
         "mase", description="The score that ranks the models."
     )

@@ -50,6 +50,21 @@ TimestampList = Annotated[
 ]
 
 
+# Checked by the core (core.checks.check_coverage names the index); stated here for the schema.
+CoverageLevels = Annotated[
+    list[float],
+    WithJsonSchema(
+        {
+            "type": "array",
+            "items": {"type": "number", "exclusiveMinimum": 0, "exclusiveMaximum": 1},
+            "minItems": 1,
+            "maxItems": 10,
+            "description": "Central prediction-interval levels, each strictly between 0 and 1.",
+        }
+    ),
+]
+
+
 def _whole(value: Any) -> Any:
     """An integral JSON number written with a fraction (3.0) is the integer it names."""
     if isinstance(value, float) and value.is_integer() and abs(value) < 2**53:
@@ -137,8 +152,11 @@ class SeriesIn(Strict):
     frequency: str | None = Field(
         None,
         max_length=FREQUENCY_CHARACTERS,
-        description="ISO 8601 duration (P1D, P1W, P1M, PT1H) or pandas alias "
-        "(D, W-MON, MS, h); inferred from timestamps when absent.",
+        description="ISO 8601 duration (P1D, P1W, P1M, PT1H) or alias (D, W-MON, MS, ME, "
+        "QE, YE, h, min, s, with a multiple such as 15min); the older spellings M, Q, Y, A, "
+        "AS, H, T, S and their lower-case forms are read as the month, quarter, year, hour, "
+        "minute and second steps they mean, and the canonical form is echoed. Inferred from "
+        "timestamps when absent. Steps of a second or longer.",
     )
     seasonal_period: PositiveWhole | None = Field(
         None, description="Observations per seasonal cycle; default from the frequency."

@@ -7,6 +7,7 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, Discriminator, Field, Tag, model_validator
 
 from service.api.schemas.common import (
+    CoverageLevels,
     LjungBoxOut,
     Out,
     PositiveWhole,
@@ -82,7 +83,7 @@ class ForecastRequest(Strict):
 
     series: SeriesIn
     horizon: PositiveWhole = Field(description="Steps ahead to forecast.")
-    coverage: list[float] = Field(
+    coverage: CoverageLevels = Field(
         default_factory=lambda: [0.8, 0.95],
         min_length=1,
         max_length=10,
@@ -141,6 +142,11 @@ class ForecastResponse(BaseModel):
     """Point forecasts with intervals, the model used, how it was chosen, and provenance."""
 
     name: str | None = None
+    frequency: str | None = Field(
+        None,
+        description="The series' step in its canonical spelling (`M` is answered as `ME`, "
+        "`H` as `h`); an ISO 8601 duration for a month step off the month's start or end.",
+    )
     timestamps: list[str]
     point: list[float]
     intervals: list[IntervalOut]

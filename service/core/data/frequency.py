@@ -14,6 +14,14 @@ Default seasonal period by step (the cycle most business series repeat):
 | n weeks              | 52/n   | a year (if n divides 52, else 1)   |
 | n months             | 12/n   | a year (if n divides 12, else 1): monthly 12, quarterly 4 |
 | a year or longer     | 1      | none                 |
+
+Spellings people write, beside ISO 8601 durations and the current pandas aliases: the
+aliases recent pandas versions renamed or removed are read as the steps they meant, in
+either case, with an optional multiple and anchor: ``M`` month end (``ME``), ``Q`` quarter
+end (``QE-DEC``), ``Y`` and ``A`` year end (``YE-DEC``), ``AS`` year start (``YS-JAN``), ``H``
+hour (``h``), ``T`` minute (``min``), ``S`` second (``s``); so ``3M``, ``15T``, ``Q-JUN``,
+``a-dec``. The canonical alias is what responses echo. Steps shorter than a second are not
+supported; a multiple has at most six digits.
 """
 
 from __future__ import annotations
@@ -33,6 +41,23 @@ _ISO_DURATION = re.compile(
 )
 
 _WEEKDAYS = ("MON", "TUE", "WED", "THU", "FRI", "SAT", "SUN")
+
+# Legacy and lower-case spellings -> the current pandas alias (see the module docstring).
+_SPELLINGS = {
+    "M": "ME",
+    "Q": "QE",
+    "Y": "YE",
+    "A": "YE",
+    "AS": "YS",
+    "H": "h",
+    "T": "min",
+    "S": "s",
+    "D": "D",
+    "W": "W",
+    "B": "B",
+}
+_ALIAS = re.compile(r"^(?P<count>\d{1,6})?(?P<unit>[A-Za-z]{1,3})(?:-(?P<anchor>[A-Za-z]{3}))?$")
+_MULTIPLE = re.compile(r"^\d{7,}")
 
 
 @dataclass(frozen=True)
@@ -54,24 +79,48 @@ def parse_frequency(text: str, first: pd.Timestamp | None, field: str) -> pd.Dat
     text = text.strip()
     if text.startswith("P"):
         return _from_duration(text, first, field)
+    if _MULTIPLE.match(text):
+        raise SeriesError("the frequency's multiple has more than six digits", field=field)
     try:
-        offset = to_offset(text)
-    except (ValueError, TypeError) as exc:
+        offset = to_offset(_current_alias(text))
+    except (ValueError, TypeError, OverflowError) as exc:
         raise SeriesError(
-            f"unknown frequency {text!r}: give an ISO 8601 duration such as P1D, P1W, P1M, "
-            "PT1H, or a pandas alias such as D, W-MON, MS, h",
+            f"unknown frequency {_excerpt(text)}: give an ISO 8601 duration such as P1D, P1W, "
+            "P1M, PT1H, or an alias such as D, W-MON, MS, M, Q, Y, h, min, s",
             field=field,
         ) from exc
     if offset is None or step_of(offset) is None:
-        raise SeriesError(f"unsupported frequency {text!r}", field=field)
+        raise SeriesError(
+            f"unsupported frequency {_excerpt(text)} (steps of a second or longer only)",
+            field=field,
+        )
     return offset
+
+
+def _excerpt(text: str) -> str:
+    """The caller's text quoted, cut short: a problem never echoes a long input."""
+    return repr(text if len(text) <= 40 else text[:40] + "...")
+
+
+def _current_alias(text: str) -> str:
+    """``3M`` -> ``3ME``, ``q-jun`` -> ``QE-JUN``, ``15T`` -> ``15min``; other text unchanged."""
+    match = _ALIAS.match(text)
+    if match is None:
+        return text
+    unit = _SPELLINGS.get(match["unit"]) or _SPELLINGS.get(match["unit"].upper())
+    if unit is None or (match["unit"] in ("ms", "MS")):
+        return text  # a current alias (or ms/MS, which differ by case), for pandas to read
+    anchor = f"-{match['anchor'].upper()}" if match["anchor"] else ""
+    return f"{match['count'] or ''}{unit}{anchor}"
 
 
 def _from_duration(text: str, first: pd.Timestamp | None, field: str) -> pd.DateOffset:
     match = _ISO_DURATION.match(text)
     parts = {k: int(v) for k, v in (match.groupdict().items() if match else []) if v}
     if not match or not parts or not any(parts.values()):
-        raise SeriesError(f"invalid ISO 8601 duration {text!r}", field=field)
+        raise SeriesError(f"invalid ISO 8601 duration {_excerpt(text)}", field=field)
+    if any(len(v) > 6 for v in match.groupdict().values() if v):
+        raise SeriesError("a duration's numbers have at most six digits", field=field)
     calendar = {k for k in ("years", "months", "weeks") if k in parts}
     clock = {k for k in ("days", "hours", "minutes", "seconds") if k in parts}
     if len(calendar) > 1 or (calendar and clock):
@@ -143,7 +192,9 @@ def step_of(offset: pd.DateOffset) -> Step | None:
     if isinstance(offset, offsets.Day):
         return Step("seconds", 86400 * n)
     if isinstance(offset, offsets.Tick):
-        return Step("seconds", int(pd.Timedelta(offset).total_seconds()))
+        seconds = pd.Timedelta(offset).total_seconds()
+        # Sub-second steps (ms, us, ns) are not supported: the defaults divide by seconds.
+        return Step("seconds", int(seconds)) if seconds >= 1 and seconds.is_integer() else None
     if type(offset) is pd.DateOffset:
         kwds = offset.kwds
         if set(kwds) == {"months"}:

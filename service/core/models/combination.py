@@ -67,11 +67,13 @@ class CombinationSpec:
             raise SpecificationError(
                 f"weights has {w.size} entries for {count} members", "model.weights"
             )
-        if not np.all(np.isfinite(w)) or np.any(w < 0) or w.sum() <= 0:
+        if not np.all(np.isfinite(w)) or np.any(w < 0) or not np.any(w > 0):
             raise SpecificationError(
                 "weights must be non-negative with a positive sum", "model.weights"
             )
-        return w / w.sum()
+        # Scaled by the largest first: [1e308, 1e308] summed to inf and gave zero weights.
+        scaled = w / w.max()
+        return np.asarray(scaled / scaled.sum())
 
     def fit(self, y: pd.Series, seasonal_period: int = 1) -> CombinationFitted:
         """Fit every member on the same history; a member's error names its position."""

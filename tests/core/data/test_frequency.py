@@ -140,3 +140,40 @@ def test_default_seasonal_periods_follow_the_table(text: str, period: int) -> No
 )
 def test_steps_reduce_to_one_unit(text: str, step: Step) -> None:
     assert step_of(parse_frequency(text, None, "frequency")) == step
+
+
+@pytest.mark.parametrize(
+    ("text", "name"),
+    [
+        ("M", "ME"),
+        ("m", "ME"),
+        ("3M", "3ME"),
+        ("Q", "QE-DEC"),
+        ("q-jun", "QE-JUN"),
+        ("Y", "YE-DEC"),
+        ("A", "YE-DEC"),
+        ("a-dec", "YE-DEC"),
+        ("AS", "YS-JAN"),
+        ("H", "h"),
+        ("2H", "2h"),
+        ("T", "min"),
+        ("15T", "15min"),
+        ("S", "s"),
+        ("s", "s"),
+        ("d", "D"),
+        ("MS", "MS"),
+        ("min", "min"),
+    ],
+)
+def test_spellings_people_write_mean_the_steps_they_name(text: str, name: str) -> None:
+    assert frequency_name(parse_frequency(text, None, "frequency")) == name
+
+
+@pytest.mark.parametrize(
+    "text",
+    ["99999999999999999999D", "P99999999999999999999D", "1000000D", "P1234567D", "ms", "10ms", "L"],
+)
+def test_overflowing_and_sub_second_frequencies_are_refused(text: str) -> None:
+    with pytest.raises(SeriesError) as caught:
+        parse_frequency(text, None, "series.frequency")
+    assert [p.field for p in caught.value.problems] == ["series.frequency"]

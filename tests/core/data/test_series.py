@@ -8,8 +8,14 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from service.core.data.series import Aggregation, parse_series
-from service.core.errors import SeriesError
+from service.core.data.frequency import parse_frequency
+from service.core.data.series import (
+    Aggregation,
+    check_horizon_in_range,
+    grid_length,
+    parse_series,
+)
+from service.core.errors import RequestError, SeriesError
 
 
 def problem_fields(**kwargs: Any) -> list[str]:
@@ -266,3 +272,73 @@ def test_irregular_with_a_frequency_becomes_gaps_not_an_error() -> None:
     )
     assert parsed.y.size == 5
     assert np.isnan(parsed.y.iloc[3])
+
+
+@pytest.mark.parametrize(
+    ("first", "last", "frequency", "points"),
+    [
+        ("2024-01-01", "2024-01-31", "D", 31),
+        ("2024-01-01T00:00", "2024-01-01T23:00", "h", 24),
+        ("2024-01-31", "2024-12-31", "ME", 12),
+        ("2024-01-01", "2026-01-01", "QS-JAN", 9),
+        ("2024-01-01", "2024-12-30", "W-MON", 53),
+        ("1700-01-01", "2200-01-01", "min", 262_974_241),
+    ],
+)
+def test_the_grid_is_sized_without_being_built(
+    first: str, last: str, frequency: str, points: int
+) -> None:
+    offset = parse_frequency(frequency, None, "frequency")
+    assert grid_length(pd.Timestamp(first), pd.Timestamp(last), offset) == points
+
+
+def test_a_grid_over_the_point_limit_is_refused_before_it_is_built() -> None:
+    with pytest.raises(SeriesError) as caught:
+        parse_series(
+            [1.0, 2.0, 3.0],
+            timestamps=["1700-01-01T00:00", "1900-01-01T00:00", "2200-01-01T00:00"],
+            frequency="PT1M",
+            max_points=1_000,
+        )
+    assert caught.value.problems[0].field == "frequency"
+    assert "262974241" in caught.value.message
+
+
+@pytest.mark.parametrize(
+    ("series", "field"),
+    [
+        ({"timestamps": ["0001-01-01", "0001-01-02", "0001-01-03"]}, "timestamps[0]"),
+        ({"timestamps": ["2024-01-01", "2024-01-02", "9999-01-03"]}, "timestamps[2]"),
+        ({"start": "9999-01-01", "frequency": "D"}, "start"),
+        ({"start": "2261-12-30", "frequency": "D"}, "start"),
+        ({"timestamps": ["2024-01-01" + "0" * 100, "2024-01-02", "2024-01-03"]}, "timestamps[0]"),
+        ({"start": "2024-01-01" + " " * 100, "frequency": "D"}, "start"),
+    ],
+)
+def test_timestamps_out_of_range_or_too_long_name_the_field(
+    series: dict[str, Any], field: str
+) -> None:
+    with pytest.raises(SeriesError) as caught:
+        parse_series([1.0, 2.0, 3.0], **series)
+    assert caught.value.problems[0].field == field
+    assert len(caught.value.message) < 200
+
+
+def test_aggregation_to_a_finer_step_is_refused() -> None:
+    with pytest.raises(SeriesError) as caught:
+        parse_series([1.0] * 10, start="2024-01-01", frequency="D", aggregate=Aggregation("PT1S"))
+    assert caught.value.problems[0].field == "aggregate.frequency"
+
+
+def test_values_beyond_the_magnitude_bound_name_their_index() -> None:
+    with pytest.raises(SeriesError) as caught:
+        parse_series([1.0, 1e31, 2.0, -1e300], start="2024-01-01", frequency="D")
+    assert [p.field for p in caught.value.problems] == ["values[1]", "values[3]"]
+
+
+def test_a_horizon_past_the_supported_range_is_refused() -> None:
+    parsed = parse_series([1.0, 2.0, 3.0], start="2261-01-01", frequency="MS")
+    check_horizon_in_range(parsed.y.index, 3)
+    with pytest.raises(RequestError) as caught:
+        check_horizon_in_range(parsed.y.index, 24)
+    assert caught.value.problems[0].field == "horizon"

@@ -118,3 +118,24 @@ def test_bad_weights_name_the_field(weights: list[object], field: str) -> None:
     with pytest.raises(SpecificationError) as err:
         registry.specification_from_dict(data).fit(series(), 12)
     assert err.value.problems[0].field == field
+
+
+@pytest.mark.parametrize(
+    ("weights", "expected"),
+    [
+        ((1e308, 1e308), (0.5, 0.5)),
+        ((1e308, 1e307), (10 / 11, 1 / 11)),
+        ((5e-324, 0.0), (1.0, 0.0)),
+        ((3.0, 1.0), (0.75, 0.25)),
+    ],
+)
+def test_weights_are_normalised_without_overflow(
+    weights: tuple[float, float], expected: tuple[float, float]
+) -> None:
+    spec = CombinationSpec(members=(NaiveSpec(), DriftSpec()), weights=weights)
+    assert_allclose(spec.normalised_weights(), expected)
+    y = series()
+    point = spec.fit(y).forecast(3, (0.8,)).point
+    naive = NaiveSpec().fit(y).forecast(3, (0.8,)).point
+    drift = DriftSpec().fit(y).forecast(3, (0.8,)).point
+    assert_allclose(point, expected[0] * naive + expected[1] * drift)
