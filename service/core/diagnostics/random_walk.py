@@ -223,33 +223,31 @@ def _graded(
     phi = decision.distinguishable_coefficient
     what = "random walk with drift" if drift else "random walk"
     last = "the last value plus the average step" if drift else "the last value"
+    anchor = "its trend" if drift else "a mean"
     if decision.unit_root:
+        half = _steps(symmetric_test.half_life(phi))
         if phi >= CLOSE_TO_ONE:
             reason = (
-                f"The tests keep a unit root and the changes from step to step look like "
-                f"independent noise: this is a {what}. With {n} points the tests would have "
-                f"caught a series that drifts back to {'its trend' if drift else 'a mean'} "
-                "fast enough to matter, so no model is expected to forecast much better than "
-                f"{last}."
+                f"This is a {what}: its changes from step to step look like independent noise "
+                f"and nothing pulls it back towards {anchor}. With {n} points the tests would "
+                f"have noticed a pull strong enough to matter (one that closes half of any gap "
+                f"within {half}), so no model is expected to forecast much better than {last}."
             )
             return RandomWalkVerdict("random_walk", drift, 1, reason, evidence, lags)
-        half = symmetric_test.half_life(phi)
         reason = (
-            f"The series behaves like a {what} over this history: the changes from step to "
-            f"step look like independent noise and the tests keep a unit root. With only {n} "
-            "points they cannot tell it from a series that slowly returns to "
-            f"{'its trend' if drift else 'a mean'} (one that closes half of any gap in "
-            f"{half:.0f} steps or more); either way {last} is as good a forecast as any model "
-            "at short horizons."
+            f"The series behaves like a {what} over this history: its changes from step to "
+            f"step look like independent noise and nothing shows it being pulled back towards "
+            f"{anchor}. With only {n} points, though, the tests cannot tell it from a series "
+            f"that returns to {anchor} slowly (closing half of any gap in {half} or more); "
+            f"either way {last} is as good a forecast as any model at short horizons."
         )
         return RandomWalkVerdict("behaves_like_random_walk", drift, 1, reason, evidence, lags)
     rho = decision.coefficient
     if rho is not None and rho >= CLOSE_TO_ONE:
-        half = symmetric_test.half_life(rho)
-        when = f"about {half:.0f} steps" if half is not None else "many steps"
+        half = _steps(symmetric_test.half_life(rho))
         reason = (
-            f"The series returns to {'its trend' if drift else 'a mean'}, but so slowly "
-            f"(estimated coefficient {rho:.3f}: half of any gap closes in {when}) that "
+            f"The series returns to {anchor}, but so slowly (it closes about "
+            f"{(1 - rho) * 100:.0f} % of any gap each step, half of it in about {half}) that "
             f"{last} stays within 5 % of the best forecast one step ahead: it behaves like a "
             f"{what} at short horizons."
         )
@@ -260,6 +258,14 @@ def _graded(
         "pull back towards it forecasts better than the last value."
     )
     return RandomWalkVerdict("not_random_walk", False, 0, reason, evidence, ())
+
+
+def _steps(half_life: float | None) -> str:
+    """'5 steps', or 'many steps' when there is no finite half-life."""
+    if half_life is None:
+        return "many steps"
+    rounded = max(1, round(half_life))
+    return f"{rounded} step{'s' if rounded > 1 else ''}"
 
 
 def _seasonal(check: SeasonalCheck, m: int, evidence: dict[str, Any]) -> RandomWalkVerdict:

@@ -83,6 +83,7 @@ def test_the_grade_follows_the_power_of_the_length() -> None:
     assert 0.8 < power["largest_distinguishable_coefficient"] < 0.9
     assert power["smallest_distinguishable_root"] > 1.1
     assert "cannot tell" in short[0].reason and "100 points" in short[0].reason
+    assert "5 steps or more" in short[0].reason  # the half-life of AR(1) 0.857
 
 
 def test_a_near_unit_root_series_is_said_to_be_indistinguishable() -> None:
