@@ -18,7 +18,8 @@ from statsmodels.tsa.statespace.sarimax import SARIMAX
 from threadpoolctl import threadpool_limits
 
 from service.core.models.arima.family import ArimaSpec
-from service.core.models.arima.search import SearchLimits, search_orders
+from service.core.models.arima.search import search_orders
+from service.core.models.arima.walk import SearchLimits
 
 HORIZON = 12
 REPEATS = 3

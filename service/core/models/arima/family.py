@@ -24,14 +24,8 @@ from statsmodels.tsa.statespace.sarimax import SARIMAX
 from service.core.checks import check_coverage, check_positive_int
 from service.core.data.regressors import aligned_future, aligned_history
 from service.core.errors import FitError, SeriesError, SpecificationError
-from service.core.models.arima.estimation import (
-    ArimaOrders,
-    Estimate,
-    css_estimate,
-    design_matrix,
-    difference,
-    exact_estimate,
-)
+from service.core.models.arima.estimation import css_estimate, exact_estimate
+from service.core.models.arima.orders import ArimaOrders, Estimate, design_matrix, difference
 from service.core.models.arima.search import EFFORTS, OrderSearchResult, search_orders
 from service.core.models.base import (
     Description,

@@ -11,10 +11,8 @@ few points (more when an MA root nears the unit circle).
 
 from __future__ import annotations
 
-import math
 import time
-from collections.abc import Iterable
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
@@ -23,13 +21,12 @@ from service.core.applicability import NotApplicable
 from service.core.diagnostics.differencing import DifferencingOrders, orders_from
 from service.core.diagnostics.seasonality import decompose
 from service.core.errors import FitError, SpecificationError
-from service.core.models.arima.estimation import (
-    ArimaOrders,
-    Estimate,
-    css_estimate,
-    design_matrix,
-    difference,
-    exact_estimate,
+from service.core.models.arima.orders import ArimaOrders, Estimate, difference
+from service.core.models.arima.walk import (
+    Bounds,
+    CandidateScore,
+    SearchLimits,
+    StepwiseWalk,
 )
 from service.core.models.base import FitWarning
 
@@ -49,16 +46,6 @@ class DifferencingChoice:
 
 
 @dataclass(frozen=True)
-class CandidateScore:
-    """One row of the search table: an order, its CSS AICc and (if fitted) its exact AICc."""
-
-    label: str
-    orders: ArimaOrders
-    css_aicc: float
-    exact_aicc: float | None
-
-
-@dataclass(frozen=True)
 class OrderSearchResult:
     """The chosen orders, the exact estimate of the winner and the table of what was tried."""
 
@@ -68,24 +55,6 @@ class OrderSearchResult:
     table: tuple[CandidateScore, ...]
     stage_seconds: dict[str, float]
     warnings: tuple[FitWarning, ...] = ()
-
-
-@dataclass(frozen=True)
-class SearchLimits:
-    """Largest orders the walk may visit (H&K defaults) and the screening settings."""
-
-    max_p: int = 5
-    max_q: int = 5
-    max_P: int = 2
-    max_Q: int = 2
-    max_order: int = 5
-    max_d: int = 2
-    max_D: int = 1
-    margin: float = 6.0
-    finalists: int = 3
-    exact_maxiter: int = 30
-    screen: bool = True
-    quick_finalists: int = 2
 
 
 def choose_differencing(y: np.ndarray, seasonal_period: int) -> DifferencingChoice:
@@ -170,7 +139,7 @@ def search_orders(
                 f"no constant with d + D = {d + D}: it would imply a polynomial trend of degree 2",
             )
         )
-    walk = _Walk(
+    walk = StepwiseWalk(
         values,
         regressors,
         regressor_names,
@@ -246,18 +215,12 @@ def _matched(
     return DifferencingChoice(d, D, f"d + D = {total}, as the constant asks")
 
 
-@dataclass(frozen=True)
-class _Bounds:
-    low: tuple[int, int, int, int]
-    high: tuple[int, int, int, int]
-
-
 def _bounds(
     order: tuple[int, int, int] | None,
     seasonal_order: tuple[int, int, int] | None,
     seasonal_ok: bool,
     limits: SearchLimits,
-) -> _Bounds:
+) -> Bounds:
     lo = [0, 0, 0, 0]
     hi = [limits.max_p, limits.max_q, limits.max_P, limits.max_Q]
     if order is not None:
@@ -268,7 +231,7 @@ def _bounds(
         lo[3] = hi[3] = seasonal_order[2]
     elif not seasonal_ok:
         hi[2] = hi[3] = 0
-    return _Bounds((lo[0], lo[1], lo[2], lo[3]), (hi[0], hi[1], hi[2], hi[3]))
+    return Bounds((lo[0], lo[1], lo[2], lo[3]), (hi[0], hi[1], hi[2], hi[3]))
 
 
 def _constant_options(fit_constant: bool | None, allowed: bool) -> tuple[bool, ...]:
@@ -296,171 +259,6 @@ def _starting_points(
             P, Q = seasonal_order[0], seasonal_order[2]
         out.append((p, q, P, Q))
     return out
-
-
-_MOVES: tuple[tuple[int, int, int, int], ...] = (
-    (1, 0, 0, 0), (-1, 0, 0, 0), (0, 1, 0, 0), (0, -1, 0, 0),
-    (0, 0, 1, 0), (0, 0, -1, 0), (0, 0, 0, 1), (0, 0, 0, -1),
-    (1, 1, 0, 0), (-1, -1, 0, 0), (1, -1, 0, 0), (-1, 1, 0, 0),
-    (0, 0, 1, 1), (0, 0, -1, -1), (0, 0, 1, -1), (0, 0, -1, 1),
-)  # fmt: skip
-
-
-@dataclass
-class _Walk:
-    """State of one search: the differenced data, the tables of CSS and exact estimates."""
-
-    values: np.ndarray
-    regressors: np.ndarray | None
-    regressor_names: tuple[str, ...]
-    m: int
-    d: int
-    D: int
-    bounds: _Bounds
-    constants: tuple[bool, ...]
-    limits: SearchLimits
-    css: dict[ArimaOrders, Estimate] = field(default_factory=dict)
-    exact: dict[ArimaOrders, Estimate | None] = field(default_factory=dict)
-
-    def orders(self, point: tuple[int, int, int, int], constant: bool) -> ArimaOrders | None:
-        p, q, P, Q = point
-        lo, hi = self.bounds.low, self.bounds.high
-        if not all(lo[i] <= point[i] <= hi[i] for i in range(4)):
-            return None
-        if p + q + P + Q > max(self.limits.max_order, sum(lo)):
-            return None
-        return ArimaOrders(p, self.d, q, P, self.D, Q, self.m, constant)
-
-    def _design(self, orders: ArimaOrders) -> np.ndarray | None:
-        x = design_matrix(orders, self.regressors, 0, self.values.size)
-        return None if x is None else difference(x, self.d, self.D, self.m)
-
-    def _score_from(self) -> int:
-        """One scoring window for every CSS fit: after the largest conditioning in the bounds,
-        kept to at most a third of the differenced series."""
-        hi = self.bounds.high
-        largest = hi[0] + self.m * hi[2]
-        return min(largest, (self.values.size - self.d - self.m * self.D) // 3)
-
-    def _w(self) -> np.ndarray:
-        return difference(self.values, self.d, self.D, self.m)
-
-    def css_score(self, orders: ArimaOrders) -> float:
-        if orders not in self.css:
-            self.css[orders] = css_estimate(
-                self._w(), self._design(orders), orders, self.regressor_names, self._score_from()
-            )
-        return self.css[orders].aicc
-
-    def exact_score(self, orders: ArimaOrders) -> float:
-        if orders not in self.exact:
-            try:
-                self.exact[orders] = exact_estimate(
-                    self._w(),
-                    self._design(orders),
-                    orders,
-                    self.regressor_names,
-                    start=self.css.get(orders),
-                    maxiter=self.limits.exact_maxiter,
-                )
-            except ArithmeticError:
-                self.exact[orders] = None
-        found = self.exact[orders]
-        return found.aicc if found is not None else math.inf
-
-    def neighbours(self, orders: ArimaOrders) -> Iterable[ArimaOrders]:
-        here = (orders.p, orders.q, orders.P, orders.Q)
-        for move in _MOVES:
-            point = (here[0] + move[0], here[1] + move[1], here[2] + move[2], here[3] + move[3])
-            found = self.orders(point, orders.constant)
-            if found is not None:
-                yield found
-        for constant in self.constants:
-            if constant != orders.constant:
-                yield orders.with_constant(constant)
-
-    def css_walk(self, starts: list[tuple[int, int, int, int]]) -> None:
-        """The stepwise walk on CSS AICc: move to the first better neighbour until none is."""
-        candidates = [o for s in starts if (o := self.orders(s, self.constants[0])) is not None]
-        if not candidates:
-            raise FitError("no admissible order within the search limits", field="model.order")
-        best = min(candidates, key=self.css_score)
-        improved = True
-        while improved and len(self.css) < 94:
-            improved = False
-            for other in self.neighbours(best):
-                if self.css_score(other) < self.css_score(best):
-                    best, improved = other, True
-                    break
-
-    def exact_walk(self, starts: list[tuple[int, int, int, int]]) -> Estimate:
-        """The unscreened stepwise walk with an exact fit of every candidate (for comparison)."""
-        candidates = [o for s in starts if (o := self.orders(s, self.constants[0])) is not None]
-        if not candidates:
-            raise FitError("no admissible order within the search limits", field="model.order")
-        best = min(candidates, key=self.exact_score)
-        improved = True
-        while improved and len(self.exact) < 94:
-            improved = False
-            for other in self.neighbours(best):
-                self.css_score(other)
-                if self.exact_score(other) < self.exact_score(best):
-                    best, improved = other, True
-                    break
-        return self._winner(best)
-
-    def exact_stage(self) -> Estimate:
-        """Exact fits of the CSS finalists, then the exact walk around the exact winner."""
-        ranked = sorted(self.css, key=lambda o: self.css[o].aicc)
-        top = self.css[ranked[0]].aicc
-        plausible = [o for o in ranked if self.css[o].aicc <= top + self.limits.margin]
-        for orders in plausible[: self.limits.finalists]:
-            self.exact_score(orders)
-        best = min(self.exact, key=self.exact_score)
-        improved = True
-        while improved:
-            improved = False
-            for other in self.neighbours(best):
-                # Dominated: CSS puts it far behind the exact best; skip the exact fit.
-                if self.css_score(other) > self.css_score(best) + self.limits.margin:
-                    continue
-                if self.exact_score(other) < self.exact_score(best):
-                    best, improved = other, True
-                    break
-        return self._winner(best)
-
-    def quick_stage(self) -> Estimate:
-        """Exact fits of the best CSS orders only (a few ms each); the lowest exact AICc wins."""
-        ranked = sorted(self.css, key=lambda o: self.css[o].aicc)
-        for orders in ranked[: self.limits.quick_finalists]:
-            self.exact_score(orders)
-        fitted = [o for o, est in self.exact.items() if est is not None]
-        if not fitted:
-            # Both finalists failed: fall back to the exact walk's safety net, one at a time.
-            for orders in ranked[self.limits.quick_finalists :]:
-                if math.isfinite(self.exact_score(orders)):
-                    fitted = [orders]
-                    break
-        return self._winner(min(fitted, key=self.exact_score) if fitted else ranked[0])
-
-    def _winner(self, best: ArimaOrders) -> Estimate:
-        winner = self.exact.get(best)
-        if winner is None:
-            raise FitError(
-                "every candidate order failed to fit by maximum likelihood", field="model.order"
-            )
-        return winner
-
-    def table(self) -> tuple[CandidateScore, ...]:
-        rows = []
-        for orders, est in sorted(self.css.items(), key=lambda kv: kv[1].aicc):
-            exact = self.exact.get(orders)
-            rows.append(
-                CandidateScore(
-                    orders.label, orders, est.aicc, exact.aicc if exact is not None else None
-                )
-            )
-        return tuple(rows)
 
 
 def _interpolated(x: np.ndarray) -> np.ndarray:

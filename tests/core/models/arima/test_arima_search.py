@@ -10,9 +10,11 @@ from statsmodels.tsa.statespace.sarimax import SARIMAX
 from threadpoolctl import threadpool_limits
 
 from service.core.errors import SpecificationError
-from service.core.models.arima.estimation import ArimaOrders, css_estimate, difference
+from service.core.models.arima.estimation import css_estimate
 from service.core.models.arima.likelihood import ArmaShape, profile
-from service.core.models.arima.search import SearchLimits, search_orders
+from service.core.models.arima.orders import ArimaOrders, difference
+from service.core.models.arima.search import search_orders
+from service.core.models.arima.walk import SearchLimits
 
 
 @pytest.fixture(autouse=True)
