@@ -54,6 +54,8 @@ def _serve(args: argparse.Namespace) -> int:
         loop="auto",
         http="auto",
         timeout_graceful_shutdown=math.ceil(settings.shutdown_grace_seconds),
+        # The h11 parser's own cap (httptools has none; the app's middleware caps both).
+        h11_max_incomplete_event_size=settings.max_header_bytes,
         log_level=settings.log_level,
         # The JSON request log (runtime/logs.py) is the access log: a second line per request
         # cost CPU on every cache hit.
