@@ -9,7 +9,7 @@ from __future__ import annotations
 import json
 import logging
 import sys
-from dataclasses import asdict, dataclass
+from dataclasses import dataclass
 from typing import IO, Any
 
 REQUEST_LOGGER = "windvane.requests"
@@ -65,7 +65,9 @@ def request_logger(stream: IO[str] | None = None) -> logging.Logger:
 
 def log_request(logger: logging.Logger, record: RequestRecord) -> None:
     """Write one request's line; a 5xx is logged as an error, everything else as info."""
-    fields = {k: v for k, v in asdict(record).items() if v is not None}
+    # vars(), not dataclasses.asdict: the fields are flat, and asdict deep-copies each one,
+    # a cost paid on every request, cache hits included.
+    fields = {k: v for k, v in vars(record).items() if v is not None}
     fields["duration_seconds"] = round(record.duration_seconds, 6)
     level = logging.ERROR if record.status >= 500 else logging.INFO
     logger.log(level, "request", extra={"windvane": fields})
