@@ -7,13 +7,14 @@ Not a test module: imported by tests/test_shutdown.py and tests/test_prometheus_
 from __future__ import annotations
 
 import os
+import re
 import shutil
 import signal
 import socket
 import subprocess
 import sys
 import time
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
@@ -100,6 +101,23 @@ def stop(server: LiveServer, seconds: float = 30.0) -> int | None:
             server.process.wait(timeout=10)
             return None
     return server.process.returncode
+
+
+def gauge(server: LiveServer, name: str) -> float:
+    """The current value of an unlabelled gauge on the server's /metrics (0 when absent)."""
+    text = httpx.get(server.url + "/metrics", timeout=5).text
+    found = re.search(rf"^{name}(?:\{{[^}}]*\}})? ([0-9.e+-]+)$", text, re.M)
+    return float(found.group(1)) if found else 0.0
+
+
+def wait_until(condition: Callable[[], bool], what: str, seconds: float = 30.0) -> None:
+    """Poll ``condition`` every 20 ms; fail naming ``what`` if it never holds."""
+    deadline = time.monotonic() + seconds
+    while time.monotonic() < deadline:
+        if condition():
+            return
+        time.sleep(0.02)
+    raise AssertionError(f"{what} never happened within {seconds:g} s")
 
 
 @contextmanager

@@ -11,31 +11,15 @@ import json
 import re
 import socket
 import threading
-import time
 from pathlib import Path
 from typing import Any
 
 import httpx
 import pytest
-from live_server import LiveServer, running
+from live_server import LiveServer, gauge, running, wait_until
 from test_shutdown import slow_body
 
 pytestmark = [pytest.mark.server, pytest.mark.slow]
-
-
-def gauge(server: LiveServer, name: str) -> float:
-    text = httpx.get(server.url + "/metrics", timeout=5).text
-    found = re.search(rf"^{name}(?:\{{[^}}]*\}})? ([0-9.e+-]+)$", text, re.M)
-    return float(found.group(1)) if found else 0.0
-
-
-def wait_until(condition: Any, seconds: float = 30.0) -> None:
-    deadline = time.monotonic() + seconds
-    while time.monotonic() < deadline:
-        if condition():
-            return
-        time.sleep(0.02)
-    raise AssertionError("the condition never held")
 
 
 def raw_post(server: LiveServer, body: bytes) -> socket.socket:
@@ -55,7 +39,11 @@ def test_queue_drops_a_client_that_left_and_a_full_queue_refuses_before_reading(
 ) -> None:
     answers: list[httpx.Response | BaseException] = []
     with running(tmp_path, cache="off", pool_workers="1", queue_size="1") as server:
-        wait_until(lambda: httpx.get(server.url + "/readyz", timeout=5).status_code == 200, 120)
+        wait_until(
+            lambda: httpx.get(server.url + "/readyz", timeout=5).status_code == 200,
+            "readiness",
+            120,
+        )
 
         def post(body: dict[str, Any]) -> None:
             try:
@@ -65,19 +53,19 @@ def test_queue_drops_a_client_that_left_and_a_full_queue_refuses_before_reading(
 
         holder = threading.Thread(target=post, args=(slow_body(("add", "mul")),))
         holder.start()
-        wait_until(lambda: gauge(server, "windvane_pool_busy_workers") >= 1)
+        wait_until(lambda: gauge(server, "windvane_pool_busy_workers") >= 1, "a busy worker")
 
         # A second client queues behind it, then hangs up: its job must leave the queue.
         leaver = raw_post(server, json.dumps(slow_body(("mul",))).encode())
-        wait_until(lambda: gauge(server, "windvane_pool_queue_depth") >= 1)
+        wait_until(lambda: gauge(server, "windvane_pool_queue_depth") >= 1, "a queued job")
         leaver.close()
-        wait_until(lambda: gauge(server, "windvane_pool_queue_depth") == 0, 10)
+        wait_until(lambda: gauge(server, "windvane_pool_queue_depth") == 0, "an empty queue", 10)
         assert holder.is_alive(), "the slow forecast ended before the check"
 
         # Fill the queue again, then a request that is not even JSON: refused unread.
         waiter = threading.Thread(target=post, args=(slow_body(("mul",)),))
         waiter.start()
-        wait_until(lambda: gauge(server, "windvane_pool_queue_depth") >= 1)
+        wait_until(lambda: gauge(server, "windvane_pool_queue_depth") >= 1, "a full queue")
         refused = httpx.post(server.url + "/v1/forecasts", content=b"{not json", timeout=10)
         assert refused.status_code == 503, refused.text
         assert refused.headers["content-type"] == "application/problem+json"

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import re
 import signal
 import threading
 import time
@@ -11,7 +10,7 @@ from pathlib import Path
 import httpx
 import numpy as np
 import pytest
-from live_server import LiveServer, running
+from live_server import LiveServer, gauge, running, wait_until
 
 pytestmark = [pytest.mark.server, pytest.mark.slow]
 
@@ -34,19 +33,12 @@ def slow_body(errors: tuple[str, ...]) -> dict[str, object]:
     }
 
 
-def busy_workers(server: LiveServer) -> float:
-    text = httpx.get(server.url + "/metrics", timeout=5).text
-    found = re.search(r"^windvane_pool_busy_workers(?:\{[^}]*\})? ([0-9.e+-]+)$", text, re.M)
-    return float(found.group(1)) if found else 0.0
-
-
 def wait_for_busy_pool(server: LiveServer, seconds: float = 30.0) -> None:
-    deadline = time.monotonic() + seconds
-    while time.monotonic() < deadline:
-        if busy_workers(server) >= 1:
-            return
-        time.sleep(0.02)
-    raise AssertionError("the slow forecast never reached the pool")
+    wait_until(
+        lambda: gauge(server, "windvane_pool_busy_workers") >= 1,
+        "the slow forecast reaching the pool",
+        seconds,
+    )
 
 
 def test_sigterm_lets_the_in_flight_forecast_finish_and_exits_zero(tmp_path: Path) -> None:
