@@ -4,9 +4,8 @@ The random-walk verdict asks whether a series with uncorrelated differences is a
 a stationary series that returns to its mean. For that question the weighted symmetric
 estimator of the autoregressive coefficient (Pantula, Gonzalez-Farias & Fuller 1994; from
 memory) gives a more powerful test than the Dickey-Fuller regression when the series starts in
-its stationary distribution, as a series observed in mid-course does: in seeded simulations at
-100 points it rejected a unit root for AR(1) 0.8 about 97 times in 100 against 95 for the
-Dickey-Fuller coefficient test at the same 5 % size (tests/benchmarks/RESULTS.md).
+its stationary distribution, as a series observed in mid-course does (measured:
+``python -m tests.benchmarks.random_walk --tests``, figures in tests/benchmarks/RESULTS.md).
 
 Its critical values and power have no closed form. Both come from ``simulate`` with a fixed
 seed: the critical values as a response surface a + b/n + c/n² in the series length (the
@@ -110,6 +109,11 @@ def _statistics(y: np.ndarray, terms: Terms) -> tuple[np.ndarray, np.ndarray]:
     inner = np.einsum("ij,ij->i", z[:, 1:-1], z[:, 1:-1])
     rho = lagged / (inner + np.einsum("ij,ij->i", z, z) / n)
     return n * (rho - 1.0), rho
+
+
+def row_statistics(y: np.ndarray, terms: Terms = "c") -> np.ndarray:
+    """The statistic of each row of y (for simulations)."""
+    return _statistics(y, terms)[0]
 
 
 def critical_value(terms: Terms, level: float, n: int) -> float:
