@@ -1,4 +1,4 @@
-"""The `windvane` command: serve, forecast, diagnose, openapi, demo."""
+"""The `windvane` command: serve, forecast, diagnose, batch, openapi, demo."""
 
 from __future__ import annotations
 
@@ -11,7 +11,7 @@ import signal
 import sys
 from pathlib import Path
 from types import FrameType
-from typing import Any
+from typing import Any, NoReturn
 
 
 def _exit_after_drain(signum: int, frame: FrameType | None) -> None:
@@ -83,53 +83,232 @@ def _demo(args: argparse.Namespace) -> int:
             sys.stdout.write(f"{name}\t{make().label}\n")
         return 0
     if args.name not in demo.SCENARIO:
-        sys.stderr.write(f"unknown demo series {args.name!r}; try `windvane demo list`\n")
-        return 2
+        raise CommandError(f"unknown demo series {args.name!r}; try `windvane demo list`", 2)
+    if args.horizon is not None:
+        check_options(horizon=args.horizon)
     body: dict[str, Any] = demo.request_body(args.name, args.kind, horizon=args.horizon)
     sys.stdout.write(json.dumps(body, indent=None) + "\n")
     return 0
 
 
-def _local(args: argparse.Namespace, path: str) -> int:
-    """Answer one request in this process (no server, no pool): JSON from a file or stdin."""
+class CommandError(Exception):
+    """A failure the command reports as one line on stderr, with its exit status."""
+
+    def __init__(self, message: str, status: int = 1) -> None:
+        super().__init__(message)
+        self.status = status
+
+
+OPTION_NAMES = {"horizon": "--horizon", "coverage": "--coverage", "model": "--model"}
+
+
+def check_options(
+    horizon: int | None = None,
+    coverage: list[float] | None = None,
+    model: str | dict[str, Any] | None = None,
+) -> None:
+    """Check command-line options exactly as POST /v1/forecasts checks the same fields."""
+    from pydantic import ValidationError
+
+    from service.api.problems import validation_problem
+    from service.api.schemas.forecasts import ForecastRequest
+    from service.api.tasks import forecast_task
+    from service.config import Settings
+    from service.core.errors import WindvaneError
+
+    given = {"horizon": horizon, "coverage": coverage, "model": model}
+    body = {
+        "series": {"start": "2000-01-01", "frequency": "D", "values": [1.0, 2.0, 3.0]},
+        "horizon": 1,
+        **{k: v for k, v in given.items() if v is not None},
+    }
+    try:
+        forecast_task(ForecastRequest.model_validate(body), Settings())
+    except ValidationError as exc:
+        first = validation_problem(exc.errors())[3][0]
+        raise CommandError(f"{_option(first['field'])}: {first['message']}", 2) from None
+    except WindvaneError as exc:
+        found = exc.problems[0]
+        raise CommandError(f"{_option(found.field)}: {found.message}", 2) from None
+
+
+def _option(field: str) -> str:
+    head = field.split(".")[0].split("[")[0]
+    return OPTION_NAMES.get(head, field)
+
+
+def _read_body(file: str) -> str:
+    if file == "-":
+        return sys.stdin.read()
+    try:
+        return Path(file).read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise CommandError(f"no such file: {file}") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise CommandError(f"cannot read {file}: {exc}") from None
+
+
+def _problem_line(problem: dict[str, Any]) -> str:
+    """A problem as one line of JSON, for stderr."""
+    return json.dumps(problem, separators=(",", ":"), ensure_ascii=False) + "\n"
+
+
+def _answer(args: argparse.Namespace, path: str) -> int:
+    """Answer one request body from a file or stdin: in process, or by a service at --url."""
+    raw = _read_body(args.file)
+    if args.url:
+        return _remote(args.url, path, raw)
     from pydantic import ValidationError
 
     from service.api.local import answer
     from service.api.problems import domain_errors, validation_problem
     from service.core.errors import WindvaneError
 
-    raw = sys.stdin.read() if args.file == "-" else Path(args.file).read_text(encoding="utf-8")
     try:
         body = answer(path, raw)
     except ValidationError as exc:
         # The same status, field paths and messages as the HTTP problems.
-        status, _, detail, errors = validation_problem(exc.errors())
-        report = {"status": status, "detail": detail, "errors": errors}
-        sys.stderr.write(json.dumps(report, indent=2) + "\n")
+        status, _, detail, errors = validation_problem(exc.errors(), raw.encode("utf-8", "replace"))
+        sys.stderr.write(_problem_line({"status": status, "detail": detail, "errors": errors}))
         return 1
     except WindvaneError as exc:
         report = {"status": 422, "detail": exc.message, "errors": domain_errors(exc)}
-        sys.stderr.write(json.dumps(report, indent=2) + "\n")
+        sys.stderr.write(_problem_line(report))
         return 1
     sys.stdout.write(json.dumps(body, indent=2) + "\n")
     return 0
 
 
+def _remote(url: str, path: str, raw: str) -> int:
+    """POST the body to a running service; a problem goes to stderr as one line."""
+    import urllib.error
+    import urllib.request
+
+    if not url.startswith(("http://", "https://")):
+        raise CommandError(f"--url must start with http:// or https://, got {url!r}", 2)
+    request = urllib.request.Request(
+        url.rstrip("/") + path,
+        data=raw.encode("utf-8"),
+        headers={"content-type": "application/json", "accept": "application/json"},
+        method="POST",
+    )
+    key = os.environ.get("WINDVANE_CLIENT_KEY")
+    if key:
+        request.add_header("authorization", f"Bearer {key}")
+    try:
+        with urllib.request.urlopen(request, timeout=REMOTE_SECONDS) as reply:
+            text = reply.read().decode("utf-8")
+    except urllib.error.HTTPError as exc:
+        text = exc.read().decode("utf-8", "replace")
+        try:
+            problem = json.loads(text)
+        except ValueError:
+            problem = {"status": exc.code, "detail": text[:200]}
+        sys.stderr.write(_problem_line(problem))
+        return 1
+    except (urllib.error.URLError, OSError) as exc:
+        reason = getattr(exc, "reason", exc)
+        raise CommandError(f"cannot reach {url}: {reason}") from None
+    sys.stdout.write(json.dumps(json.loads(text), indent=2) + "\n")
+    return 0
+
+
+REMOTE_SECONDS = 300
+
+
+def _batch(args: argparse.Namespace) -> int:
+    from pydantic import SecretStr
+
+    from service import batch
+    from service.config import Settings
+    from service.runtime.fanout import scheduler_address
+
+    model: str | dict[str, Any] = args.model
+    if args.model.lstrip().startswith("{"):
+        try:
+            model = json.loads(args.model)
+        except ValueError as exc:
+            raise CommandError(f"--model: not valid JSON ({exc})", 2) from None
+    elif args.model != "auto":
+        model = {"family": args.model}
+    coverage = args.coverage or [0.8, 0.95]
+    check_options(horizon=args.horizon, coverage=coverage, model=model)
+    if args.workers < 1:
+        raise CommandError("--workers: must be at least 1", 2)
+    output = Path(args.output)
+    outputs = batch.Outputs(
+        output, Path(args.summary) if args.summary else batch.summary_path(output)
+    )
+    options = batch.Options(
+        horizon=args.horizon,
+        coverage=tuple(sorted(coverage)),
+        model=model,
+        frequency=args.frequency,
+        columns=batch.Columns(args.id_column, args.time_column, args.value_column),
+    )
+    settings = Settings()
+    if settings.cache_secret is None:
+        # The run's workers share disk entries only under one sealing secret: give them one
+        # (set WINDVANE_CACHE_SECRET to share across runs and with servers).
+        settings = settings.model_copy(update={"cache_secret": SecretStr(secrets.token_hex(32))})
+    try:
+        report = batch.run(
+            Path(args.input),
+            outputs,
+            options,
+            settings,
+            workers=args.workers,
+            scheduler=scheduler_address(args.scheduler),
+            progress=sys.stderr.isatty() and not args.quiet,
+        )
+    except batch.RunFailed as exc:
+        raise CommandError(str(exc)) from None
+    batch.print_report(report, outputs)
+    return 0
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse with its errors as one line (no usage block) and exit status 2."""
+
+    def error(self, message: str) -> NoReturn:
+        self.exit(2, f"{self.prog}: error: {message}\n")
+
+
+def _command(sub: Any, name: str, help_text: str, example: str) -> argparse.ArgumentParser:
+    parser: argparse.ArgumentParser = sub.add_parser(
+        name,
+        help=help_text,
+        description=help_text,
+        epilog=f"example:\n  {example}",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    return parser
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The command-line interface."""
-    parser = argparse.ArgumentParser(prog="windvane", description=__doc__)
-    sub = parser.add_subparsers(dest="command", required=True)
-    serve = sub.add_parser("serve", help="start the HTTP service")
+    parser = _Parser(
+        prog="windvane",
+        description=__doc__,
+        epilog="example:\n  windvane demo energy | windvane forecast -",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
+    serve = _command(sub, "serve", "start the HTTP service", "windvane serve --port 8000")
     serve.add_argument("--host", default=None, help="bind address (default 127.0.0.1)")
     serve.add_argument("--port", type=int, default=None, help="port (default 8000)")
     serve.add_argument("--workers", type=int, default=None, help="server processes")
     serve.set_defaults(run=_serve)
-    schema = sub.add_parser("openapi", help="write the OpenAPI schema")
+    schema = _command(
+        sub, "openapi", "write the OpenAPI schema", "windvane openapi openapi/openapi.json"
+    )
     schema.add_argument("path", help="output file, or - for stdout")
     schema.set_defaults(run=_openapi)
-    demo = sub.add_parser("demo", help="print a demo request body")
+    demo = _command(
+        sub, "demo", "print a demo request body", "windvane demo energy --horizon 6 --kind backtest"
+    )
     demo.add_argument("name", help="scenario series name (see `windvane demo list`)")
-    demo.add_argument("--horizon", type=int, default=None)
+    demo.add_argument("--horizon", type=int, default=None, help="steps ahead (as `horizon`)")
     demo.add_argument(
         "--kind",
         choices=("forecast", "diagnostics", "backtest"),
@@ -137,17 +316,96 @@ def build_parser() -> argparse.ArgumentParser:
         help="which endpoint the body is for",
     )
     demo.set_defaults(run=_demo)
-    for name, path in (("forecast", "/v1/forecasts"), ("diagnose", "/v1/diagnostics")):
-        cmd = sub.add_parser(name, help=f"answer one {path} request in process")
+    for name, path, kind in (
+        ("forecast", "/v1/forecasts", "forecast"),
+        ("diagnose", "/v1/diagnostics", "diagnostics"),
+    ):
+        cmd = _command(
+            sub,
+            name,
+            f"answer one {path} request body, in process or by a running service (--url)",
+            f"windvane demo energy --kind {kind} | windvane {name} - --url http://127.0.0.1:8000",
+        )
         cmd.add_argument("file", nargs="?", default="-", help="request JSON (default stdin)")
-        cmd.set_defaults(run=lambda a, p=path: _local(a, p))
+        cmd.add_argument(
+            "--url",
+            default=None,
+            help="base URL of a running service to send the request to (key from "
+            "WINDVANE_CLIENT_KEY, if any) instead of computing here",
+        )
+        cmd.set_defaults(run=lambda a, p=path: _answer(a, p))
+    _add_batch(sub)
     return parser
 
 
+def _add_batch(sub: Any) -> None:
+    cmd = _command(
+        sub,
+        "batch",
+        "forecast every series of a long CSV or Parquet table into OUTPUT (resumable)",
+        "windvane batch sales.csv forecasts.csv --horizon 12 --workers 2",
+    )
+    cmd.add_argument("input", help="long table: one row per series and timestamp (.csv, .parquet)")
+    cmd.add_argument(
+        "output",
+        help="forecasts in long format (.csv or .parquet); series already in it are skipped",
+    )
+    cmd.add_argument("--horizon", type=int, required=True, help="steps ahead")
+    cmd.add_argument(
+        "--coverage",
+        type=float,
+        nargs="+",
+        default=None,
+        help="interval levels (default 0.8 0.95): columns lower_80, upper_80, ...",
+    )
+    cmd.add_argument(
+        "--model", default="auto", help="auto (default), a family name, or a specification as JSON"
+    )
+    cmd.add_argument(
+        "--frequency",
+        default=None,
+        help="step of every series (ISO 8601 or pandas alias); inferred if absent",
+    )
+    cmd.add_argument("--id-column", default="series_id", help="column of series ids")
+    cmd.add_argument("--time-column", default="timestamp", help="column of timestamps")
+    cmd.add_argument("--value-column", default="value", help="column of values")
+    cmd.add_argument(
+        "--summary",
+        default=None,
+        help="per-series summary table (default OUTPUT's name + .summary)",
+    )
+    cmd.add_argument(
+        "--workers",
+        type=int,
+        default=os.cpu_count() or 1,
+        help="local worker processes (default: the cores)",
+    )
+    cmd.add_argument(
+        "--scheduler",
+        default=None,
+        help="Dask scheduler tcp://HOST:PORT (or WINDVANE_DASK_SCHEDULER); "
+        "runs the series on that cluster instead",
+    )
+    cmd.add_argument("--quiet", action="store_true", help="no progress bar")
+    cmd.set_defaults(run=_batch)
+
+
 def main(argv: list[str] | None = None) -> int:
-    """Entry point of the console script."""
+    """Entry point of the console script: errors are one line on stderr, never a traceback."""
     args = build_parser().parse_args(argv)
-    return int(args.run(args))
+    try:
+        return int(args.run(args))
+    except CommandError as exc:
+        sys.stderr.write(f"windvane {args.command}: error: {exc}\n")
+        return exc.status
+    except KeyboardInterrupt:
+        sys.stderr.write(f"windvane {args.command}: interrupted\n")
+        return 130
+    except Exception as exc:
+        message = str(exc).strip().splitlines()
+        detail = message[0] if message else ""
+        sys.stderr.write(f"windvane {args.command}: error: {type(exc).__name__}: {detail}\n")
+        return 1
 
 
 if __name__ == "__main__":

@@ -37,7 +37,21 @@ class Settings(BaseSettings):
         description="Largest request body, bytes (413 beyond).",
     )
     max_batch_series: int = Field(
-        100, ge=1, le=10_000, description="Most series in one batch request."
+        10_000, ge=1, le=1_000_000, description="Most series in one batch request."
+    )
+    max_batch_body_bytes: int = Field(
+        64_000_000,
+        ge=1_000,
+        le=4_000_000_000,
+        description="Largest body of POST /v1/forecast-batches, bytes (413 beyond); sized "
+        "for `max_batch_series` series of a few hundred points.",
+    )
+    batch_seconds: float = Field(
+        1_800.0,
+        gt=0,
+        le=86_400,
+        description="Time budget of a whole batch, seconds: items not finished by then are "
+        "answered `not_run`.",
     )
     cache: Literal["on", "off"] = Field("on", description="`off` disables the result cache.")
     cache_dir: Path = Field(

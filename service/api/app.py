@@ -56,7 +56,9 @@ def description(settings: Settings) -> str:
         f"- request body: {settings.max_body_bytes} bytes (`WINDVANE_MAX_BODY_BYTES`)\n"
         f"- request line and headers: {settings.max_header_bytes} bytes "
         "(`WINDVANE_MAX_HEADER_BYTES`)\n"
-        f"- requests per batch: {settings.max_batch_series} (`WINDVANE_MAX_BATCH_SERIES`)\n"
+        f"- requests per batch: {settings.max_batch_series} (`WINDVANE_MAX_BATCH_SERIES`), "
+        f"batch body: {settings.max_batch_body_bytes} bytes (`WINDVANE_MAX_BATCH_BODY_BYTES`), "
+        f"batch time: {settings.batch_seconds:g} s (`WINDVANE_BATCH_SECONDS`)\n"
         f"- CPU time per request: {settings.fit_seconds:g} s (`WINDVANE_FIT_SECONDS`)\n"
         f"- requests waiting for a worker: {settings.queue_size} (`WINDVANE_QUEUE_SIZE`)"
     )
@@ -146,13 +148,19 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(batches.router)
     app.include_router(diagnostics.router)
     app.include_router(backtests.router)
+    generated = app.openapi
+    app.openapi = lambda: batches.document(generated())  # type: ignore[method-assign]
     install_limits(app, settings)
     # Innermost, behind the key check: a cache hit needs an accepted key as well.
     app.add_middleware(ResponseHitMiddleware)
     # Outside the hit: CSV bodies become JSON first, tables and charts are made from JSON.
     app.add_middleware(RepresentationMiddleware)
     app.state.key_ring = install_api_keys(app, settings)  # request ids reach its 401 problems
-    app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
+    app.add_middleware(
+        BodyLimitMiddleware,
+        max_bytes=settings.max_body_bytes,
+        by_path={"/v1/forecast-batches": settings.max_batch_body_bytes},
+    )
     app.add_middleware(AdmissionMiddleware)  # outside the body limit: refuses before reading
     app.add_middleware(HeaderLimitMiddleware, max_bytes=settings.max_header_bytes)
     app.add_middleware(CancelledAnswerMiddleware)

@@ -78,16 +78,20 @@ class RootPathMiddleware:
 
 
 class BodyLimitMiddleware(HttpMiddleware):
-    """Refuse bodies over the limit with a 413 problem, by header and by counting bytes read."""
+    """Refuse bodies over the limit with a 413 problem, by header and by counting bytes read.
 
-    def __init__(self, app: ASGIApp, max_bytes: int) -> None:
+    ``by_path`` gives some paths a limit of their own (batches carry thousands of series)."""
+
+    def __init__(self, app: ASGIApp, max_bytes: int, by_path: dict[str, int] | None = None) -> None:
         super().__init__(app)
         self.max_bytes = max_bytes
+        self.by_path = dict(by_path or {})
 
     async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
+        limit = self.by_path.get(scope.get("path", ""), self.max_bytes)
         declared = _header(scope, b"content-length")
-        if declared is not None and declared.isdigit() and int(declared) > self.max_bytes:
-            await _too_large(scope, send, self.max_bytes)
+        if declared is not None and declared.isdigit() and int(declared) > limit:
+            await _too_large(scope, send, limit)
             return
         # Read the whole body before the app runs: FastAPI turns an error raised while it
         # reads the body into a 400, so a streamed (chunked) body must be counted here.
@@ -99,8 +103,8 @@ class BodyLimitMiddleware(HttpMiddleware):
                 return  # the client went away before sending the whole body
             chunk = message.get("body", b"")
             seen += len(chunk)
-            if seen > self.max_bytes:
-                await _too_large(scope, send, self.max_bytes)
+            if seen > limit:
+                await _too_large(scope, send, limit)
                 return
             chunks.append(chunk)
             if not message.get("more_body", False):

@@ -31,6 +31,7 @@ def limit_bounds(settings: Settings) -> dict[tuple[str, str], dict[str, int]]:
         ("RegressorIn", "history"): points,
         ("RegressorIn", "future"): {"maxItems": settings.max_horizon},
         ("ForecastRequest", "horizon"): horizon,
+        ("BatchEntry", "horizon"): horizon,
         ("BacktestRequest", "horizon"): horizon,
         ("BatchRequest", "requests"): {"maxItems": settings.max_batch_series},
     }

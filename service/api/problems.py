@@ -116,9 +116,10 @@ def field_path(loc: Sequence[Any]) -> str:
 
 
 def validation_problem(
-    errors: Sequence[Any], body: bytes | None = None
+    errors: Sequence[Any], body: bytes | None = None, prefix: str = ""
 ) -> tuple[int, str, str, list[dict[str, str]]]:
-    """Status, code, detail and field errors for pydantic's errors (HTTP handler and CLI).
+    """Status, code, detail and field errors for pydantic's errors (HTTP handler, batch items
+    and CLI), fields under ``prefix`` when given.
 
     A body that is not JSON at all is a 400 ``malformed_json`` naming the byte offset (when
     ``body`` is given); anything else a 422 ``invalid_request`` listing each field once."""
@@ -134,6 +135,8 @@ def validation_problem(
             other is not e and _within(p, path) for p, other in found
         ):
             continue  # `"auto" | {...}`: the object branch's error says more than "not 'auto'"
+        if prefix:
+            path = prefix if path == "body" else f"{prefix}.{path}"
         seen.setdefault(path, _message(e))
     listed = [{"field": f, "message": m} for f, m in seen.items()]
     first = listed[0]

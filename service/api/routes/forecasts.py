@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import asyncio
 import json
-from typing import Annotated, Any
+from collections.abc import Callable
+from typing import Annotated, Any, Protocol, TypeVar
 
 from fastapi import APIRouter, Body, Request, Response
 
@@ -16,14 +17,34 @@ from service.api.tasks import forecast_task
 from service.config import Settings
 from service.core.models.base import as_dict
 from service.runtime import jobs
-from service.runtime.keys import data_key, fit_key
-from service.runtime.pool import WorkPool
+from service.runtime.keys import Key, data_key, fit_key
 
 router = APIRouter(prefix="/v1", tags=["forecasts"])
+T = TypeVar("T")
+# The Accept value in the cache key of batch items.
+ITEM_ACCEPT = "application/json"
+
+
+class Runner(Protocol):
+    """What a forecast needs of the pool (a batch hands in one bounded by its deadline)."""
+
+    async def run(
+        self, fn: Callable[..., T], *args: Any, budget_seconds: float | None = None
+    ) -> T: ...
+
+
+def fit_key_for(task: jobs.ForecastTask) -> Key:
+    """The fit store's key of an explicit specification: data, specification, fit options."""
+    assert task.specification is not None
+    options: dict[str, Any] = {"transform": task.transform}
+    if task.regressors is not None:
+        history = task.regressors.history
+        options["regressors"] = {str(c): history[c].tolist() for c in history.columns}
+    return fit_key(task.y, task.seasonal_period, as_dict(task.specification), options)
 
 
 async def _computed(
-    request: Request, pool: WorkPool, task: jobs.ForecastTask
+    request: Request, pool: Runner, task: jobs.ForecastTask
 ) -> tuple[dict[str, Any], caching.FittedState]:
     """Run the work; an explicit specification's fitted model is kept in the fit store so
     that a new horizon or coverage on the same data needs no refit."""
@@ -31,11 +52,7 @@ async def _computed(
     if task.specification is None or not cache.enabled:
         return render.forecast_answer(await pool.run(jobs.forecast, task)), None
     telemetry = get_telemetry(request)
-    options: dict[str, Any] = {"transform": task.transform}
-    if task.regressors is not None:
-        history = task.regressors.history
-        options["regressors"] = {str(c): history[c].tolist() for c in history.columns}
-    key = fit_key(task.y, task.seasonal_period, as_dict(task.specification), options)
+    key = fit_key_for(task)
     stored = await asyncio.to_thread(cache.load_fitted, key)
     telemetry.record_cache("fitted", stored.result)
     if stored.hit and isinstance(stored.value, jobs.FittedBundle):
@@ -68,10 +85,16 @@ async def create_forecast(
 
 
 async def forecast_answer(
-    body: ForecastRequest, pool: WorkPool, settings: Settings, request: Request
+    body: ForecastRequest,
+    pool: Runner,
+    settings: Settings,
+    request: Request,
+    accept: str | None = None,
 ) -> caching.Answer:
-    """One forecast through the response cache, validation, the fit store and the pool."""
-    accept = request.headers.get("accept", "")
+    """One forecast through the response cache, validation, the fit store and the pool;
+    ``accept`` replaces the request's header in the key (a batch item's is its own)."""
+    if accept is None:
+        accept = request.headers.get("accept", "")
     key = caching.validated_key(body.model_dump(mode="json"), accept, settings.library_versions)
     telemetry = get_telemetry(request)
 
@@ -93,14 +116,9 @@ async def forecast_answer(
     return await caching.answer(request, key, compute)
 
 
-async def answer_forecast(
-    body: ForecastRequest,
-    pool: WorkPool,
-    settings: Settings,
-    request: Request,
-    response: Response,
-) -> dict[str, Any]:
-    """One forecast as a plain body (batches), with its Cache-Status on ``response``."""
-    found = await forecast_answer(body, pool, settings, request)
-    response.headers["Cache-Status"] = found.status
+async def answer_forecast(body: ForecastRequest, pool: Runner, request: Request) -> dict[str, Any]:
+    """One batch item's forecast as a plain body, keyed as a JSON answer whatever the batch's
+    own Accept header (the NDJSON and JSON batches, and `windvane batch`, share entries)."""
+    settings: Settings = request.app.state.settings
+    found = await forecast_answer(body, pool, settings, request, ITEM_ACCEPT)
     return dict(json.loads(found.body()))
