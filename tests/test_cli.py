@@ -135,3 +135,67 @@ def test_forecast_names_list_items_as_the_http_problems_do(
     path.write_text(json.dumps(body), encoding="utf-8")
     assert main(["forecast", str(path)]) == 1
     assert json.loads(capsys.readouterr().err)["errors"][0]["field"] == "coverage[1]"
+
+
+def one_line_error(capsys: pytest.CaptureFixture[str], out: str = "") -> str:
+    """The command's stderr, checked to be exactly one line and no traceback."""
+    captured = capsys.readouterr()
+    assert captured.out == out
+    err = captured.err
+    assert len(err.splitlines()) == 1, err
+    assert "Traceback" not in err
+    return err.strip()
+
+
+def test_a_missing_request_file_is_one_line(capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["forecast", "no-such-file.json"]) == 1
+    assert one_line_error(capsys) == "windvane forecast: error: no such file: no-such-file.json"
+
+
+@pytest.mark.parametrize("horizon", ["0", "-3", "1000000"])
+def test_the_demo_horizon_is_checked_as_the_api_checks_it(
+    horizon: str, capsys: pytest.CaptureFixture[str]
+) -> None:
+    assert main(["demo", "energy", "--horizon", horizon]) == 2
+    assert one_line_error(capsys).startswith("windvane demo: error: --horizon: ")
+
+
+def test_argument_errors_are_one_line(capsys: pytest.CaptureFixture[str]) -> None:
+    with pytest.raises(SystemExit) as stopped:
+        main(["demo", "energy", "--horizon", "soon"])
+    assert stopped.value.code == 2
+    assert "invalid int value" in one_line_error(capsys)
+
+
+def test_an_unexpected_failure_is_one_line(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    assert main(["openapi", str(tmp_path / "missing" / "openapi.json")]) == 1
+    assert one_line_error(capsys).startswith("windvane openapi: error: FileNotFoundError")
+
+
+def test_an_unreachable_service_is_one_line(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    from live_server import free_port
+
+    path = tmp_path / "fuel.json"
+    path.write_text(json.dumps(demo.request_body("fuel")), encoding="utf-8")
+    url = f"http://127.0.0.1:{free_port()}"
+    assert main(["forecast", str(path), "--url", url]) == 1
+    assert one_line_error(capsys).startswith(f"windvane forecast: error: cannot reach {url}")
+    assert main(["diagnose", str(path), "--url", "ftp://example"]) == 2
+    assert "--url must start with http://" in one_line_error(capsys)
+
+
+@pytest.mark.parametrize(
+    "command", [[], ["serve"], ["openapi"], ["demo"], ["forecast"], ["diagnose"], ["batch"]]
+)
+def test_every_help_shows_an_example(
+    command: list[str], capsys: pytest.CaptureFixture[str]
+) -> None:
+    with pytest.raises(SystemExit) as stopped:
+        main([*command, "--help"])
+    assert stopped.value.code == 0
+    out = capsys.readouterr().out
+    assert "example:\n  windvane " in out, out

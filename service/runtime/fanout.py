@@ -64,7 +64,7 @@ def _on_dask(
 ) -> Iterator[Any]:
     from distributed import Client, as_completed
 
-    with Client(address, timeout=CONNECT_SECONDS, set_as_default=False) as client:
+    with Client(address, timeout=CONNECT_SECONDS) as client:
         threads = max(1, sum(client.nthreads().values()))
         pending = iter(items)
         submitted: dict[Any, tuple[Any, ...]] = {}
