@@ -5,12 +5,13 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pandas as pd
 import pytest
 
-from service import batch
+from service import batch, demo
 from service.cli import main
 from service.config import Settings
 
@@ -152,3 +153,22 @@ def test_run_failures_are_one_line_with_a_status(
     assert lines[0] == f"windvane batch: error: no such input file: {tmp_path / 'missing.csv'}"
     assert lines[1].startswith("windvane batch: error: cannot read")
     assert lines[2].startswith("windvane batch: error: --coverage:")
+
+
+def test_workers_sharing_a_cache_directory_reuse_each_others_answers(
+    tmp_path: Path, make_client: Any
+) -> None:
+    from service.api import batch_items
+
+    settings = Settings(cache_dir=tmp_path / "shared", cache_secret="one secret")
+    body = demo.request_body("fuel", horizon=3) | {"model": {"family": "theta"}, "id": "fuel"}
+    first = batch_items.answer_entry(body, 0, settings)
+    assert first["forecast"]["provenance"]["cache"] == "miss"
+    batch_items._CACHES.clear()  # as a fresh worker process would start
+    again = batch_items.answer_entry(body, 0, settings)
+    assert again["forecast"]["provenance"]["cache"] == "hit"
+    assert again["forecast"]["point"] == first["forecast"]["point"]
+    with make_client(cache_dir=tmp_path / "shared", cache_secret="one secret") as client:
+        served = client.post("/v1/forecasts", json={k: v for k, v in body.items() if k != "id"})
+    assert served.json()["provenance"]["cache"] == "hit"
+    assert served.json()["point"] == first["forecast"]["point"]

@@ -21,8 +21,9 @@ from service.runtime.keys import Key, data_key, fit_key
 
 router = APIRouter(prefix="/v1", tags=["forecasts"])
 T = TypeVar("T")
-# The Accept value in the cache key of batch items.
-ITEM_ACCEPT = "application/json"
+# The Accept value in the cache key of batch items: what HTTP clients send by default, so
+# an item shares its entry with the usual single request on the same data.
+ITEM_ACCEPT = "*/*"
 
 
 class Runner(Protocol):
