@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Literal
 
-from pydantic import Field, SecretStr
+from pydantic import Field, SecretStr, field_validator
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
 
@@ -118,3 +118,9 @@ class Settings(BaseSettings):
         le=1_048_576,
         description="Largest request line plus headers, bytes (431 beyond).",
     )
+
+    @field_validator("cache_secret", mode="before")
+    @classmethod
+    def _unset_when_empty(cls, value: object) -> object:
+        """An empty WINDVANE_CACHE_SECRET (compose's `${VAR:-}`) means none, not a blank key."""
+        return None if value == "" else value
