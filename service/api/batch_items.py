@@ -21,8 +21,8 @@ from service.api.schemas.batches import ID_LENGTH
 from service.api.schemas.forecasts import ForecastRequest
 from service.api.tasks import forecast_task
 from service.config import Settings
-from service.core.errors import WindvaneError
 from service.core.data.series import ParsedSeries
+from service.core.errors import WindvaneError
 from service.runtime import jobs
 from service.runtime.cache import Cache
 from service.runtime.keys import data_key

@@ -11,6 +11,8 @@ is that item's problem. Past WINDVANE_BATCH_SECONDS the items not yet answered a
 from __future__ import annotations
 
 import asyncio
+import copy
+import inspect
 import json
 from collections.abc import AsyncIterator, Callable, Iterator
 from typing import Any, TypeVar
@@ -32,7 +34,14 @@ from service.api.batch_items import (
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.problems import PROBLEM_RESPONSES
 from service.api.routes.forecasts import answer_forecast
-from service.api.schemas.batches import BatchClosing, BatchEnvelope, BatchRequest, BatchResponse
+from service.api.schemas.batches import (
+    ID_LENGTH,
+    BatchClosing,
+    BatchEntry,
+    BatchEnvelope,
+    BatchRequest,
+    BatchResponse,
+)
 from service.config import Settings
 from service.core.errors import RequestError
 from service.runtime.pool import BudgetExceeded, WorkPool
@@ -60,29 +69,62 @@ _RESPONSES: dict[int | str, dict[str, Any]] = {
     200: {
         "description": "Every item answered (JSON, in request order), or one line per item "
         "in order of completion then a closing line (NDJSON).",
-        "content": {
-            NDJSON: {
-                "schema": {
-                    "oneOf": [
-                        {"$ref": "#/components/schemas/BatchItem"},
-                        {"$ref": "#/components/schemas/BatchClosing"},
-                    ]
-                }
-            }
-        },
+        "content": {NDJSON: {"schema": {"$ref": "#/components/schemas/BatchLine"}}},
     },
 }
 
 
 def document(schema: dict[str, Any]) -> dict[str, Any]:
     """Add the batch request's schemas to an OpenAPI document (the route parses its body
-    itself, off the event loop, so FastAPI does not see the model)."""
+    itself, off the event loop, so FastAPI does not see the model). A batch entry is the
+    ForecastRequest component plus `id`."""
     components = schema.setdefault("components", {}).setdefault("schemas", {})
-    for model in (BatchRequest, BatchClosing):
-        found = model.model_json_schema(ref_template="#/components/schemas/{model}")
-        for name, definition in found.pop("$defs", {}).items():
-            components.setdefault(name, definition)
-        components.setdefault(model.__name__, found)
+    if "BatchRequest" in components:
+        return schema
+    forecast = copy.deepcopy(components["ForecastRequest"])
+    ident = BatchEntry.model_fields["id"]
+    entry = {
+        **forecast,
+        "title": "BatchEntry",
+        "description": inspect.getdoc(BatchEntry),
+        "properties": {
+            "id": {
+                "anyOf": [{"type": "string", "maxLength": ID_LENGTH}, {"type": "null"}],
+                "description": ident.description,
+            },
+            **forecast["properties"],
+        },
+    }
+    requests = BatchRequest.model_fields["requests"]
+    components["BatchEntry"] = entry
+    components["BatchRequest"] = {
+        "title": "BatchRequest",
+        "description": inspect.getdoc(BatchRequest),
+        "type": "object",
+        "properties": {
+            "requests": {
+                "type": "array",
+                "items": {"$ref": "#/components/schemas/BatchEntry"},
+                "minItems": 1,
+                "description": requests.description,
+            }
+        },
+        "required": ["requests"],
+        "additionalProperties": False,
+    }
+    closing = BatchClosing.model_json_schema(ref_template="#/components/schemas/{model}")
+    for name, definition in closing.pop("$defs", {}).items():
+        components.setdefault(name, definition)
+    components["BatchClosing"] = closing
+    components["BatchLine"] = {
+        "title": "BatchLine",
+        "description": "One line of an NDJSON batch: an item as it is answered, or the "
+        "closing line (the last).",
+        "oneOf": [
+            {"$ref": "#/components/schemas/BatchItem"},
+            {"$ref": "#/components/schemas/BatchClosing"},
+        ],
+    }
     return schema
 
 
