@@ -14,7 +14,7 @@ from typing import Any
 
 from pydantic import ValidationError
 
-from service.api import caching
+from service.api import caching, render
 from service.api.problems import domain_errors, problem_response, validation_problem
 from service.api.routes.forecasts import ITEM_ACCEPT, fit_key_for
 from service.api.schemas.batches import ID_LENGTH
@@ -168,7 +168,7 @@ def answer_entry(raw: Any, index: int, settings: Settings) -> dict[str, Any]:
     ident = entry_id(raw)
     try:
         checked = check_entry(raw, index, settings)
-        body = computed(checked, _worker_cache(settings))
+        body = computed(checked, _worker_cache(settings), settings)
     except ItemProblem as exc:
         return outcome(index, ident, problem_body=exc.body)
     except Exception as exc:
@@ -176,10 +176,11 @@ def answer_entry(raw: Any, index: int, settings: Settings) -> dict[str, Any]:
     return outcome(index, ident, forecast=body)
 
 
-def computed(checked: CheckedEntry, cache: Cache) -> dict[str, Any]:
+def computed(checked: CheckedEntry, cache: Cache, settings: Settings) -> dict[str, Any]:
     """The answer to one checked item from the response cache (memory, disk) or computed
     here, with the fit store for an explicit specification; stored as the server stores it."""
-    key = caching.validated_key(checked.request.model_dump(mode="json"), ITEM_ACCEPT)
+    shown = settings.library_versions
+    key = caching.validated_key(checked.request.model_dump(mode="json"), ITEM_ACCEPT, shown)
     found = cache.get_response(key)
     if not found.hit:
         found = cache.load_response(key)
@@ -187,18 +188,19 @@ def computed(checked: CheckedEntry, cache: Cache) -> dict[str, Any]:
         return dict(json.loads(found.value.body("hit")))
     task, series = checked.task, checked.series
     if task.specification is None or not cache.enabled:
-        body = jobs.forecast(task)
+        body = render.forecast_answer(jobs.forecast(task))
     else:
         fitted_key = fit_key_for(task)
         stored = cache.load_fitted(fitted_key)
         if stored.hit and isinstance(stored.value, jobs.FittedBundle):
-            body = jobs.forecast_from(stored.value, task)
+            body = render.forecast_answer(jobs.forecast_from(stored.value, task))
         else:
-            body, bundle = jobs.fit_and_forecast(task)
+            answer, bundle = jobs.fit_and_forecast(task)
+            body = render.forecast_answer(answer)  # an overflowing forecast is refused first
             cache.save_fitted(fitted_key, bundle)
-    provenance = {"data_hash": data_key(series.y).label, **caching.provenance_fields()}
-    answer = caching.stored_response(body, provenance, len(series.y))
+    provenance = {"data_hash": data_key(series.y).label, **caching.provenance_fields(shown)}
+    finished = caching.stored_response(body, provenance, len(series.y))
     if cache.enabled:
-        cache.put_response(key, answer)
-        cache.save_response(key, answer)
-    return dict(json.loads(answer.body("miss" if cache.enabled else "off")))
+        cache.put_response(key, finished)
+        cache.save_response(key, finished)
+    return dict(json.loads(finished.body("miss" if cache.enabled else "off")))
