@@ -67,7 +67,7 @@ def test_a_malformed_series_is_reported_and_the_rest_complete(
     assert list(summary.index) == ["s0", "broken", "s1", "s2"]
     assert summary.loc["broken", "status"] == 422
     assert "requests[1].series" in summary.loc["broken", "problem"]
-    assert summary.loc["s1", "model"] == "SeasonalNaive(12)"
+    assert summary.loc["s1", "model"] == "seasonal naive, period 12"
     assert summary.loc["s1", "verdict"] == "not_assessed"
 
 
