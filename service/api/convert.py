@@ -7,7 +7,7 @@ from service.config import Settings
 from service.core.data.series import Aggregation, ParsedSeries, parse_series
 from service.core.errors import WindvaneError
 from service.core.models.base import Specification
-from service.core.models.registry import specification_from_dict
+from service.core.models.registry import specification_from_dict, with_series_periods
 
 
 def parsed_series(
@@ -36,6 +36,10 @@ def parsed_series(
         raise exc.prefixed(field) from None
 
 
-def specification(data: dict[str, object], field: str) -> Specification:
-    """A specification from its JSON form; fields are already under ``field``."""
-    return specification_from_dict(data, field)
+def specification(
+    data: dict[str, object], field: str, periods: tuple[float, ...] = ()
+) -> Specification:
+    """A specification from its JSON form (fields already under ``field``), with the series'
+    seasonal periods filled in where a family's ``periods`` is left null."""
+    spec: Specification = with_series_periods(specification_from_dict(data, field), periods)
+    return spec

@@ -43,7 +43,7 @@ def _bound(node: dict[str, Any], bounds: dict[str, int]) -> None:
         kind = branch.get("type")
         if kind == "array" and "maxItems" in bounds:
             branch["maxItems"] = bounds["maxItems"]
-        if kind == "integer" and "maximum" in bounds:
+        if kind in ("integer", "number") and "maximum" in bounds:
             branch["maximum"] = bounds["maximum"]
 
 

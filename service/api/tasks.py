@@ -27,11 +27,12 @@ def forecast_task(
     horizon = check_positive_int(body.horizon, "horizon", settings.max_horizon)
     check_horizon_in_range(series.y.index, horizon)
     coverage = check_coverage(body.coverage)
-    spec = None if body.model == "auto" else specification(body.model, "model")
+    periods = series.seasonal_periods
+    spec = None if body.model == "auto" else specification(body.model, "model", periods)
     candidates = None
     if body.candidates is not None:
         candidates = tuple(
-            specification(c, f"candidates[{i}]") for i, c in enumerate(body.candidates)
+            specification(c, f"candidates[{i}]", periods) for i, c in enumerate(body.candidates)
         )
     transform = body.transform
     wire_transform = (
@@ -87,7 +88,10 @@ def backtest_task(body: BacktestRequest, settings: Settings) -> jobs.BacktestTas
     if body.models != "auto":
         if not body.models:
             raise WindvaneError('give at least one specification, or "auto"', field="models")
-        specs = tuple(specification(m, f"models[{i}]") for i, m in enumerate(body.models))
+        specs = tuple(
+            specification(m, f"models[{i}]", series.seasonal_periods)
+            for i, m in enumerate(body.models)
+        )
     return jobs.BacktestTask(
         y=series.y,
         seasonal_period=series.seasonal_period,

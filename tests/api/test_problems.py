@@ -221,8 +221,14 @@ ROWS = {
     "seasonal-period-zero": Row(
         edit(start_body, put("series.seasonal_period", 0)),
         422,
-        "invalid_request",
+        "invalid_series",
         "series.seasonal_period",
+    ),
+    "seasonal-period-list-entry": Row(
+        edit(start_body, put("series.seasonal_period", [7, 0.5])),
+        422,
+        "invalid_series",
+        "series.seasonal_period[1]",
     ),
     "unknown-missing-policy": Row(
         edit(start_body, put("series.missing", "drop")), 422, "invalid_request", "series.missing"

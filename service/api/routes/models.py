@@ -7,6 +7,7 @@ from typing import Any
 from fastapi import APIRouter
 
 from service.api.schemas.models import CatalogueResponse
+from service.core.data.periods import PERIODS_BY_STEP
 from service.core.models.registry import catalogue
 
 router = APIRouter(prefix="/v1", tags=["models"])
@@ -25,4 +26,4 @@ CATALOGUE_EXAMPLE = {"families": [c for c in catalogue() if c["family"] == "cros
 )
 async def list_models() -> dict[str, Any]:
     """Every family Windvane can fit, with its parameters, defaults and constraints."""
-    return {"families": catalogue()}
+    return {"families": catalogue(), "default_seasonal_periods": list(PERIODS_BY_STEP)}

@@ -15,6 +15,8 @@ from pydantic import (
     model_serializer,
 )
 
+from service.core.data.periods import MAX_PERIODS
+
 # Bounds stated here are checked by the core (which names the index) or by pydantic, and
 # appear in the OpenAPI schema; the limits that come from the settings are added to the
 # schema by service.api.openapi.install_limits.
@@ -78,6 +80,22 @@ PositiveWhole = Annotated[int, Field(ge=1), BeforeValidator(_whole)]
 Lag = Annotated[int, Field(ge=1, le=1000), BeforeValidator(_whole)]
 OriginCount = Annotated[int, Field(ge=1, le=100), BeforeValidator(_whole)]
 OriginStep = Annotated[int, Field(ge=1, le=100_000), BeforeValidator(_whole)]
+SeasonalPeriods = Annotated[
+    float | list[Any],
+    WithJsonSchema(
+        {
+            "anyOf": [
+                {"type": "number", "minimum": 1},
+                {
+                    "type": "array",
+                    "items": {"type": "number", "exclusiveMinimum": 1},
+                    "minItems": 1,
+                    "maxItems": MAX_PERIODS,
+                },
+            ]
+        }
+    ),
+]
 
 
 def _depth(value: Any) -> int:
@@ -158,8 +176,12 @@ class SeriesIn(Strict):
         "minute and second steps they mean, and the canonical form is echoed. Inferred from "
         "timestamps when absent. Steps of a second or longer.",
     )
-    seasonal_period: PositiveWhole | None = Field(
-        None, description="Observations per seasonal cycle; default from the frequency."
+    seasonal_period: SeasonalPeriods | None = Field(
+        None,
+        description="Observations per seasonal cycle, or a list of them for several cycles "
+        "([24, 168]: a day and a week of hourly data); non-integer periods (365.25, 52.18) are "
+        "allowed. Default from the frequency (hourly [24, 168], daily [7, 365.25], weekly "
+        "[52.18], monthly 12, ...), each period kept only with two full cycles of history.",
     )
     name: str | None = Field(None, max_length=200, description="A label echoed back.")
     missing: Literal["interpolate", "keep", "error"] = Field(

@@ -33,7 +33,20 @@ class FamilyOut(Out):
     constraints: list[str]
 
 
+class PeriodsByStepOut(Out):
+    """The seasonal periods a series gets when it states none, by its step."""
+
+    step: str
+    periods: list[float | str] = Field(description="A number, or a formula in the step's n.")
+    cycles: str
+
+
 class CatalogueResponse(Out):
-    """Every family Windvane can fit."""
+    """Every family Windvane can fit, and the default seasonal periods by step."""
 
     families: list[FamilyOut]
+    default_seasonal_periods: list[PeriodsByStepOut] = Field(
+        default_factory=list,
+        description="Used when series.seasonal_period is absent; each period only when the "
+        "history holds at least two full cycles of it.",
+    )

@@ -18,13 +18,9 @@ from typing import Any, Literal
 import numpy as np
 import pandas as pd
 
-from service.core.data.frequency import (
-    default_seasonal_period,
-    frequency_name,
-    parse_frequency,
-    step_of,
-)
+from service.core.data.frequency import frequency_name, parse_frequency, step_of
 from service.core.data.grid import regular_grid
+from service.core.data.periods import check_periods, default_periods, whole_period
 from service.core.errors import FieldProblem, RequestError, SeriesError
 
 MissingPolicy = Literal["interpolate", "keep", "error"]
@@ -64,6 +60,9 @@ class ParsedSeries:
     missing_count: int
     filled_gaps: int
     interpolated: int
+    seasonal_periods: tuple[float, ...] = ()
+    """Every seasonal period in use, shortest first; ``seasonal_period`` is the shortest,
+    rounded, for the models with one whole-number season (1 when there is none)."""
 
     @property
     def offset(self) -> pd.DateOffset:
@@ -77,7 +76,7 @@ def parse_series(
     timestamps: Sequence[Any] | None = None,
     start: Any = None,
     frequency: str | None = None,
-    seasonal_period: int | None = None,
+    seasonal_period: float | Sequence[float] | None = None,
     name: str | None = None,
     missing: str = "interpolate",
     aggregate: Aggregation | None = None,
@@ -114,11 +113,12 @@ def parse_series(
         raise SeriesError(
             f"the series has {y.size} points; at least {min_points} are needed", field="values"
         )
-    period = _seasonal_period(seasonal_period, y.index.freq)
+    periods = _seasonal_periods(seasonal_period, y.index.freq, y.size)
     return ParsedSeries(
         y=y,
         frequency=frequency_name(y.index.freq),
-        seasonal_period=period,
+        seasonal_period=whole_period(periods),
+        seasonal_periods=periods,
         name=name,
         missing_count=missing_count,
         filled_gaps=filled,
@@ -444,9 +444,10 @@ def _interpolate(y: pd.Series) -> pd.Series:
     return filled
 
 
-def _seasonal_period(given: int | None, offset: pd.DateOffset) -> int:
+def _seasonal_periods(
+    given: float | Sequence[float] | None, offset: pd.DateOffset, observations: int
+) -> tuple[float, ...]:
+    """The periods asked for, or the step's defaults that fit twice into the history."""
     if given is None:
-        return default_seasonal_period(offset)
-    if isinstance(given, bool) or not isinstance(given, int) or given < 1:
-        raise SeriesError("seasonal_period must be a whole number >= 1", field="seasonal_period")
-    return given
+        return default_periods(offset, observations)
+    return check_periods(given, "seasonal_period")

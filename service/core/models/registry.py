@@ -19,7 +19,9 @@ from service.core.models.combination import CombinationSpec
 from service.core.models.croston import CrostonSpec
 from service.core.models.drift import DriftSpec
 from service.core.models.ets.family import EtsSpec
+from service.core.models.harmonic import HarmonicSpec
 from service.core.models.mean import MeanSpec
+from service.core.models.mstl import MstlSpec
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
 from service.core.models.stl import StlSpec
@@ -36,6 +38,8 @@ _FAMILY_CLASSES: tuple[type[Any], ...] = (
     CombinationSpec,
     ArimaSpec,
     StlSpec,
+    MstlSpec,
+    HarmonicSpec,
 )
 
 FAMILIES: dict[str, type[Any]] = {cls.family: cls for cls in _FAMILY_CLASSES}
@@ -230,3 +234,24 @@ def _plain(value: Any) -> Any:
     if isinstance(value, tuple):
         return [_plain(v) for v in value]
     return value
+
+
+def with_series_periods(spec: Any, periods: tuple[float, ...]) -> Any:
+    """The specification with every ``periods`` left null (its own or a nested model's) set to
+    the series' periods, so that the fitted model, its cache key and its response name them."""
+    if not dataclasses.is_dataclass(spec) or isinstance(spec, type):
+        return spec
+    changes: dict[str, Any] = {}
+    for f in dataclasses.fields(spec):
+        value = getattr(spec, f.name)
+        if f.name == "periods" and value is None and periods:
+            changes[f.name] = tuple(periods)
+        elif dataclasses.is_dataclass(value) and not isinstance(value, type):
+            inner = with_series_periods(value, periods)
+            if inner is not value:
+                changes[f.name] = inner
+        elif isinstance(value, tuple) and any(dataclasses.is_dataclass(v) for v in value):
+            members = tuple(with_series_periods(v, periods) for v in value)
+            if any(a is not b for a, b in zip(members, value, strict=True)):
+                changes[f.name] = members
+    return dataclasses.replace(spec, **changes) if changes else spec

@@ -29,6 +29,16 @@ from service.core.models.labels import model_label
 DEFAULT_BASE = EtsSpec(season="none")
 
 
+def base_parameter() -> Any:
+    """The ``base`` hyperparameter of the decomposition families (non-seasonal ETS by default)."""
+    # A frozen specification is immutable, so sharing it as the default is safe.
+    return parameter(
+        DEFAULT_BASE,
+        "Non-seasonal specification for the adjusted series (default: ETS, components by AICc).",
+        kind="specification",
+    )
+
+
 @dataclass(frozen=True)
 class StlSpec:
     """STL (Cleveland et al. 1990) then ``base`` fitted without season on the adjusted series."""
@@ -45,12 +55,7 @@ class StlSpec:
         "is treated as known.",
     )
 
-    # A frozen specification is immutable, so sharing it as the default is safe.
-    base: Any = parameter(  # noqa: RUF009
-        DEFAULT_BASE,
-        "Non-seasonal specification for the adjusted series (default: ETS, components by AICc).",
-        kind="specification",
-    )
+    base: Any = base_parameter()  # noqa: RUF009 (a frozen specification: safe to share)
     robust: bool = parameter(
         True, "Robust STL fitting (outliers get little weight in the seasonal).", kind="boolean"
     )
@@ -61,7 +66,7 @@ class StlSpec:
         m = check_positive_int(seasonal_period, "series.seasonal_period")
         seasonal, notes = _seasonal_component(y, m, self.robust)
         adjusted = y - seasonal
-        base = _fit_base(self.base, adjusted)
+        base = fit_base(self.base, adjusted)
         return StlFitted(
             specification=self,
             y=y,
@@ -114,29 +119,9 @@ class StlFitted:
         Timestamps of the fit keep their seasonal value; later (or earlier) ones repeat the
         last fitted cycle, as the forecast does.
         """
-        seasonal = self._seasonal_on(y.index)
+        seasonal = carried_seasonal(self.seasonal, self.seasonal_period, y.index)
         base = self.base.refilter(y - seasonal)
         return StlFitted(self.specification, y, self.seasonal_period, seasonal, base, 0.0, [])
-
-    def _seasonal_on(self, index: pd.DatetimeIndex) -> pd.Series:
-        own = self.seasonal.index
-        combined = own.union(index)
-        steps = combined.get_indexer(index) - combined.get_loc(own[0])
-        if own.freq is not None and len(combined) != len(
-            pd.date_range(combined[0], combined[-1], freq=own.freq)
-        ):
-            raise SeriesError(
-                "the history must continue the fitted series' timestamps", field="series"
-            )
-        known = self.seasonal.to_numpy(dtype=float)
-        n, m = known.size, self.seasonal_period
-        cycle = known[-m:]
-        values = np.where(
-            (steps >= 0) & (steps < n),
-            known[np.clip(steps, 0, n - 1)],
-            cycle[(steps - (n - m)) % m],
-        )
-        return pd.Series(values, index=index, name="seasonal")
 
     def describe(self) -> Description:
         """The base model's description under an ``STL (period m) then base`` label."""
@@ -177,7 +162,7 @@ def _seasonal_component(y: pd.Series, m: int, robust: bool) -> tuple[pd.Series, 
     return pd.Series(np.asarray(parts.seasonal), index=y.index, name="seasonal"), notes
 
 
-def _fit_base(base: Any, adjusted: pd.Series) -> Any:
+def fit_base(base: Any, adjusted: pd.Series) -> Any:
     """The base fitted with period 1; its errors are re-labelled under ``model.base``."""
     try:
         return base.fit(adjusted, 1)
@@ -186,3 +171,24 @@ def _fit_base(base: Any, adjusted: pd.Series) -> Any:
             moved = [p.field.replace("model.", "model.base.", 1) for p in exc.problems]
             raise type(exc)(exc.message, field=moved[0]) from exc
         raise
+
+
+def carried_seasonal(seasonal: pd.Series, m: int, index: pd.DatetimeIndex) -> pd.Series:
+    """A fitted seasonal component on another index: its own value at fitted timestamps, the
+    last fitted cycle repeated elsewhere (as the forecast does)."""
+    own = seasonal.index
+    combined = own.union(index)
+    steps = combined.get_indexer(index) - combined.get_loc(own[0])
+    if own.freq is not None and len(combined) != len(
+        pd.date_range(combined[0], combined[-1], freq=own.freq)
+    ):
+        raise SeriesError("the history must continue the fitted series' timestamps", field="series")
+    known = seasonal.to_numpy(dtype=float)
+    n = known.size
+    cycle = known[-m:]
+    values = np.where(
+        (steps >= 0) & (steps < n),
+        known[np.clip(steps, 0, n - 1)],
+        cycle[(steps - (n - m)) % m],
+    )
+    return pd.Series(values, index=index, name="seasonal")

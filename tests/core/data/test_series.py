@@ -32,7 +32,9 @@ def test_start_form_builds_the_grid_from_start_and_frequency() -> None:
     assert parsed.y.index.equals(expected)
     assert parsed.y.index.freqstr == "W-MON"
     assert parsed.frequency == "W-MON"
-    assert parsed.seasonal_period == 52
+    # Three weeks hold no two full years: no default period (52.18 needs 105 weeks).
+    assert parsed.seasonal_period == 1
+    assert parsed.seasonal_periods == ()
     assert parsed.y.tolist() == [5.0, 6.0, 7.0]
 
 
@@ -41,7 +43,7 @@ def test_timestamps_form_infers_the_frequency() -> None:
         [1, 2.5, 3], timestamps=["2025-01-01", "2025-02-01", "2025-03-01"], name="energy"
     )
     assert parsed.frequency == "MS"
-    assert parsed.seasonal_period == 12
+    assert parsed.seasonal_period == 1  # 12 needs 24 months of history
     assert parsed.name == "energy"
     assert parsed.y.name == "energy"
     assert parsed.y.dtype == np.float64
@@ -54,7 +56,7 @@ def test_both_forms_give_the_same_series() -> None:
     by_stamps = parse_series(values, timestamps=stamps)
     by_start = parse_series(values, start=stamps[0], frequency="PT1H")
     pd.testing.assert_series_equal(by_stamps.y, by_start.y, check_freq=True)
-    assert by_stamps.seasonal_period == by_start.seasonal_period == 24
+    assert by_stamps.seasonal_period == by_start.seasonal_period == 1  # 24 needs 48 hours
 
 
 def test_an_aware_series_keeps_its_single_offset() -> None:
@@ -342,3 +344,52 @@ def test_a_horizon_past_the_supported_range_is_refused() -> None:
     with pytest.raises(RequestError) as caught:
         check_horizon_in_range(parsed.y.index, 24)
     assert caught.value.problems[0].field == "horizon"
+
+
+@pytest.mark.parametrize(
+    ("frequency", "points", "periods"),
+    [
+        ("h", 48, (24.0,)),
+        ("h", 336, (24.0, 168.0)),
+        ("30min", 700, (48.0, 336.0)),
+        ("15min", 2016, (96.0, 672.0)),
+        ("D", 20, (7.0,)),
+        ("D", 731, (7.0, 365.25)),
+        ("B", 10, (5.0,)),
+        ("W-WED", 105, (52.18,)),
+        ("MS", 24, (12.0,)),
+        ("QS-JAN", 8, (4.0,)),
+        ("YS-JAN", 50, ()),
+    ],
+)
+def test_default_periods_follow_the_table_when_two_cycles_fit(
+    frequency: str, points: int, periods: tuple[float, ...]
+) -> None:
+    parsed = parse_series([1.0] * points, start="2025-01-01", frequency=frequency)
+    assert parsed.seasonal_periods == periods
+    assert parsed.seasonal_period == (round(periods[0]) if periods else 1)
+
+
+def test_several_periods_are_sorted_and_non_integer_ones_allowed() -> None:
+    parsed = parse_series(
+        [1.0] * 800, start="2025-01-06", frequency="D", seasonal_period=[365.25, 7]
+    )
+    assert parsed.seasonal_periods == (7.0, 365.25)
+    assert parsed.seasonal_period == 7
+
+
+@pytest.mark.parametrize(
+    ("given", "field"),
+    [
+        ([24, 0.5], "seasonal_period[1]"),
+        ([24, 24], "seasonal_period[1]"),
+        ([24, "x"], "seasonal_period[1]"),
+        ([], "seasonal_period"),
+        (0.5, "seasonal_period"),
+        ([2, 3, 4, 5, 6, 7], "seasonal_period"),
+    ],
+)
+def test_a_bad_period_is_refused_naming_its_index(given: object, field: str) -> None:
+    with pytest.raises(SeriesError) as caught:
+        parse_series([1.0] * 100, start="2025-01-06", frequency="h", seasonal_period=given)  # type: ignore[arg-type]
+    assert caught.value.problems[0].field == field
