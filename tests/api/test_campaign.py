@@ -198,6 +198,11 @@ CASES: dict[str, Case] = {
     ),
     "values-all-1e-300": case(forecast(series=series(values=[1e-300] * 40))),
     "values-all-1e-300-auto": case(forecast("auto", series=series(values=[1e-300] * 40))),
+    "values-all-1e-300-box-cox-estimated": case(
+        forecast({"family": "ets"}, series=series(values=[1e-300] * 40), transform="boxcox"),
+        status=422,
+        field="transform",
+    ),
     "values-all-1e-300-diagnosed": case(
         {"series": series(values=[1e-300] * 40)}, path="/v1/diagnostics"
     ),

@@ -155,7 +155,15 @@ def resolve_lambda(transform: Transform, values: np.ndarray) -> float | None:
         return 0.0
     if transform.power is not None:
         return transform.power
-    return boxcox_lambda(values)
+    try:
+        # A constant series of tiny values left scipy without a bracket: a 500 until caught.
+        return boxcox_lambda(values)
+    except (ArithmeticError, RuntimeError, ValueError) as exc:
+        raise FitError(
+            f"the Box-Cox power could not be estimated for this series ({type(exc).__name__}); "
+            "give transform.power",
+            field="transform",
+        ) from exc
 
 
 @dataclass(frozen=True)
