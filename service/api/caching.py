@@ -24,7 +24,7 @@ from starlette.requests import Request
 from service import __version__
 from service.api.schemas.forecasts import ForecastResponse
 from service.core.errors import FitError
-from service.runtime.cache import Cache, StoredResponse
+from service.runtime.cache import Cache, Claim, Lookup, StoredResponse
 from service.runtime.keys import Key, KeyBuilder, canonical_json, runtime_versions
 from service.runtime.pool import BudgetExceeded, WorkerCrashed
 from service.runtime.telemetry import Telemetry
@@ -32,6 +32,8 @@ from service.runtime.telemetry import Telemetry
 RESPONSES = "windvane-response"
 FITTED = "windvane-fitted"
 FORECASTS_PATH = "/v1/forecasts"
+# How often a request polls the disk while another process computes the same answer.
+CLAIM_POLL_SECONDS = 0.05
 
 # What the fitted-model store did for a computed answer: None when it was not asked (auto).
 FittedState = str | None
@@ -169,21 +171,53 @@ async def answer(request: Request, key: Key, compute: Callable[[], Awaitable[Com
     done: asyncio.Future[None] = asyncio.get_running_loop().create_future()
     flights[key.digest] = done
     try:
-        found = await asyncio.to_thread(cache.load_response, key)
+        found, claim = await _stored_or_claimed(cache, key, _claim_wait(request))
         telemetry.record_cache("response", found.result)
         if found.hit and found.value is not None:
             return _finish(
                 request, telemetry, Answer(found.value, "hit", cache_status("hit", "disk"))
             )
-        stored, fitted = await compute()
-        cache.put_response(key, stored)
-        await asyncio.to_thread(cache.save_response, key, stored)
+        try:
+            stored, fitted = await compute()
+            cache.put_response(key, stored)
+            await asyncio.to_thread(cache.save_response, key, stored)
+        finally:
+            claim.release()
         return _finish(
             request, telemetry, Answer(stored, "miss", cache_status("miss", fitted=fitted))
         )
     finally:
         del flights[key.digest]
         done.set_result(None)
+
+
+def _claim_wait(request: Request) -> float:
+    """How long to wait for another process computing the same answer: its time budget."""
+    settings = getattr(request.app.state, "settings", None)
+    return float(getattr(settings, "fit_seconds", 30.0)) + 5.0
+
+
+async def _stored_or_claimed(
+    cache: Cache, key: Key, wait_seconds: float
+) -> tuple[Lookup[StoredResponse], Claim]:
+    """The answer from disk, or the claim to compute it. While another process (an HTTP
+    worker, a replica on the same volume) computes it, wait for its entry rather than
+    compute it a second time; past ``wait_seconds`` compute anyway."""
+    deadline = time.monotonic() + wait_seconds
+    while True:
+        found = await asyncio.to_thread(cache.load_response, key)
+        if found.hit:
+            return found, Claim(True)
+        claim = await asyncio.to_thread(cache.claim, key)
+        if claim.held or time.monotonic() > deadline:
+            if claim.held:
+                # The other process may have stored it between the read and the claim.
+                again = await asyncio.to_thread(cache.load_response, key)
+                if again.hit:
+                    claim.release()
+                    return again, Claim(True)
+            return found, claim
+        await asyncio.sleep(CLAIM_POLL_SECONDS)
 
 
 async def timed(telemetry: Telemetry, family: str, compute: Callable[[], Awaitable[Any]]) -> Any:

@@ -13,6 +13,7 @@ reported as degraded and tried again after ``RETRY_SECONDS``.
 from __future__ import annotations
 
 import contextlib
+import fcntl
 import logging
 import os
 import pickle
@@ -34,6 +35,7 @@ V = TypeVar("V")
 Result = Literal["hit", "miss", "error"]
 
 _SUFFIX = ".entry"
+_CLAIMS = "claims"
 # Evict down to this share of the bound, so a full store does not evict on every write.
 _EVICT_TO = 0.9
 # After a failed write, writes wait this long before being tried again.
@@ -94,6 +96,27 @@ class StoredResponse:
             label if isinstance(label, str) else None,
             observations if isinstance(observations, int) else None,
         )
+
+
+@dataclass(frozen=True)
+class Claim:
+    """The right to compute one key across processes (see ``DiskStore.claim``)."""
+
+    held: bool
+    handle: int | None = None
+    path: Path | None = None
+
+    def release(self) -> None:
+        """Give the claim up: the answer is stored, or computing it failed."""
+        if self.handle is None:
+            return
+        with contextlib.suppress(OSError):
+            if self.path is not None:
+                self.path.unlink()
+        with contextlib.suppress(OSError):
+            fcntl.flock(self.handle, fcntl.LOCK_UN)
+        with contextlib.suppress(OSError):
+            os.close(self.handle)
 
 
 @dataclass(frozen=True)
@@ -222,6 +245,23 @@ class DiskStore:
         if over:
             self._evict()
         return True
+
+    def claim(self, key: Key) -> Claim:
+        """Try to become the one process computing ``key``: an exclusive lock on a file
+        beside the entries (released by the kernel if this process dies). ``held`` is False
+        while another process holds it; a directory that cannot be locked claims freely."""
+        path = self.directory / _CLAIMS / f"{key.digest}.lock"
+        try:
+            path.parent.mkdir(mode=0o700, parents=True, exist_ok=True)
+            handle = os.open(path, os.O_RDWR | os.O_CREAT, 0o600)
+        except OSError:
+            return Claim(True)
+        try:
+            fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            os.close(handle)
+            return Claim(False)
+        return Claim(True, handle, path)
 
     def discard(self, key: Key) -> None:
         """Remove the entry under ``key`` if there is one."""
@@ -367,6 +407,10 @@ class Cache:
     def load_fitted(self, key: Key) -> Lookup[Any]:
         """A fitted model from disk, unpickled only once its seal verifies (blocking)."""
         return self._load(key, _unpickled)
+
+    def claim(self, key: Key) -> Claim:
+        """Claim the computing of ``key`` across processes (blocking: off the event loop)."""
+        return self.disk.claim(key) if self.disk is not None else Claim(True)
 
     def save_fitted(self, key: Key, value: Any) -> bool:
         """Persist a fitted model, sealed (blocking: call it off the event loop)."""

@@ -114,3 +114,19 @@ def test_a_cached_answer_still_needs_an_api_key(make_client: Any) -> None:
             == MEMORY_HIT
         )
         assert client.post("/v1/forecasts", json=BODY).status_code == 401
+
+
+def test_two_processes_sharing_a_directory_compute_a_request_once(
+    make_client: Any, tmp_path: Path
+) -> None:
+    shared = {"cache_dir": tmp_path / "shared", "cache_secret": "shared secret"}
+    body = {**BODY, "model": "auto", "horizon": 5}
+    with make_client(**shared) as one, make_client(**shared) as two:
+        with ThreadPoolExecutor(2) as threads:
+            answers = list(
+                threads.map(lambda c: c.post("/v1/forecasts", json=body), [one, two, one, two])
+            )
+        assert [a.status_code for a in answers] == [200] * 4
+        assert fits(one, "auto") + fits(two, "auto") == 1
+        points = {json.dumps(a.json()["point"]) for a in answers}
+        assert len(points) == 1

@@ -273,3 +273,15 @@ def test_switched_off_cache_never_hits(tmp_path: Path) -> None:
     assert not cache.save_response(key("r"), stored())
     assert not (tmp_path / "never").exists()
     assert not cache.state().enabled
+
+
+def test_one_process_at_a_time_claims_a_key(tmp_path: Path) -> None:
+    first, second = store_at(tmp_path), store_at(tmp_path)  # as two processes would
+    held = first.claim(key("k"))
+    assert held.held
+    assert not second.claim(key("k")).held
+    assert second.claim(key("other")).held
+    held.release()
+    again = second.claim(key("k"))
+    assert again.held
+    again.release()
