@@ -7,14 +7,13 @@ import gc
 import logging
 from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
-from typing import Any
 
 from fastapi import FastAPI
 
 from service import __version__
 from service.api.auth import install_api_keys
-from service.api.boot import WARM_MODULES
 from service.api.docs import install_docs
+from service.api.document import install_document
 from service.api.hits import ResponseHitMiddleware
 from service.api.middleware import (
     AdmissionMiddleware,
@@ -25,15 +24,14 @@ from service.api.middleware import (
     RootPathMiddleware,
 )
 from service.api.observe import ObserveMiddleware
-from service.api.openapi import install_limits
 from service.api.problems import install_problem_handlers
-from service.api.representations import RepresentationMiddleware, describe_representations
+from service.api.representations import RepresentationMiddleware
 from service.api.routes import backtests, batches, diagnostics, forecasts, health, models
-from service.api.schemas.specification import add_specification_schemas
 from service.config import Settings
 from service.runtime.cache import Cache
 from service.runtime.logs import request_logger
 from service.runtime.pool import PoolStats, WorkPool
+from service.runtime.preload import WARM_MODULES
 from service.runtime.telemetry import Telemetry
 
 log = logging.getLogger("windvane")
@@ -67,15 +65,6 @@ def description(settings: Settings) -> str:
 def _report_failed_start(task: asyncio.Task[int]) -> None:
     if not task.cancelled() and task.exception() is not None:
         log.error("the worker pool failed to start", exc_info=task.exception())
-
-
-def _openapi(app: FastAPI) -> dict[str, Any]:
-    """FastAPI's document with the specification schemas the registry defines."""
-    if app.openapi_schema is None:
-        app.openapi_schema = describe_representations(
-            add_specification_schemas(FastAPI.openapi(app))
-        )
-    return app.openapi_schema
 
 
 def create_app(settings: Settings | None = None) -> FastAPI:
@@ -137,7 +126,6 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         # Response parts that leave out what the answer lacks (Sparse) keep their field list.
         separate_input_output_schemas=False,
     )
-    app.openapi = lambda: _openapi(app)  # type: ignore[method-assign]
     app.state.settings = settings
     app.state.telemetry = telemetry
     install_problem_handlers(app)
@@ -148,9 +136,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(batches.router)
     app.include_router(diagnostics.router)
     app.include_router(backtests.router)
-    generated = app.openapi
-    app.openapi = lambda: batches.document(generated())  # type: ignore[method-assign]
-    install_limits(app, settings)
+    install_document(app, settings, amend=batches.document)
     # Innermost, behind the key check: a cache hit needs an accepted key as well.
     app.add_middleware(ResponseHitMiddleware)
     # Outside the hit: CSV bodies become JSON first, tables and charts are made from JSON.

@@ -22,9 +22,8 @@ from typing import Any
 from starlette.types import ASGIApp, Receive, Scope, Send
 
 from service.api.middleware import RequestIdMiddleware
+from service.runtime.preload import WARM_MODULES
 
-# Imported once in the fork server, so that every worker forks ready to fit.
-WARM_MODULES = ("service.runtime.warmup",)
 BUILD_SECONDS = 300.0
 
 log = logging.getLogger("windvane")

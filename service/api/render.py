@@ -17,8 +17,8 @@ from service.core.diagnostics.differencing import SEASONAL_RULE, DifferencingOrd
 from service.core.diagnostics.differencing import label as difference_label
 from service.core.diagnostics.random_walk import RULE as RANDOM_WALK_RULE
 from service.core.diagnostics.random_walk import RandomWalkVerdict
-from service.core.diagnostics.report import Diagnostics, Seasonality
 from service.core.diagnostics.seasonality import OUTLIER_RULE, Outliers
+from service.core.diagnostics.sections import Diagnostics, Seasonality
 from service.core.diagnostics.stationarity import VERDICT_RULE, HypothesisTest, Stationarity
 from service.core.diagnostics.unit_root import PROCEDURE, UnitRootDecision, power_evidence
 from service.core.errors import FitError

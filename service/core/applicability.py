@@ -15,10 +15,6 @@ class NotApplicable:
 
     reason: str
 
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form shared by every section: ``{"applicable": false, "reason": ...}``."""
-        return {"applicable": False, "reason": self.reason}
-
 
 def plain_float(value: float | np.floating[Any] | None) -> float | None:
     """A finite Python float, or None for NaN, inf and None (JSON has no NaN)."""

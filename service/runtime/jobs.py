@@ -12,7 +12,8 @@ import numpy as np
 import pandas as pd
 
 from service.core.data.regressors import RegressorSet
-from service.core.diagnostics.report import Diagnostics, diagnose
+from service.core.diagnostics.report import diagnose
+from service.core.diagnostics.sections import Diagnostics
 from service.core.errors import WindvaneError
 from service.core.evaluation.backtest import backtest as run_backtest
 from service.core.evaluation.records import BacktestReport

@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 from statsmodels.tsa.stattools import adfuller
 
+from service.api.render import diagnostics_body
 from service.core.diagnostics.report import diagnose
 from service.core.diagnostics.stationarity import ADF_LAG_CAP, HypothesisTest, adf_test, kpss_test
 
@@ -48,7 +49,7 @@ def main() -> None:
     base = None
     for n, repeats, target in ((1_000, 7, 0.05), (10_000, 3, None), (100_000, 2, 2.0)):
         y = hourly_walk(n)
-        seconds = best_of(lambda y=y: diagnose(y, 24).to_dict(), repeats)
+        seconds = best_of(lambda y=y: diagnostics_body(diagnose(y, 24), []), repeats)
         base = base or seconds
         goal = f"< {target:g}" if target else ""
         print(f"{n:>8} {seconds:>9.4f} {seconds / base:>7.1f} {goal:>8}")

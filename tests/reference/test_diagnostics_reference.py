@@ -78,8 +78,7 @@ def test_white_noise_band(n: int) -> None:
     assert white_noise_band(n) == 1.959964 / math.sqrt(n)
     result = correlogram(np.random.default_rng(n).normal(size=n), 10, 1)
     assert isinstance(result, Correlogram)
-    band = result.to_dict()["band"]
-    assert band["lower"] == -band["upper"] == -1.959964 / math.sqrt(n)
+    assert result.band == 1.959964 / math.sqrt(n)
 
 
 @pytest.mark.parametrize("seed", range(12))

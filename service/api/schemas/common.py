@@ -19,7 +19,7 @@ from service.core.data.periods import MAX_PERIODS
 
 # Bounds stated here are checked by the core (which names the index) or by pydantic, and
 # appear in the OpenAPI schema; the limits that come from the settings are added to the
-# schema by service.api.openapi.install_limits.
+# schema by service.api.document.install_limits.
 TIMESTAMP_CHARACTERS = 64
 FREQUENCY_CHARACTERS = 40
 VALUE_MAGNITUDE = 1e30

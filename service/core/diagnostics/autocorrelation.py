@@ -9,12 +9,11 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 from scipy import stats
 
-from service.core.applicability import NotApplicable, plain_float, plain_floats
+from service.core.applicability import NotApplicable
 
 BAND_QUANTILE = 1.959964
 """Two-sided 95 % standard-normal quantile of the white-noise band ±1.959964/√n."""
@@ -37,15 +36,6 @@ class LjungBox:
     degrees_of_freedom: int
     p_value: float
 
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form."""
-        return {
-            "lag": self.lag,
-            "statistic": plain_float(self.statistic),
-            "degrees_of_freedom": self.degrees_of_freedom,
-            "p_value": plain_float(self.p_value),
-        }
-
 
 @dataclass(frozen=True)
 class Correlogram:
@@ -60,22 +50,6 @@ class Correlogram:
     significant_pacf_lags: tuple[int, ...]
     ljung_box: tuple[LjungBox, ...]
     notes: tuple[str, ...]
-
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form; ``acf[i]`` and ``pacf[i]`` belong to lag ``i + 1``."""
-        return {
-            "applicable": True,
-            "observations": self.observations,
-            "max_lag": self.max_lag,
-            "lags": list(range(1, self.max_lag + 1)),
-            "acf": plain_floats(self.acf),
-            "pacf": plain_floats(self.pacf),
-            "band": {"lower": -self.band, "upper": self.band, "rule": BAND_NOTE},
-            "significant_acf_lags": list(self.significant_acf_lags),
-            "significant_pacf_lags": list(self.significant_pacf_lags),
-            "ljung_box": [q.to_dict() for q in self.ljung_box],
-            "notes": list(self.notes),
-        }
 
 
 def default_max_lag(n: int, seasonal_period: int) -> int:

@@ -7,12 +7,11 @@ them: D = 1 when the STL seasonal strength exceeds 0.64, d by successive KPSS te
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from service.core.applicability import NotApplicable, plain_float
+from service.core.applicability import NotApplicable
 from service.core.checks import check_positive_int
 from service.core.data.filling import check_series, fill_gaps
 from service.core.diagnostics.random_walk import RandomWalkVerdict
@@ -50,17 +49,6 @@ class DifferencingStep:
     p_value_bound: str | None
     decision: str
 
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form."""
-        return {
-            "series": self.series,
-            "measure": self.measure,
-            "value": plain_float(self.value),
-            "p_value": plain_float(self.p_value),
-            "p_value_bound": self.p_value_bound,
-            "decision": self.decision,
-        }
-
 
 @dataclass(frozen=True)
 class DifferencingOrders:
@@ -82,22 +70,6 @@ class DifferencingOrders:
         if isinstance(adf, HypothesisTest) and isinstance(kpss, HypothesisTest):
             return adf.rejects and not kpss.rejects
         return None
-
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form."""
-        return {
-            "regular_differences": self.regular,
-            "seasonal_differences": self.seasonal,
-            "seasonal_period": self.seasonal_period,
-            "regular_rule": self.regular_rule,
-            "seasonal_rule": SEASONAL_RULE,
-            "steps": [s.to_dict() for s in self.steps],
-            "differenced_series": label(self.regular, self.seasonal, self.seasonal_period),
-            "adf_constant_after": self.adf_after.to_dict(),
-            "kpss_level_after": self.kpss_after.to_dict(),
-            "stationary_after": self.stationary_after,
-            "notes": list(self.notes),
-        }
 
 
 def differencing_orders(y: pd.Series, seasonal_period: int) -> DifferencingOrders:

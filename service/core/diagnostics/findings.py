@@ -2,16 +2,12 @@
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
-
 from service.core.applicability import NotApplicable
 from service.core.diagnostics.differencing import DifferencingOrders
 from service.core.diagnostics.random_walk import RandomWalkVerdict
 from service.core.diagnostics.seasonality import Outliers
+from service.core.diagnostics.sections import Diagnostics, Seasonality
 from service.core.diagnostics.stationarity import Stationarity
-
-if TYPE_CHECKING:
-    from service.core.diagnostics.report import Diagnostics
 
 STRONG = 0.64
 """Strength above which trend or season is called strong (the seasonal-differencing threshold)."""
@@ -92,8 +88,6 @@ def _differencing(o: DifferencingOrders) -> str:
 
 
 def _seasonality(d: Diagnostics) -> list[str]:
-    from service.core.diagnostics.report import Seasonality
-
     s = d.seasonality
     if not isinstance(s, Seasonality):
         return []

@@ -40,6 +40,7 @@ from service.core.diagnostics.unit_root import (
     LEVEL_WHITE,
     UnitRootDecision,
     integration_order,
+    stationarity,
 )
 
 CLOSE_TO_ONE = 0.905
@@ -90,22 +91,6 @@ class RandomWalkVerdict:
             return "drift" if self.with_drift else "naive"
         return None
 
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form."""
-        return {
-            "applicable": True,
-            "verdict": self.grade,
-            "is_random_walk": self.is_random_walk,
-            "is_seasonal_random_walk": self.is_seasonal_random_walk,
-            "with_drift": self.with_drift,
-            "forecast_to_beat": self.forecast_to_beat,
-            "differences_to_stationarity": self.differences,
-            "reason": self.reason,
-            "rule": RULE,
-            "tolerated_lags": list(self.tolerated_lags),
-            "evidence": {k: _plain(v) for k, v in self.evidence.items()},
-        }
-
 
 OVERDIFFERENCED_Z = 2.575829
 """Two-sided 1 % normal quantile: a lag-m autocorrelation of the seasonal differences below
@@ -146,8 +131,6 @@ def seasonal_check(x: np.ndarray, seasonal_period: int) -> SeasonalCheck | None:
 
 def random_walk(x: np.ndarray, seasonal_period: int) -> RandomWalkVerdict | NotApplicable:
     """The verdict of a gap-free series, running the unit-root procedure itself."""
-    from service.core.diagnostics.stationarity import stationarity
-
     decision = stationarity(x, (), seasonal_period).procedure
     if decision is None:
         decision = NotApplicable("the unit-root tests do not apply to this series")

@@ -7,13 +7,12 @@ why. Requested lags beyond what the series supports are clamped, with a note, no
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
-from typing import Any
+from dataclasses import replace
 
 import numpy as np
 import pandas as pd
 
-from service.core.applicability import NotApplicable, plain_float
+from service.core.applicability import NotApplicable
 from service.core.checks import check_positive_int
 from service.core.data.filling import check_series, fill_gaps
 from service.core.diagnostics.autocorrelation import (
@@ -34,9 +33,7 @@ from service.core.diagnostics.differencing import (
 from service.core.diagnostics.findings import findings
 from service.core.diagnostics.random_walk import RandomWalkVerdict, judge, seasonal_check
 from service.core.diagnostics.seasonality import (
-    CandidatePeriod,
     Decomposition,
-    Outliers,
     candidate_periods,
     components_dict,
     decompose,
@@ -44,118 +41,10 @@ from service.core.diagnostics.seasonality import (
     seasonal_strength,
     trend_strength,
 )
-from service.core.diagnostics.stationarity import Stationarity, stationarity
+from service.core.diagnostics.sections import Diagnostics, Seasonality, Summary
 from service.core.diagnostics.story import contradictions
+from service.core.diagnostics.unit_root import stationarity
 from service.core.errors import RequestError
-
-
-@dataclass(frozen=True)
-class Summary:
-    """Counts, span and moments of the observed values."""
-
-    length: int
-    missing: int
-    first: pd.Timestamp | None
-    last: pd.Timestamp | None
-    frequency: str
-    seasonal_period: int
-    mean: float | None
-    standard_deviation: float | None
-    minimum: float | None
-    maximum: float | None
-    share_of_zeros: float | None
-
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form; timestamps in ISO 8601."""
-        return {
-            "length": self.length,
-            "missing": self.missing,
-            "first_timestamp": None if self.first is None else self.first.isoformat(),
-            "last_timestamp": None if self.last is None else self.last.isoformat(),
-            "frequency": self.frequency,
-            "seasonal_period": self.seasonal_period,
-            "mean": plain_float(self.mean),
-            "standard_deviation": plain_float(self.standard_deviation),
-            "minimum": plain_float(self.minimum),
-            "maximum": plain_float(self.maximum),
-            "share_of_zeros": plain_float(self.share_of_zeros),
-        }
-
-
-@dataclass(frozen=True)
-class Seasonality:
-    """Strengths of trend and season, candidate periods and (on request) the components."""
-
-    method: str
-    seasonal_period: int
-    trend_strength: float
-    seasonal_strength: float | NotApplicable
-    candidates: tuple[CandidatePeriod, ...]
-    settings: dict[str, Any]
-    components: dict[str, Any] | None
-
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form."""
-        season: Any = self.seasonal_strength
-        season = season.to_dict() if isinstance(season, NotApplicable) else plain_float(season)
-        return {
-            "applicable": True,
-            "decomposition": self.method,
-            "settings": self.settings,
-            "strength_rule": "A component C is as strong as max(0, 1 - Var(R)/Var(C + R)), "
-            "R the STL remainder (Wang, Smith & Hyndman 2006).",
-            "trend_strength": plain_float(self.trend_strength),
-            "seasonal_strength": season,
-            "seasonal_period_from_frequency": self.seasonal_period,
-            "candidate_periods": [c.to_dict() for c in self.candidates],
-            "components": self.components,
-        }
-
-
-@dataclass(frozen=True)
-class Diagnostics:
-    """Every section of the diagnostics response, each a result or a NotApplicable."""
-
-    summary: Summary
-    stationarity: Stationarity | NotApplicable
-    differencing: DifferencingOrders | NotApplicable
-    autocorrelation: Correlogram | NotApplicable
-    differenced_autocorrelation: Correlogram | NotApplicable
-    differenced_series: str
-    random_walk: RandomWalkVerdict | NotApplicable
-    seasonality: Seasonality | NotApplicable
-    outliers: Outliers | NotApplicable
-    notes: tuple[str, ...]
-
-    @property
-    def is_random_walk(self) -> bool:
-        """True only when the random-walk verdict applies and says so (for model selection)."""
-        return isinstance(self.random_walk, RandomWalkVerdict) and self.random_walk.is_random_walk
-
-    @property
-    def findings(self) -> tuple[str, ...]:
-        """Plain sentences a reporting system can show as they are."""
-        return findings(self)
-
-    def to_dict(self) -> dict[str, Any]:
-        """The JSON-ready response body: plain numbers, strings, lists, dicts and None."""
-        return {
-            "summary": self.summary.to_dict(),
-            "stationarity": self.stationarity.to_dict(),
-            "differencing": self.differencing.to_dict(),
-            "autocorrelation": {
-                "series": self.autocorrelation.to_dict(),
-                "differenced": {
-                    "differenced_series": self.differenced_series,
-                    **self.differenced_autocorrelation.to_dict(),
-                },
-            },
-            "random_walk": self.random_walk.to_dict(),
-            "seasonality": self.seasonality.to_dict(),
-            "outliers": self.outliers.to_dict(),
-            "findings": list(self.findings),
-            "notes": list(self.notes),
-        }
 
 
 def diagnose(
@@ -206,6 +95,7 @@ def diagnose(
         ),
         notes=notes,
     )
+    report = replace(report, findings=findings(report))
     conflicts = contradictions(report)
     if conflicts:
         said = tuple(f"the sections disagree: {c}" for c in conflicts)
@@ -279,7 +169,7 @@ def _empty(
     orders: DifferencingOrders | NotApplicable = reason
     if x is not None:
         orders = orders_from(x, seasonal_period, reason, notes)
-    return Diagnostics(
+    report = Diagnostics(
         summary=summary,
         stationarity=reason,
         differencing=orders,
@@ -291,3 +181,4 @@ def _empty(
         outliers=reason,
         notes=notes,
     )
+    return replace(report, findings=findings(report))

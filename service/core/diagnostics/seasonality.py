@@ -20,7 +20,7 @@ from scipy import signal
 from statsmodels.nonparametric.smoothers_lowess import lowess
 from statsmodels.tsa.seasonal import STL
 
-from service.core.applicability import NotApplicable, plain_float, plain_floats
+from service.core.applicability import NotApplicable, plain_floats
 
 SEASONAL_WINDOW = 13
 """STL seasonal smoother span in cycles (odd, >= 7 as Cleveland et al. 1990 advise)."""
@@ -57,15 +57,6 @@ class CandidatePeriod:
     autocorrelation: float | None
     share_of_variance: float | None
 
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form."""
-        return {
-            "period": self.period,
-            "found_by": self.found_by,
-            "autocorrelation": plain_float(self.autocorrelation),
-            "share_of_variance": plain_float(self.share_of_variance),
-        }
-
 
 @dataclass(frozen=True)
 class Outlier:
@@ -76,15 +67,6 @@ class Outlier:
     remainder: float
     score: float
 
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form; ``score`` is |r - median| in robust standard deviations."""
-        return {
-            "timestamp": self.timestamp.isoformat(),
-            "value": plain_float(self.value),
-            "remainder": plain_float(self.remainder),
-            "score": plain_float(self.score),
-        }
-
 
 @dataclass(frozen=True)
 class Outliers:
@@ -93,18 +75,6 @@ class Outliers:
     count: int
     threshold: float
     points: tuple[Outlier, ...]
-
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form."""
-        return {
-            "applicable": True,
-            "rule": OUTLIER_RULE,
-            "threshold": plain_float(self.threshold),
-            "count": self.count,
-            "listed": len(self.points),
-            "points": [p.to_dict() for p in self.points],
-            "note": "only observed points are flagged; interpolated ones are skipped",
-        }
 
 
 def seasonal_reason(n: int, period: int) -> str | None:

@@ -16,7 +16,7 @@ import numpy as np
 from scipy.linalg import solve_triangular
 from statsmodels.tsa.adfvalues import mackinnoncrit, mackinnonp
 
-from service.core.applicability import NotApplicable, plain_float
+from service.core.applicability import NotApplicable
 
 Regression = Literal["c", "ct"]
 
@@ -69,24 +69,6 @@ class HypothesisTest:
             return self.p_value < LEVEL
         return self.p_value_bound is not None and self.p_value_bound.startswith("<")
 
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form."""
-        null = "unit root" if self.test == "adf" else "stationary"
-        return {
-            "applicable": True,
-            "test": self.test,
-            "deterministic_terms": _NAMES[self.regression],
-            "null_hypothesis": null,
-            "statistic": plain_float(self.statistic),
-            "p_value": plain_float(self.p_value),
-            "p_value_bound": self.p_value_bound,
-            "critical_values": {k: plain_float(v) for k, v in self.critical_values.items()},
-            "observations": self.observations,
-            "lags_used": self.lags_used,
-            "lag_rule": self.lag_rule,
-            "rejects_null_at_5_percent": self.rejects,
-        }
-
 
 @dataclass(frozen=True)
 class Stationarity:
@@ -101,18 +83,6 @@ class Stationarity:
     notes: tuple[str, ...]
     procedure: Any = None
     """The ``UnitRootDecision`` (or a NotApplicable saying why there is none)."""
-
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form, with the decision rule spelt out."""
-        return {
-            "adf_constant": self.adf_constant.to_dict(),
-            "adf_constant_and_trend": self.adf_trend.to_dict(),
-            "kpss_level": self.kpss_level.to_dict(),
-            "kpss_trend": self.kpss_trend.to_dict(),
-            "verdict": self.verdict,
-            "decision_rule": VERDICT_RULE,
-            "notes": list(self.notes),
-        }
 
 
 def applicability(x: np.ndarray) -> NotApplicable | None:
@@ -318,49 +288,3 @@ def _autocovariances(e: np.ndarray, lags: int) -> np.ndarray:
     size = 1 << (2 * n - 1).bit_length()
     spectrum = np.fft.rfft(e, size)
     return np.asarray(np.fft.irfft(spectrum * np.conj(spectrum), size)[: lags + 1] / n)
-
-
-def stationarity(
-    x: np.ndarray,
-    notes: tuple[str, ...] = (),
-    seasonal_period: int = 1,
-) -> Stationarity:
-    """All four tests on a finite series, the unit-root procedure and its verdict.
-
-    A seasonal random walk is invisible to the regular-unit-root procedure: the caller that
-    finds one (``report.diagnose``) replaces the verdict with seasonal_difference_stationary.
-    """
-    from service.core.diagnostics.unit_root import decide
-
-    adf_c, adf_ct = adf_test(x, "c"), adf_test(x, "ct")
-    kpss_c, kpss_ct = kpss_test(x, "c"), kpss_test(x, "ct")
-    if any(isinstance(t, NotApplicable) for t in (adf_c, adf_ct, kpss_c, kpss_ct)):
-        return Stationarity(adf_c, adf_ct, kpss_c, kpss_ct, "not_applicable", notes)
-    decision = decide(x, seasonal_period, adf_c, adf_ct)
-    if isinstance(decision, NotApplicable):
-        verdict = "inconclusive"
-        notes = (*notes, f"no verdict: {decision.reason}")
-    else:
-        verdict = decision.verdict
-        kpss = kpss_ct if decision.terms == "ct" else kpss_c
-        assert isinstance(kpss, HypothesisTest)
-        notes = (*notes, *_kpss_note(verdict, kpss))
-    return Stationarity(adf_c, adf_ct, kpss_c, kpss_ct, verdict, notes, decision)
-
-
-def _kpss_note(verdict: str, kpss: HypothesisTest) -> tuple[str, ...]:
-    """A note when KPSS, testing the other way round, points the other way."""
-    stationary = verdict != "difference_stationary"
-    if stationary and kpss.rejects:
-        return (
-            "KPSS rejects stationarity although the unit-root procedure rejects a unit root: "
-            "common for a stationary series that returns to its mean slowly (KPSS with a short "
-            "bandwidth over-rejects there); the verdict follows the unit-root procedure",
-        )
-    if not stationary and not kpss.rejects:
-        return (
-            "KPSS does not reject stationarity although the unit-root procedure keeps a unit "
-            "root: at this length neither test can rule out the other's hypothesis; the "
-            "verdict follows the unit-root procedure",
-        )
-    return ()

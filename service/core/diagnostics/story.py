@@ -8,14 +8,10 @@ anything it finds to the notes instead of hiding it.
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
-
 from service.core.diagnostics.differencing import DifferencingOrders
 from service.core.diagnostics.random_walk import RandomWalkVerdict
+from service.core.diagnostics.sections import Diagnostics
 from service.core.diagnostics.stationarity import Stationarity
-
-if TYPE_CHECKING:
-    from service.core.diagnostics.report import Diagnostics
 
 _STATIONARY = ("stationary", "trend_stationary")
 

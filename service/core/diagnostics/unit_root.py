@@ -40,7 +40,13 @@ from service.core.diagnostics.autocorrelation import (
     primary_ljung_box_lag,
     sample_acf,
 )
-from service.core.diagnostics.stationarity import HypothesisTest, Regression, adf_test
+from service.core.diagnostics.stationarity import (
+    HypothesisTest,
+    Regression,
+    Stationarity,
+    adf_test,
+    kpss_test,
+)
 
 LEVEL_TREND = 0.01
 LEVEL_CONSTANT = 0.05
@@ -318,3 +324,47 @@ def seasonal_adjustment(
     design = np.column_stack([np.ones(n), t - t.mean(), dummies])
     coefficients, *_ = np.linalg.lstsq(design, x, rcond=None)
     return x - dummies @ coefficients[2:], float(test.statistic), float(test.pvalue)
+
+
+def stationarity(
+    x: np.ndarray,
+    notes: tuple[str, ...] = (),
+    seasonal_period: int = 1,
+) -> Stationarity:
+    """All four tests on a finite series, the unit-root procedure and its verdict.
+
+    A seasonal random walk is invisible to the regular-unit-root procedure: the caller that
+    finds one (``report.diagnose``) replaces the verdict with seasonal_difference_stationary.
+    """
+    adf_c, adf_ct = adf_test(x, "c"), adf_test(x, "ct")
+    kpss_c, kpss_ct = kpss_test(x, "c"), kpss_test(x, "ct")
+    if any(isinstance(t, NotApplicable) for t in (adf_c, adf_ct, kpss_c, kpss_ct)):
+        return Stationarity(adf_c, adf_ct, kpss_c, kpss_ct, "not_applicable", notes)
+    decision = decide(x, seasonal_period, adf_c, adf_ct)
+    if isinstance(decision, NotApplicable):
+        verdict = "inconclusive"
+        notes = (*notes, f"no verdict: {decision.reason}")
+    else:
+        verdict = decision.verdict
+        kpss = kpss_ct if decision.terms == "ct" else kpss_c
+        assert isinstance(kpss, HypothesisTest)
+        notes = (*notes, *_kpss_note(verdict, kpss))
+    return Stationarity(adf_c, adf_ct, kpss_c, kpss_ct, verdict, notes, decision)
+
+
+def _kpss_note(verdict: str, kpss: HypothesisTest) -> tuple[str, ...]:
+    """A note when KPSS, testing the other way round, points the other way."""
+    stationary = verdict != "difference_stationary"
+    if stationary and kpss.rejects:
+        return (
+            "KPSS rejects stationarity although the unit-root procedure rejects a unit root: "
+            "common for a stationary series that returns to its mean slowly (KPSS with a short "
+            "bandwidth over-rejects there); the verdict follows the unit-root procedure",
+        )
+    if not stationary and not kpss.rejects:
+        return (
+            "KPSS does not reject stationarity although the unit-root procedure keeps a unit "
+            "root: at this length neither test can rule out the other's hypothesis; the "
+            "verdict follows the unit-root procedure",
+        )
+    return ()

@@ -65,7 +65,6 @@ import numpy as np
 import pandas as pd
 
 from service.core.errors import SpecificationError
-from service.core.models.base import as_dict
 from service.core.models.registry import FAMILIES, specification_from_dict
 from service.core.models.transforms import Transform, TransformedSpec
 
@@ -223,16 +222,6 @@ class CandidateSet:
     specifications: tuple[Any, ...]
     reasons: tuple[str, ...]
     skipped: tuple[str, ...] = field(default=())
-
-    def to_dict(self) -> dict[str, Any]:
-        """JSON form for logs and the response."""
-        return {
-            "candidates": [
-                {"specification": as_dict(s), "reason": r}
-                for s, r in zip(self.specifications, self.reasons, strict=True)
-            ],
-            "skipped": list(self.skipped),
-        }
 
 
 _TREND_COMBINATION: dict[str, Any] = {

@@ -57,7 +57,7 @@ def test_too_many_lags_are_clamped_with_a_note() -> None:
     assert isinstance(result, Correlogram)
     assert result.max_lag == 19
     assert any("clamped" in note for note in result.notes)
-    assert len(result.to_dict()["acf"]) == 19
+    assert len(result.acf) == 19
 
 
 def test_white_noise_has_few_significant_lags_and_ar_has_lag_one() -> None:

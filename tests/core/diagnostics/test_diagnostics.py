@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from service.api.render import diagnostics_body
 from service.core.diagnostics.report import diagnose
 from service.core.errors import RequestError, SeriesError
 
@@ -18,7 +19,7 @@ def _series(values: np.ndarray, freq: str = "MS") -> pd.Series:
 
 
 def _body(y: pd.Series, period: int, **options: Any) -> dict[str, Any]:
-    body = diagnose(y, period, **options).to_dict()
+    body = diagnostics_body(diagnose(y, period, **options), [])
     json.dumps(body, allow_nan=False)  # raises on NaN, inf or non-JSON types
     return body
 

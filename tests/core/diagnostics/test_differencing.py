@@ -6,6 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from service.core.applicability import NotApplicable
 from service.core.diagnostics.differencing import DifferencingOrders, differencing_orders, label
 from service.core.errors import RequestError, SeriesError
 
@@ -51,7 +52,7 @@ def test_missing_values_and_constant_series_give_orders_not_exceptions() -> None
     flat = _orders(np.full(40, 5.0), 12)
     assert (flat.regular, flat.seasonal) == (0, 0)
     assert any("constant" in note for note in flat.notes)
-    assert flat.to_dict()["adf_constant_after"]["applicable"] is False
+    assert isinstance(flat.adf_after, NotApplicable)
 
 
 def test_bad_arguments_name_their_field() -> None:

@@ -9,6 +9,7 @@ import pytest
 from statsmodels.tools.sm_exceptions import InterpolationWarning
 from statsmodels.tsa.stattools import adfuller, kpss
 
+from service.api.render import hypothesis_test
 from service.core.applicability import NotApplicable
 from service.core.diagnostics.stationarity import (
     ADF_LAG_CAP,
@@ -16,8 +17,8 @@ from service.core.diagnostics.stationarity import (
     adf_test,
     kpss_lags,
     kpss_test,
-    stationarity,
 )
+from service.core.diagnostics.unit_root import stationarity
 
 
 def _ar1(rng: np.random.Generator, n: int, phi: float) -> np.ndarray:
@@ -77,7 +78,7 @@ def test_random_walk_kpss_gives_a_lower_bound() -> None:
     assert isinstance(result, HypothesisTest)
     assert result.p_value is None and result.p_value_bound == "< 0.01"
     assert result.rejects
-    wire = result.to_dict()
+    wire = hypothesis_test(result)
     assert wire["p_value"] is None and wire["p_value_bound"] == "< 0.01"
 
 
@@ -85,7 +86,7 @@ def test_random_walk_kpss_gives_a_lower_bound() -> None:
 def test_constant_or_short_series_are_not_applicable(values: np.ndarray) -> None:
     for result in (adf_test(values, "c"), kpss_test(values, "ct")):
         assert isinstance(result, NotApplicable)
-        assert result.to_dict()["applicable"] is False
+        assert hypothesis_test(result)["applicable"] is False
     assert stationarity(values).verdict == "not_applicable"
 
 
