@@ -44,6 +44,7 @@ from service.core.models.base import (
     parameter,
 )
 from service.core.models.intervals import normal_intervals
+from service.core.models.labels import model_label
 from service.core.models.mstl import periods_parameter
 from service.core.models.simple import ljung_box_summary
 
@@ -252,7 +253,7 @@ class ErrorModel:
 
     @property
     def label(self) -> str:
-        return f"ARIMA({self.p},{self.d},{self.q})"
+        return model_label("arima", orders=(self.p, self.d, self.q))
 
 
 def choose_errors(values: np.ndarray, x: np.ndarray) -> ErrorModel:
@@ -406,7 +407,12 @@ class HarmonicFitted:
         resid = resid[np.isfinite(resid)]
         return Description(
             family=HarmonicSpec.family,
-            label=harmonic_label(self.terms, e.label),
+            label=model_label(
+                "harmonic_regression",
+                period=self.terms.periods,
+                harmonics=self.terms.harmonics,
+                base=e.label,
+            ),
             specification=as_dict(self.specification),
             parameters=parameters,
             information_criteria=criteria,
@@ -417,13 +423,6 @@ class HarmonicFitted:
             observations=n,
             fit_seconds=self.fit_seconds,
         )
-
-
-def harmonic_label(terms: FourierTerms, errors: str) -> str:
-    """``harmonic regression (periods 24, 168; harmonics 10, 5) with ARIMA(1,0,1) errors``."""
-    periods = ", ".join(period_text(p) for p in terms.periods)
-    counts = ", ".join(str(k) for k in terms.harmonics)
-    return f"harmonic regression (periods {periods}; harmonics {counts}) with {errors} errors"
 
 
 def steps_from(origin: pd.Timestamp, index: pd.DatetimeIndex) -> np.ndarray:

@@ -11,13 +11,15 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+from service.core.data.periods import period_text
+
 _ETS_LETTERS = {"none": "N", "add": "A", "mul": "M"}
 
 
 def model_label(
     family: str,
     *,
-    period: int | Sequence[int] = 1,
+    period: float | Sequence[float] = 1,
     components: tuple[str, str, bool, str] = ("add", "none", False, "none"),
     orders: tuple[int, int, int] = (0, 0, 0),
     seasonal_orders: tuple[int, int, int] = (0, 0, 0),
@@ -25,19 +27,22 @@ def model_label(
     variant: str = "classic",
     base: str = "",
     members: int = 0,
+    harmonics: Sequence[int] = (),
     weighted: bool = False,
     power: float = 0.0,
 ) -> str:
     """The label of one fitted model (or of one candidate in a search).
 
-    ``period``: the seasonal period(s) of seasonal naive, Theta's adjustment and STL;
+    ``period``: the seasonal period(s) of seasonal naive, Theta's adjustment, STL, MSTL and
+    harmonic regression (``harmonics``: the Fourier pairs per period);
     ``components``: ETS error, trend, damped, season; ``orders``, ``seasonal_orders`` and
     ``constant`` ("none", "mean" or "drift"): ARIMA; ``variant``: Croston's; ``base``: the
-    label of the model inside STL or a transform; ``members``, ``weighted``: a combination's
+    label of the model inside STL, MSTL or a transform (the errors' label for harmonic
+    regression); ``members``, ``weighted``: a combination's
     size and whether it was given weights; ``power``: the Box-Cox exponent of the
     "transformed" family (0 is the log).
     """
-    periods = [period] if isinstance(period, int) else list(period)
+    periods = [period] if isinstance(period, (int, float)) else list(period)
     seasonal = [m for m in periods if m > 1]
     match family:
         case "mean" | "naive" | "drift":
@@ -51,12 +56,19 @@ def model_label(
         case "arima":
             text = "ARIMA({},{},{})".format(*orders)
             if seasonal and any(seasonal_orders):
-                text += "x({},{},{}){}".format(*seasonal_orders, seasonal[0])
+                text += "x({},{},{}){}".format(*seasonal_orders, period_text(seasonal[0]))
             return text if constant == "none" else f"{text}, constant: {constant}"
         case "theta":
             return f"theta, seasonally adjusted ({_periods(seasonal)})" if seasonal else "theta"
         case "stl":
             return f"STL ({_periods(seasonal or periods)}) then {base}"
+        case "mstl":
+            return f"MSTL ({_periods(seasonal or periods)}) then {base}"
+        case "harmonic_regression":
+            counts = ", ".join(str(k) for k in harmonics)
+            return (
+                f"harmonic regression ({_periods(periods)}; harmonics {counts}) with {base} errors"
+            )
         case "croston":
             if variant == "sba":
                 return "Croston's method, Syntetos-Boylan correction"
@@ -71,7 +83,7 @@ def model_label(
     raise ValueError(f"no label for family {family!r}")
 
 
-def _periods(periods: Sequence[int]) -> str:
+def _periods(periods: Sequence[float]) -> str:
     if len(periods) == 1:
-        return f"period {periods[0]}"
-    return "periods " + ", ".join(str(m) for m in periods)
+        return f"period {period_text(periods[0])}"
+    return "periods " + ", ".join(period_text(m) for m in periods)

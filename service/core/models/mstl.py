@@ -24,11 +24,12 @@ import numpy as np
 import pandas as pd
 from statsmodels.tsa.seasonal import MSTL
 
-from service.core.data.periods import check_periods, period_text
+from service.core.data.periods import check_periods
 from service.core.diagnostics.seasonality import stl_settings
 from service.core.errors import FitError, SeriesError
 from service.core.models.base import Description, FitWarning, Forecast, as_dict, parameter
 from service.core.models.intervals import Interval, normal_quantile
+from service.core.models.labels import model_label
 from service.core.models.stl import base_parameter, carried_seasonal, fit_base
 
 SEASONAL_WINDOW = 51
@@ -225,10 +226,9 @@ class MstlFitted:
     def describe(self) -> Description:
         """The base model's description under an ``MSTL (periods ...) then base`` label."""
         inner = self.base.describe()
-        periods = ", ".join(period_text(m) for m in self.periods)
         return Description(
             family=MstlSpec.family,
-            label=f"MSTL (periods {periods}) then {inner.label}",
+            label=model_label("mstl", period=self.periods, base=inner.label),
             specification=as_dict(self.specification),
             parameters=inner.parameters,
             information_criteria=inner.information_criteria,
