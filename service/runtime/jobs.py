@@ -2,9 +2,6 @@
 
 from __future__ import annotations
 
-import warnings
-from collections.abc import Iterator
-from contextlib import contextmanager
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -23,6 +20,7 @@ from service.core.evaluation.records import BacktestReport
 # ~0.24 s of statsmodels imports. The pool's fork server preloads this module.
 from service.core.models import registry as _registry  # noqa: F401
 from service.core.models.base import Description, Fitted, FitWarning, Forecast, Specification
+from service.core.models.library_warnings import captured
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
 from service.core.models.transforms import TransformedSpec, transform_from_value
@@ -48,26 +46,6 @@ class ForecastTask:
     regressors: RegressorSet | None = None
 
 
-@contextmanager
-def collected_warnings(into: list[FitWarning]) -> Iterator[None]:
-    """Turn library warnings raised inside the block into FitWarning data."""
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        yield
-    for w in caught:
-        into.append(FitWarning(_warning_code(w.category), str(w.message).splitlines()[0]))
-
-
-def _warning_code(category: type[Warning]) -> str:
-    name = category.__name__
-    return {
-        "ConvergenceWarning": "convergence",
-        "ValueWarning": "value",
-        "RuntimeWarning": "numerical",
-        "UserWarning": "library",
-    }.get(name, "library")
-
-
 def benchmark_for(y: pd.Series, seasonal_period: int) -> Specification:
     """Seasonal naive when the series has a season with two full cycles, naive otherwise."""
     if seasonal_period > 1 and len(y) >= 2 * seasonal_period:
@@ -80,7 +58,7 @@ def fit_with_fallback(
 ) -> Fitted:
     """Fit ``spec``; a numerical failure (not a domain refusal) falls back to the benchmark."""
     try:
-        with collected_warnings(found):
+        with captured(found):
             return spec.fit(y, seasonal_period)
     except WindvaneError:
         raise
@@ -109,7 +87,7 @@ def fit_explicit(task: ForecastTask) -> FittedBundle:
     assert task.specification is not None
     found: list[FitWarning] = []
     if task.regressors is not None:
-        with collected_warnings(found):
+        with captured(found):
             fitted = task.specification.fit(  # type: ignore[call-arg]
                 task.y, task.seasonal_period, regressors=task.regressors.history
             )
@@ -158,7 +136,7 @@ def forecast_from(bundle: FittedBundle, task: ForecastTask) -> ForecastAnswer:
     """Forecast from an already fitted model: a new horizon or coverage needs no refit."""
     found = list(bundle.warnings)
     fitted = bundle.fitted
-    with collected_warnings(found):
+    with captured(found):
         if task.regressors is not None:
             result = fitted.forecast(  # type: ignore[call-arg]
                 task.horizon, task.coverage, future_regressors=task.regressors.future
@@ -206,7 +184,7 @@ def with_transform(spec: Specification, transform: dict[str, Any] | None) -> Spe
 def _auto_forecast(task: ForecastTask) -> ForecastAnswer:
     """Model "auto": diagnostics, candidates, backtest, refit, calibrated forecast."""
     found: list[FitWarning] = []
-    with collected_warnings(found):
+    with captured(found):
         report = diagnose(task.y, task.seasonal_period)
         candidates = task.candidates
         if transform_from_value(task.transform or None).kind != "none":
@@ -240,7 +218,7 @@ class DiagnosticsTask:
 def diagnostics(task: DiagnosticsTask) -> tuple[Diagnostics, list[FitWarning]]:
     """The diagnostics report and the library warnings raised while making it."""
     found: list[FitWarning] = []
-    with collected_warnings(found):
+    with captured(found):
         report = diagnose(
             task.y,
             task.seasonal_period,
@@ -274,7 +252,7 @@ def backtests(task: BacktestTask) -> tuple[BacktestReport, list[FitWarning]]:
         "coverage": task.coverage,
         "metric": task.metric,
     }
-    with collected_warnings(found):
+    with captured(found):
         if task.specifications is None:
             diagnostics = diagnose(task.y, task.seasonal_period)
             report = backtest_auto(task.y, task.seasonal_period, diagnostics=diagnostics, **options)

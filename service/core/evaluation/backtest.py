@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import dataclasses
 import time
-import warnings
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any, TypeVar
@@ -32,6 +31,7 @@ from service.core.evaluation.scoring import (
     mase_scale,
 )
 from service.core.models.base import FitWarning, Specification, as_dict
+from service.core.models.library_warnings import captured
 
 T = TypeVar("T")
 R = TypeVar("R")
@@ -61,8 +61,7 @@ def evaluate(task: Task) -> ModelBacktest:
     fit_seconds = refilter_seconds = 0.0
     forecasts: list[OriginForecast] = []
     try:
-        with warnings.catch_warnings(record=True) as seen:
-            warnings.simplefilter("always")
+        with captured(caught):
             start = time.perf_counter()
             # Never estimate on points after the first origin: that would peek.
             fit_end = min(task.fit_end or plan.origins[0], plan.origins[0])
@@ -74,7 +73,6 @@ def evaluate(task: Task) -> ModelBacktest:
                 current = fitted if origin == fit_end else fitted.refilter(y.iloc[:origin])
                 forecasts.append(_one_origin(current, y, origin, plan.horizon, task))
             refilter_seconds = time.perf_counter() - start
-        caught.extend(_as_fit_warnings(seen))
         caught.extend(fitted.warnings)
     except (ValueError, ArithmeticError, LookupError, RuntimeError, TypeError) as exc:
         # Library errors from a candidate are data here: the candidate drops out with a reason.
@@ -158,10 +156,6 @@ def _failed(
     spec: Specification, label: str, levels: tuple[float, ...], why: str, seen: list[FitWarning]
 ) -> ModelBacktest:
     return ModelBacktest(as_dict(spec), label, (), levels, 0.0, 0.0, tuple(seen), why)
-
-
-def _as_fit_warnings(seen: Iterable[warnings.WarningMessage]) -> list[FitWarning]:
-    return [FitWarning(w.category.__name__, str(w.message)) for w in seen]
 
 
 def _unique(items: Iterable[FitWarning]) -> list[FitWarning]:

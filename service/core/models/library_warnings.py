@@ -7,7 +7,7 @@ they are recorded and returned with the fitted model instead.
 from __future__ import annotations
 
 import warnings
-from collections.abc import Iterator
+from collections.abc import Iterable, Iterator
 from contextlib import contextmanager
 
 import numpy as np
@@ -16,23 +16,36 @@ from service.core.models.base import FitWarning
 
 
 @contextmanager
-def captured(into: list[FitWarning], context: str) -> Iterator[None]:
-    """Record every warning raised inside the block as a FitWarning appended to ``into``."""
+def captured(into: list[FitWarning], context: str = "") -> Iterator[None]:
+    """Record every warning raised inside the block as a FitWarning appended to ``into``,
+    once each, also when the block raises (the warnings may explain the failure)."""
     with warnings.catch_warnings(record=True) as caught, np.errstate(all="ignore"):
         warnings.simplefilter("always")
-        yield
-    seen: set[str] = set()
-    for item in caught:
-        text = f"{context}: {item.category.__name__}: {item.message}"
-        if text not in seen:
-            seen.add(text)
-            into.append(FitWarning(_code(item.category), text))
+        try:
+            yield
+        finally:
+            for item in _unique(fit_warning(w, context) for w in caught):
+                into.append(item)
 
 
-def _code(category: type[Warning]) -> str:
-    name = category.__name__
-    if "Convergence" in name:
+def fit_warning(item: warnings.WarningMessage, context: str = "") -> FitWarning:
+    """One library warning as data: a code from its category, its class name and first line."""
+    text = f"{item.category.__name__}: {str(item.message).splitlines()[0]}"
+    return FitWarning(warning_code(item.category), f"{context}: {text}" if context else text)
+
+
+def warning_code(category: type[Warning]) -> str:
+    """convergence, numerical (floating-point trouble) or library_warning."""
+    if "Convergence" in category.__name__:
         return "convergence"
     if issubclass(category, RuntimeWarning):
         return "numerical"
     return "library_warning"
+
+
+def _unique(items: Iterable[FitWarning]) -> list[FitWarning]:
+    out: list[FitWarning] = []
+    for item in items:
+        if item not in out:
+            out.append(item)
+    return out

@@ -9,7 +9,6 @@ so they leave out the uncertainty of the seasonal estimate.
 from __future__ import annotations
 
 import time
-import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any, ClassVar
@@ -20,11 +19,11 @@ from statsmodels.tsa.seasonal import STL
 
 from service.core.checks import check_positive_int
 from service.core.errors import FitError, SeriesError, WindvaneError
-from service.core.models.arima.estimation import _as_fit_warning
 from service.core.models.base import Description, FitWarning, Forecast, as_dict, parameter
 from service.core.models.ets.family import EtsSpec
 from service.core.models.intervals import Interval
 from service.core.models.labels import model_label
+from service.core.models.library_warnings import captured
 
 DEFAULT_BASE = EtsSpec(season="none")
 
@@ -155,10 +154,8 @@ def _seasonal_component(y: pd.Series, m: int, robust: bool) -> tuple[pd.Series, 
     if not np.all(np.isfinite(values)):
         values = pd.Series(values).interpolate(limit_direction="both").to_numpy()
         notes.append(FitWarning("interpolated", "missing values interpolated for STL"))
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
+    with captured(notes):
         parts = STL(values, period=m, robust=robust).fit()
-    notes.extend(_as_fit_warning(w) for w in caught)
     return pd.Series(np.asarray(parts.seasonal), index=y.index, name="seasonal"), notes
 
 

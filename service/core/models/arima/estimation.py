@@ -10,7 +10,6 @@ ARIMA errors.
 from __future__ import annotations
 
 import math
-import warnings
 
 import numpy as np
 from scipy import optimize, signal
@@ -26,6 +25,7 @@ from service.core.models.arima.orders import (
     roots_outside_unit_circle,
 )
 from service.core.models.base import FitWarning
+from service.core.models.library_warnings import captured
 
 CSS_EVALUATIONS = 30
 
@@ -227,8 +227,8 @@ def _filter_estimate(
     """Exact likelihood by SARIMAX's Kalman filter: for series too long for a dense matrix."""
     n = int(np.isfinite(w).sum())
     seasonal = (orders.P, 0, orders.Q, orders.m) if orders.P or orders.Q else (0, 0, 0, 0)
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
+    caught: list[FitWarning] = []
+    with captured(caught):
         try:
             model = SARIMAX(
                 w,
@@ -269,7 +269,7 @@ def _filter_estimate(
         "exact",
         bool(retvals.get("converged", True)),
         int(retvals.get("iterations", 0)),
-        tuple(_as_fit_warning(w) for w in caught),
+        tuple(caught),
     )
 
 
@@ -291,14 +291,4 @@ def _filled(w: np.ndarray) -> np.ndarray:
     idx = np.arange(w.size)
     out = w.copy()
     out[bad] = np.interp(idx[bad], idx[~bad], w[~bad])
-    return out
-
-
-def _as_fit_warning(message: warnings.WarningMessage) -> FitWarning:
-    """A library warning as data: its class name as the code and its text."""
-    return FitWarning(code=_snake(message.category.__name__), message=str(message.message))
-
-
-def _snake(name: str) -> str:
-    out = "".join(f"_{c.lower()}" if c.isupper() else c for c in name).lstrip("_")
     return out
