@@ -8,6 +8,7 @@ import re
 import shlex
 import shutil
 import subprocess
+import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -422,6 +423,12 @@ def test_the_image_installs_the_committed_constraints(steps: list[Instruction]) 
     assert all(re.fullmatch(r"[A-Za-z0-9._-]+==[A-Za-z0-9.+!-]+", p) for p in pins), pins
     assert {"fastapi", "numpy", "pandas", "scipy", "statsmodels", "uvicorn"} <= names
     assert not names & {"pytest", "hypothesis", "schemathesis", "ruff", "mypy"}
+    # Every runtime dependency the project declares is pinned: adding one means `sh docker/lock.sh`.
+    declared = tomllib.loads((ROOT / "pyproject.toml").read_text())["project"]["dependencies"]
+    wanted = {
+        re.split(r"[<>=!~\[; ]", d, maxsplit=1)[0].lower().replace("_", "-") for d in declared
+    }
+    assert wanted <= names, f"not in docker/constraints.txt: {sorted(wanted - names)}"
     wheel_runs = [s.arguments for s in steps if s.keyword == "RUN" and "pip wheel" in s.arguments]
     assert wheel_runs and all("constraints.txt" in r for r in wheel_runs), wheel_runs
     assert "sh docker/lock.sh" in constraints.read_text()
