@@ -4,13 +4,12 @@ null, ISO 8601 strings); the response schemas in ``api/schemas`` describe every 
 from __future__ import annotations
 
 import dataclasses
-import math
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from service.core.applicability import NotApplicable
+from service.core.applicability import NotApplicable, plain_float, plain_floats
 from service.core.data.frequency import frequency_name
 from service.core.diagnostics.autocorrelation import BAND_NOTE, Correlogram
 from service.core.diagnostics.differencing import SEASONAL_RULE, DifferencingOrders
@@ -38,8 +37,7 @@ def timestamps(index: pd.DatetimeIndex) -> list[str]:
 
 def floats(values: Any) -> list[float | None]:
     """A list of floats with non-finite entries as null (JSON has no NaN)."""
-    arr = np.asarray(values, dtype=float)
-    return [float(v) if math.isfinite(v) else None for v in arr.tolist()]
+    return plain_floats(np.asarray(values, dtype=float))
 
 
 def plain(value: Any) -> Any:
@@ -57,8 +55,7 @@ def plain(value: Any) -> Any:
     if isinstance(value, (np.integer,)):
         return int(value)
     if isinstance(value, (float, np.floating)):
-        f = float(value)
-        return f if math.isfinite(f) else None
+        return plain_float(value)
     if isinstance(value, pd.Timestamp):
         return value.isoformat()
     return value

@@ -31,7 +31,7 @@ from service.core.evaluation.scoring import (
     mase_scale,
 )
 from service.core.models.base import FitWarning, Specification, as_dict
-from service.core.models.library_warnings import captured
+from service.core.models.library_warnings import captured, unique_warnings
 
 T = TypeVar("T")
 R = TypeVar("R")
@@ -86,7 +86,7 @@ def evaluate(task: Task) -> ModelBacktest:
         task.coverage,
         fit_seconds,
         refilter_seconds,
-        tuple(_unique(caught)),
+        tuple(unique_warnings(caught)),
         resolved=resolved_specification(fitted),
         refit=_refit_specification(fitted),
     )
@@ -156,14 +156,6 @@ def _failed(
     spec: Specification, label: str, levels: tuple[float, ...], why: str, seen: list[FitWarning]
 ) -> ModelBacktest:
     return ModelBacktest(as_dict(spec), label, (), levels, 0.0, 0.0, tuple(seen), why)
-
-
-def _unique(items: Iterable[FitWarning]) -> list[FitWarning]:
-    out: list[FitWarning] = []
-    for item in items:
-        if item not in out:
-            out.append(item)
-    return out
 
 
 def run(

@@ -24,7 +24,7 @@ def captured(into: list[FitWarning], context: str = "") -> Iterator[None]:
         try:
             yield
         finally:
-            for item in _unique(fit_warning(w, context) for w in caught):
+            for item in unique_warnings(fit_warning(w, context) for w in caught):
                 into.append(item)
 
 
@@ -43,7 +43,8 @@ def warning_code(category: type[Warning]) -> str:
     return "library_warning"
 
 
-def _unique(items: Iterable[FitWarning]) -> list[FitWarning]:
+def unique_warnings(items: Iterable[FitWarning]) -> list[FitWarning]:
+    """Each warning once, in the order first seen."""
     out: list[FitWarning] = []
     for item in items:
         if item not in out:

@@ -36,6 +36,7 @@ from service.core.models.base import (
     parameter,
 )
 from service.core.models.intervals import normal_intervals
+from service.core.models.library_warnings import unique_warnings
 from service.core.models.simple import ljung_box_summary
 
 FINAL_MAXITER = 500
@@ -146,7 +147,7 @@ class ArimaSpec:
             regressors=regressors,
             search=search,
             fit_seconds=time.perf_counter() - start,
-            warnings=_unique(notes),
+            warnings=unique_warnings(notes),
         )
 
     def _check_constant(self) -> None:
@@ -402,11 +403,3 @@ def _estimate_warnings(estimate: Estimate) -> list[FitWarning]:
             )
         )
     return out
-
-
-def _unique(items: list[FitWarning]) -> list[FitWarning]:
-    seen: list[FitWarning] = []
-    for item in items:
-        if item not in seen:
-            seen.append(item)
-    return seen

@@ -7,6 +7,7 @@ import math
 from dataclasses import dataclass, replace
 
 import numpy as np
+from statsmodels.tools import eval_measures
 
 from service.core.models.base import FitWarning
 from service.core.models.labels import model_label
@@ -143,8 +144,11 @@ def roots_outside_unit_circle(poly: np.ndarray, margin: float = 1e-3) -> bool:
 
 
 def information_criteria(loglik: float, k: int, n: int) -> tuple[float, float, float]:
-    """AIC, AICc and BIC with k estimated parameters (σ² included) on n observations."""
-    aic = -2.0 * loglik + 2.0 * k
-    aicc = aic + 2.0 * k * (k + 1) / (n - k - 1) if n - k - 1 > 0 else math.inf
-    bic = -2.0 * loglik + k * math.log(n)
-    return aic, aicc, bic
+    """AIC, AICc and BIC (statsmodels' definitions) with k estimated parameters (σ² included)
+    on n observations; AICc is infinite when n <= k + 1."""
+    small_sample = float(eval_measures.aicc(loglik, n, k)) if n - k - 1 > 0 else math.inf
+    return (
+        float(eval_measures.aic(loglik, n, k)),
+        small_sample,
+        float(eval_measures.bic(loglik, n, k)),
+    )
