@@ -197,20 +197,24 @@ def story_orders(
         regular = searched.regular
         why = "unit root and a seasonal difference: the KPSS search decides d"
     else:
-        regular = integration_order(np.diff(x))
+        known = walk.differences if isinstance(walk, RandomWalkVerdict) else None
+        regular = known if known is not None else integration_order(np.diff(x))
         why = f"unit root: {regular} regular difference(s)"
     steps = (
         *searched.steps,
         DifferencingStep(label(regular, seasonal, m), "unit_root_procedure", None, None, None, why),
     )
-    current = difference(x, regular, seasonal, m)
+    adf_after, kpss_after = searched.adf_after, searched.kpss_after
+    if (regular, seasonal) != (searched.regular, searched.seasonal):
+        current = difference(x, regular, seasonal, m)
+        adf_after, kpss_after = adf_test(current, "c"), kpss_test(current, "c")
     return DifferencingOrders(
         regular=regular,
         seasonal=seasonal,
         seasonal_period=m,
         steps=steps,
-        adf_after=adf_test(current, "c"),
-        kpss_after=kpss_test(current, "c"),
+        adf_after=adf_after,
+        kpss_after=kpss_after,
         notes=searched.notes,
         regular_rule=STORY_REGULAR_RULE,
     )

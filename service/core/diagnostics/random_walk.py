@@ -24,7 +24,6 @@ from dataclasses import asdict, dataclass, replace
 from typing import Any
 
 import numpy as np
-from scipy import stats
 
 from service.core.applicability import NotApplicable, plain_float
 from service.core.diagnostics import symmetric_test
@@ -40,6 +39,7 @@ from service.core.diagnostics.unit_root import (
     LEVEL_WHITE,
     UnitRootDecision,
     integration_order,
+    mean_test,
     stationarity,
 )
 
@@ -270,10 +270,10 @@ def _plain(value: Any) -> Any:
 
 def _drift(steps: np.ndarray) -> dict[str, Any]:
     """One-sample t-test of the mean difference against zero."""
-    result = stats.ttest_1samp(steps, 0.0)
+    statistic, p_value = mean_test(steps)
     return {
         "mean": plain_float(float(np.mean(steps))),
-        "t_statistic": plain_float(float(result.statistic)),
-        "p_value": plain_float(float(result.pvalue)),
+        "t_statistic": plain_float(statistic),
+        "p_value": plain_float(p_value),
         "degrees_of_freedom": int(steps.size - 1),
     }

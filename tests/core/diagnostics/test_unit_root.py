@@ -64,3 +64,19 @@ def test_too_short_or_straight_series_get_a_reason() -> None:
     assert isinstance(decide(short, 1, adf_test(short, "c"), adf_test(short, "ct")), NotApplicable)
     line = np.arange(50.0)
     assert isinstance(decide(line, 1, adf_test(line, "c"), adf_test(line, "ct")), NotApplicable)
+
+
+def test_the_fast_f_and_t_tests_agree_with_scipy() -> None:
+    from scipy import stats
+
+    from service.core.diagnostics.unit_root import mean_test, one_way_f
+
+    rng = np.random.default_rng(8)
+    values = rng.normal(size=301) + 0.1
+    groups = np.arange(301) % 12
+    found = one_way_f(values, groups, 12)
+    assert found is not None
+    reference = stats.f_oneway(*[values[groups == k] for k in range(12)])
+    np.testing.assert_allclose(found, (reference.statistic, reference.pvalue), rtol=1e-10)
+    t = stats.ttest_1samp(values, 0.0)
+    np.testing.assert_allclose(mean_test(values), (t.statistic, t.pvalue), rtol=1e-10)
