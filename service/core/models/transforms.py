@@ -18,7 +18,7 @@ from typing import Any, ClassVar, cast
 
 import numpy as np
 import pandas as pd
-from scipy import optimize, stats
+from scipy import stats
 
 from service.core.errors import FitError, SpecificationError
 from service.core.models.base import (
@@ -118,28 +118,6 @@ def inverse_boxcox(values: np.ndarray, lam: float) -> np.ndarray:
 def boxcox_lambda(values: np.ndarray) -> float:
     """λ by maximum likelihood for an i.i.d. normal model (scipy, method='mle': trap 5)."""
     return float(stats.boxcox_normmax(values, method="mle"))
-
-
-def boxcox_profile_loglik(lam: float, values: np.ndarray, design: np.ndarray) -> float:
-    """Box & Cox (1964) profile log-likelihood of λ for a linear model with this design."""
-    z = boxcox(values, lam)
-    coef, *_ = np.linalg.lstsq(design, z, rcond=None)
-    rss = float(np.sum((z - design @ coef) ** 2))
-    n = values.size
-    return -0.5 * n * math.log(rss / n) + (lam - 1.0) * float(np.sum(np.log(values)))
-
-
-def boxcox_lambda_linear(
-    values: np.ndarray, design: np.ndarray, bounds: tuple[float, float] = (-3.0, 3.0)
-) -> float:
-    """λ maximising the profile likelihood of a linear model (factors, trends) in ``design``."""
-    found = optimize.minimize_scalar(
-        lambda lam: -boxcox_profile_loglik(lam, values, design),
-        bounds=bounds,
-        method="bounded",
-        options={"xatol": 1e-8},
-    )
-    return float(found.x)
 
 
 def resolve_lambda(transform: Transform, values: np.ndarray) -> float | None:

@@ -19,7 +19,6 @@ from service.core.models.transforms import (
     bias_factor,
     boxcox,
     boxcox_lambda,
-    boxcox_lambda_linear,
     fit_transformed,
     inverse_boxcox,
     transform_from_value,
@@ -42,12 +41,6 @@ def test_round_trip(lam: float) -> None:
 def test_inverse_outside_the_range_is_zero_or_infinite() -> None:
     assert inverse_boxcox(np.array([-5.0]), 0.5)[0] == 0.0
     assert inverse_boxcox(np.array([5.0]), -0.5)[0] == np.inf
-
-
-def test_univariate_mle_agrees_with_the_linear_helper_on_a_constant_design() -> None:
-    y = positive_series().to_numpy()
-    design = np.ones((y.size, 1))
-    assert_allclose(boxcox_lambda(y), boxcox_lambda_linear(y, design), atol=1e-4)
 
 
 def test_log_bias_factor_is_the_lognormal_mean() -> None:
