@@ -26,10 +26,8 @@ FACTOR_BOUNDS = (1.0, 3.0)
 
 Never narrowing: the backtest windows overlap and end before the forecast origin, so a factor
 below one rests on little independent evidence, and a miss costs more than width (the interval
-score charges 2/α per unit outside). Measured (tests/benchmarks/accuracy.py, both panels and
-two earlier holdout cuts each, 6 sets): mean coverage of the 80 % / 95 % intervals 75.8 / 90.0
-with factors in [0.5, 3], 77.7 / 93.6 in [0.9, 3], 79.4 / 94.7 in [1, 3]; 74.1 / 89.0 with the
-models' own intervals."""
+score charges 2/α per unit outside); the coverages measured with other bounds are in
+tests/benchmarks/RESULTS.md."""
 
 
 @dataclass(frozen=True)

@@ -16,10 +16,6 @@ Rules (stated for DEVELOPERS.md):
   the SES/Holt/damped average, ...) weighted by the inverse square of its backtest score, by
   default; a single model only with a 10 % lower score, a majority of origins and >= 5
   disjoint windows. Drift is only a benchmark.
-  Measured (tests/benchmarks/accuracy.py, 23 series, mean MASE): the backtest winner 1.116,
-  the top 3 combined 1.129, a single model at a 10 % margin and a majority of origins 1.160,
-  the same requiring every origin 1.153, the combination by default 0.998 (0.975 with the
-  candidates of candidates.py now); median instead of mean over the members 1.037.
 - Naive guard: when the series is judged a random walk and the chosen model's score is not at
   least 5 % better than the naive forecast's (1 − score/score(naive) < 0.05), the naive
   forecast is returned with ``no_skill_over_naive``.
@@ -30,7 +26,10 @@ Rules (stated for DEVELOPERS.md):
   split-conformal factors (calibration.py; never narrowed). Short series fall back to origins
   starting at half the series, fitted there, and to the model's own intervals below 5 origins.
 - The refit runs each member's own search again on the full series (the backtest scored the
-  search procedure; keeping the structure settled on the early part gave 1.097 against 0.998).
+  search procedure, not the structure it settled on before the first origin).
+
+The figures behind these rules, and the rules tried and dropped, are in
+tests/benchmarks/RESULTS.md.
 """
 
 from __future__ import annotations
@@ -82,8 +81,8 @@ from service.core.selection.skill import (
 
 MAX_HISTORY = 5000
 """auto estimates on at most the latest max(MAX_HISTORY, 4m) points: its cost grows with the
-length (10,000 daily points took 7.8 s, 100,000 would pass the time budget) while points that
-old add little to a forecast of the next few seasons (common practice)."""
+length while points that old add little to a forecast of the next few seasons (common
+practice)."""
 
 
 def select(
@@ -203,8 +202,7 @@ def select(
     clock.lap("calibration")
 
     # The family's own search runs again on the full series: the backtest scored the search
-    # procedure, and a structure settled on the early part alone forecast worse (mean MASE
-    # 1.097 against 0.998 on the accuracy benchmark).
+    # procedure, and a structure settled on the early part alone forecast worse.
     fitted, dropped = refit(
         y,
         [for_refit(specs[i], dense[i]) for i in members],

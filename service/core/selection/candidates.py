@@ -10,8 +10,7 @@ Rules (the table DEVELOPERS.md carries; n = observations, m = seasonal period):
                       the diagnostics, STL seasonal strength >= 0.64 (the threshold of Wang,
                       Smith & Hyndman 2006, from memory, also used for D in the ARIMA search)
     long period       seasonal and m >= 24: ETS and seasonal ARIMA are slow or unstable there
-                      (seasonal ARIMA on 2000 hourly points, m = 24: 33 s, past the time
-                      budget; through STL 4.8 s)
+                      (seasonal ARIMA on hourly data ran past the time budget)
     positive          every observed value > 0 (admits multiplicative ETS, left to its search)
     intermittent      no negative values and a share of zeros >= 0.3
     short             n < 30, or fewer than 3 full seasons when seasonal
@@ -24,33 +23,22 @@ Rules (the table DEVELOPERS.md carries; n = observations, m = seasonal period):
     intermittent               croston (classic), croston (sba), mean
     not intermittent           ets (AICc over the taxonomy), drift (benchmark only)
       and positive             + ets with additive errors on the log scale (AICc over trend
-                                 and season): over six evaluation sets (two panels, three
-                                 holdout cuts) the mean ratio to the best benchmark 0.973 ->
-                                 0.947, worst set 1.008 -> 0.993 (tests/benchmarks/accuracy.py;
-                                 the full error/trend/season search on logs: 0.950 / 0.985)
+                                 and season)
       and fitted with m = 1    + the equal-weight combination of SES, Holt and damped Holt
                                  (additive errors), the M4 competition's benchmark; no theta
-                                 (without a season it is SES with drift, inside that span:
-                                 dropping it took mean MASE from 0.998 to 0.975)
+                                 (without a season it is SES with drift, inside that span)
       and fitted with m > 1    + theta (classical multiplicative seasonal adjustment)
       and not short            + arima (not for a long season, where STL + ETS and the
-                                 non-seasonal models stand in; non-seasonal ARIMA on the raw
-                                 series was most of the cost there, 4.7 of 10.6 s on 3000
-                                 half-hourly points, and ranked last on the weekly co2;
-                                 on the log scale when positive and fitted with m > 1:
-                                 second panel of the accuracy benchmark mean MASE 1.659 ->
-                                 1.638, the issue panel unchanged, earlier cuts within 0.002):
-                                 by default search="quick" (stepwise walk on CSS AICc, two
-                                 exact fits); when thorough, the full stepwise AICc search.
-                                 Measured (tests/benchmarks/accuracy.py, selection_speed.py):
-                                 mean / median MASE 0.975 / 0.740 -> 0.971 / 0.746, MSIS 6.62
-                                 -> 6.36; auto warm on 200 monthly points 0.78 -> 0.96 s once
-                                 the quick fit stopped re-fitting (1.46 s before)
+                                 non-seasonal models stand in; on the log scale when positive
+                                 and fitted with m > 1): by default search="quick" (stepwise
+                                 walk on CSS AICc, two exact fits); when thorough, the full
+                                 stepwise AICc search
       and long period          + stl with ets base (and, when thorough, stl with arima
                                  base), instead of the seasonal variants of ets and arima;
                                  ets then runs with m = 1
 
-A family that is not (yet) in the registry is skipped and listed in ``skipped``.
+A family that is not (yet) in the registry is skipped and listed in ``skipped``. The
+figures behind each rule are in tests/benchmarks/RESULTS.md.
 """
 
 from __future__ import annotations

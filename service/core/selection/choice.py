@@ -9,10 +9,7 @@ of a few backtest origins chases noise, averaging does not. So:
 - Weights: inversely proportional to the square of each member's pooled backtest score
   (``WEIGHT_POWER``), the inverse-error weighting of Bates & Granger (1969): a member that
   failed badly in the backtest keeps a small say instead of an equal one, and no threshold
-  decides who is in. Measured (tests/benchmarks/accuracy.py, both panels and two earlier
-  holdout cuts each, 6 sets of 20-27 series): mean MASE over the best benchmark of each set
-  1.011 on average with equal weights, 0.983 keeping only members within 1.5 x the best
-  score, 0.977 with these weights (power 1: 0.987, power 4: 0.972 but a worse worst set).
+  decides who is in (the weightings compared are in tests/benchmarks/RESULTS.md).
 - A single model replaces the combination only when its pooled backtest score is at least
   ``SINGLE_MARGIN`` (10 %) lower AND it is better at a majority of the origins: a clear margin
   over several origins, not one lucky window.
@@ -20,12 +17,10 @@ of a few backtest origins chases noise, averaging does not. So:
   (it won short backtests on series with chance trends and then lost out of sample).
 - Ties (scores within ``TIE`` of each other) go to the simpler model (fewer parameters).
 
-Tried and measured (tests/benchmarks/accuracy.py): combining the top 3 by backtest score
-(mean MASE 1.129), picking the backtest winner (1.116), a single model at the 10 % margin with
-3 origins allowed (1.160): on short series the backtest's winner kept losing out of sample.
 With the default 3 selection origins the single-model path needs longer plans than the
-default gives, so in practice the combination is returned (see selection.py for figures).
-The majority test compares mean scaled errors per origin whatever the ranking metric.
+default gives, so in practice the combination is returned; the rules tried before this one
+are in tests/benchmarks/RESULTS.md. The majority test compares mean scaled errors per origin
+whatever the ranking metric.
 """
 
 from __future__ import annotations

@@ -143,9 +143,7 @@ class EtsRefitSpec:
     Not a family of its own: the selection refits an ETS candidate on the full series with it.
     The exact fit (initial states estimated) is most of an ETS search's cost; started from the
     estimates on the data before the first backtest origin it converges in a few iterations
-    (co2, 444 monthly points: 0.16 s against 0.71 s, the same model and likelihood to 1e-2).
-    Narrowing the search to the models within 10 AICc of the earlier best was tried too and
-    dropped: on short series (airmiles, lh) it kept out the model the full data chose."""
+    (figures in tests/benchmarks/RESULTS.md)."""
 
     family: ClassVar[str] = "ets"
 
