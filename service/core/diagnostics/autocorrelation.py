@@ -77,6 +77,22 @@ def sample_acf(x: np.ndarray, max_lag: int) -> np.ndarray:
     return np.asarray(autocov[1:] / autocov[0], dtype=float)
 
 
+SEASONALITY_TEST_LEVEL = 0.90
+"""The level of the seasonal-lag autocorrelation test of the M4 competition's benchmarks."""
+
+
+def seasonal_lag_stands_out(
+    x: np.ndarray, period: int, level: float = SEASONALITY_TEST_LEVEL
+) -> bool:
+    """|r_m| above z·√((1 + 2 Σ_{k<m} r_k²)/n), the seasonality test of the M4 benchmarks
+    (Makridakis et al. 2020; the band is Bartlett's for an MA(m - 1) process)."""
+    if period <= 1 or x.size <= period or not np.any(x != x[0]):
+        return False
+    r = sample_acf(x, period)
+    band = stats.norm.ppf(0.5 + level / 2) * math.sqrt((1 + 2 * np.sum(r[:-1] ** 2)) / x.size)
+    return bool(abs(r[-1]) > band)
+
+
 def partial_acf(acf: np.ndarray) -> np.ndarray:
     """Partial autocorrelations from the ACF by the Durbin-Levinson recursion."""
     size = acf.size

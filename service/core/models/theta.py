@@ -8,23 +8,21 @@ intervals (tests/reference/README.md, trap 4).
 
 from __future__ import annotations
 
-import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 from typing import ClassVar
 
 import numpy as np
 import pandas as pd
-from scipy import optimize, stats
+from scipy import optimize
 
+from service.core.diagnostics.autocorrelation import seasonal_lag_stands_out
 from service.core.errors import FitError
 from service.core.models.base import Description, FitWarning, Forecast, as_dict, future_index
 from service.core.models.base import parameter as param
 from service.core.models.intervals import Interval, normal_intervals
 from service.core.models.labels import model_label
 from service.core.models.simple import ljung_box_summary, timed
-
-SEASONALITY_TEST_LEVEL = 0.90
 
 
 @dataclass(frozen=True)
@@ -72,7 +70,7 @@ class ThetaSpec:
                     field="model.seasonal_adjustment",
                 )
             return multiplicative_indices(values, period)
-        if usable and is_seasonal(values, period):
+        if usable and seasonal_lag_stands_out(values, period):
             return multiplicative_indices(values, period)
         if not usable:
             notes.append(
@@ -131,17 +129,6 @@ def theta_path(level: float, alpha: float, slope: float, n: int, horizon: int) -
     """ℓ_T + ½ b0 [h − 1 + 1/α − (1−α)^T / α] for h = 1..horizon (Hyndman & Billah 2003)."""
     h = np.arange(1, horizon + 1, dtype=float)
     return level + 0.5 * slope * (h - 1.0 + 1.0 / alpha - (1.0 - alpha) ** n / alpha)
-
-
-def is_seasonal(values: np.ndarray, period: int, level: float = SEASONALITY_TEST_LEVEL) -> bool:
-    """|r_m| above the 90% band √((1 + 2Σ_{k<m} r_k²)/n) (common practice for Theta)."""
-    x = values - values.mean()
-    denom = float(np.dot(x, x))
-    if denom == 0.0:
-        return False
-    r = np.array([np.dot(x[k:], x[:-k]) / denom for k in range(1, period + 1)])
-    band = stats.norm.ppf(0.5 + level / 2) * math.sqrt((1 + 2 * np.sum(r[:-1] ** 2)) / x.size)
-    return bool(abs(r[-1]) > band)
 
 
 def multiplicative_indices(values: np.ndarray, period: int) -> tuple[float, ...]:

@@ -52,6 +52,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from service.core.diagnostics.autocorrelation import seasonal_lag_stands_out
 from service.core.errors import SpecificationError
 from service.core.models.registry import FAMILIES, specification_from_dict
 from service.core.models.transforms import Transform, TransformedSpec
@@ -108,22 +109,12 @@ class SeriesProfile:
 
 
 def seasonality_test(values: np.ndarray, period: int) -> bool:
-    """The M4 benchmarks' 90 % test of the autocorrelation at the seasonal lag."""
+    """The M4 benchmarks' 90 % seasonal-lag test, on the first differences so that a trend or
+    a wandering level is not mistaken for a season."""
     y = values[np.isfinite(values)]
     if period <= 1 or y.size < 2 * period + 2:
         return False
-    # On first differences, so that a trend or a wandering level is not mistaken for a season.
-    r = np.diff(y)
-    r = r - r.mean()
-    n = r.size
-    denom = float(np.sum(r**2))
-    if denom <= 0:
-        return False
-    size = 1 << int(2 * n - 1).bit_length()
-    spectrum = np.fft.rfft(r, size)
-    acf = np.fft.irfft(spectrum * np.conj(spectrum), size)[1 : period + 1] / denom
-    limit = 1.645 * math.sqrt((1.0 + 2.0 * float(np.sum(acf[:-1] ** 2))) / n)
-    return bool(abs(acf[-1]) > limit)
+    return seasonal_lag_stands_out(np.diff(y), period)
 
 
 def random_walk_fallback(values: np.ndarray) -> tuple[bool, str]:

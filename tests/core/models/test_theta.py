@@ -8,10 +8,10 @@ import pytest
 from numpy.testing import assert_allclose
 from statsmodels.tsa.forecasting.theta import ThetaModel
 
+from service.core.diagnostics.autocorrelation import seasonal_lag_stands_out
 from service.core.errors import FitError
 from service.core.models.theta import (
     ThetaSpec,
-    is_seasonal,
     multiplicative_indices,
     ols_slope,
     ses_alpha,
@@ -66,9 +66,9 @@ def test_intervals_use_the_ima_variance() -> None:
 
 def test_seasonality_test_and_indices() -> None:
     y = seasonal_series().to_numpy()
-    assert is_seasonal(y, 12)
+    assert seasonal_lag_stands_out(y, 12)
     rng = np.random.default_rng(1)
-    assert not is_seasonal(100 + rng.normal(size=72), 12)
+    assert not seasonal_lag_stands_out(100 + rng.normal(size=72), 12)
     indices = multiplicative_indices(y, 12)
     assert_allclose(np.mean(indices), 1.0, rtol=1e-12)
     assert indices[3] > 1.1 and indices[9] < 0.9  # the peak and trough of the sine

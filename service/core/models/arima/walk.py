@@ -13,6 +13,10 @@ from service.core.errors import FitError
 from service.core.models.arima.estimation import css_estimate, exact_estimate
 from service.core.models.arima.orders import ArimaOrders, Estimate, design_matrix, difference
 
+MAX_MODELS = 94
+"""The most orders one walk fits (CSS or exact): the cap of Hyndman & Khandakar's stepwise
+search (94 models, from memory), which bounds the search's cost on any series."""
+
 
 @dataclass(frozen=True)
 class CandidateScore:
@@ -138,7 +142,7 @@ class StepwiseWalk:
             raise FitError("no admissible order within the search limits", field="model.order")
         best = min(candidates, key=self.css_score)
         improved = True
-        while improved and len(self.css) < 94:
+        while improved and len(self.css) < MAX_MODELS:
             improved = False
             for other in self.neighbours(best):
                 if self.css_score(other) < self.css_score(best):
@@ -152,7 +156,7 @@ class StepwiseWalk:
             raise FitError("no admissible order within the search limits", field="model.order")
         best = min(candidates, key=self.exact_score)
         improved = True
-        while improved and len(self.exact) < 94:
+        while improved and len(self.exact) < MAX_MODELS:
             improved = False
             for other in self.neighbours(best):
                 self.css_score(other)
