@@ -8,6 +8,8 @@ yearly swing (winter higher), over whole years.
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 import pandas as pd
 
@@ -49,3 +51,23 @@ def daily_calls(years: int = 3, seed: int = 14, extra: int = 0) -> pd.Series:
     index = pd.date_range("2023-01-02", periods=round(years * 365.25) + extra, freq="D")
     rng = np.random.default_rng(seed)
     return pd.Series(rng.poisson(daily_rate(index)).astype(float), index=index, name="calls")
+
+
+def direct_mstl(values: np.ndarray, periods: list[int]) -> Any:
+    """statsmodels' MSTL called directly with the settings the service states (for checks)."""
+    from statsmodels.tsa.seasonal import MSTL
+
+    return MSTL(
+        values,
+        periods=periods,
+        windows=[51] * len(periods),
+        iterate=2,
+        stl_kwargs={
+            "robust": False,
+            "inner_iter": 2,
+            "outer_iter": 0,
+            "seasonal_jump": 6,
+            "trend_jump": 5,
+            "low_pass_jump": 3,
+        },
+    ).fit()

@@ -12,6 +12,7 @@ import pandas as pd
 from service.core.applicability import NotApplicable, plain_float, plain_floats
 from service.core.data.frequency import frequency_name
 from service.core.diagnostics.autocorrelation import BAND_NOTE, Correlogram
+from service.core.diagnostics.cycles import MATTERS, SeveralPeriods
 from service.core.diagnostics.differencing import SEASONAL_RULE, DifferencingOrders
 from service.core.diagnostics.differencing import label as difference_label
 from service.core.diagnostics.random_walk import RULE as RANDOM_WALK_RULE
@@ -253,6 +254,27 @@ def _seasonality(s: Seasonality | NotApplicable) -> dict[str, Any]:
         "seasonal_period_from_frequency": s.seasonal_period,
         "candidate_periods": s.candidates,
         "components": s.components,
+        "several_periods": None if s.several is None else plain(_several(s.several)),
+    }
+
+
+def _several(s: SeveralPeriods) -> dict[str, Any]:
+    return {
+        "decomposition": "mstl",
+        "strength_rule": "max(0, 1 - Var(R)/Var(S_i + R)) per seasonal component S_i",
+        "threshold": MATTERS,
+        "periods": [
+            {
+                "period": p.period,
+                "decomposed_as": p.decomposed_as,
+                "strength": p.strength,
+                "matters": p.matters,
+            }
+            for p in s.periods
+        ],
+        "periods_that_matter": list(s.periods_that_matter),
+        "trend_strength": s.trend_strength,
+        "left_out": list(s.left_out),
     }
 
 
@@ -416,6 +438,8 @@ def forecast_answer(answer: ForecastAnswer) -> dict[str, Any]:
     body: dict[str, Any] = {"name": answer.name, **forecast_body(answer.forecast)}
     body["model"] = model_body(answer.description)
     body["selection"] = None if answer.selection is None else selection_body(answer.selection)
+    bound = answer.lower_bound
+    body["lower_bound"] = None if bound is None else plain(dataclasses.asdict(bound))
     body["warnings"] = warnings_body(list(answer.warnings))
     if answer.fitted is not None:
         body["fitted"] = floats(answer.fitted)

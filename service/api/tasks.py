@@ -65,6 +65,10 @@ def forecast_task(
         metric=body.metric,
         transform=wire_transform,
         regressors=regressors,
+        seasonal_periods=periods,
+        interpolated=series.interpolated,
+        lower_bound=body.lower_bound,
+        lower_bound_given="lower_bound" in body.model_fields_set,
     )
     return task, series
 
@@ -77,7 +81,11 @@ def diagnostics_task(body: DiagnosticsRequest, settings: Settings) -> jobs.Diagn
         wire = wire.model_copy(update={"missing": "keep"})
     series = parsed_series(wire, settings)
     return jobs.DiagnosticsTask(
-        series.y, series.seasonal_period, body.max_lag, "components" in body.include
+        series.y,
+        series.seasonal_period,
+        body.max_lag,
+        "components" in body.include,
+        series.seasonal_periods,
     )
 
 
@@ -101,4 +109,5 @@ def backtest_task(body: BacktestRequest, settings: Settings) -> jobs.BacktestTas
         step=body.step,
         coverage=check_coverage(body.coverage),
         metric=body.metric,
+        seasonal_periods=series.seasonal_periods,
     )

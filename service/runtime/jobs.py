@@ -21,6 +21,13 @@ from service.core.evaluation.records import BacktestReport
 from service.core.models import registry as _registry  # noqa: F401
 from service.core.models.base import Description, Fitted, FitWarning, Forecast, Specification
 from service.core.models.library_warnings import captured
+from service.core.models.lower_bound import (
+    BoundReport,
+    apply_lower_bound,
+    families_in,
+    resolve_lower_bound,
+    with_family_floor,
+)
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
 from service.core.models.transforms import TransformedSpec, transform_from_value
@@ -44,6 +51,10 @@ class ForecastTask:
     metric: str = "mase"
     transform: dict[str, Any] = field(default_factory=dict)
     regressors: RegressorSet | None = None
+    seasonal_periods: tuple[float, ...] = ()
+    interpolated: int = 0
+    lower_bound: float | None = None
+    lower_bound_given: bool = False
 
 
 def benchmark_for(y: pd.Series, seasonal_period: int) -> Specification:
@@ -110,6 +121,7 @@ class ForecastAnswer:
     warnings: tuple[FitWarning, ...]
     fitted: np.ndarray | None = None
     residuals: np.ndarray | None = None
+    lower_bound: BoundReport | None = None
 
 
 def _answer(
@@ -119,14 +131,31 @@ def _answer(
     found: list[FitWarning],
     selection: Selection | None = None,
 ) -> ForecastAnswer:
-    """The answer, with the in-sample values the request asked for."""
+    """The answer, with the in-sample values the request asked for, censored at the lower
+    bound (core.models.lower_bound), and a warning when gaps were filled before fitting."""
     include = task.include
+    description = fitted.describe()
+    values = task.y.to_numpy(dtype=float)
+    bound = resolve_lower_bound(values, task.lower_bound, task.lower_bound_given)
+    bound = with_family_floor(bound, families_in(description.specification))
+    result, report = apply_lower_bound(result, bound)
+    notes = list(found)
+    if task.interpolated:
+        notes.append(
+            FitWarning(
+                "interpolated",
+                f"{task.interpolated} missing value(s) were filled by linear interpolation "
+                "(missing policy 'interpolate') before fitting; the forecast treats them as "
+                "observed",
+            )
+        )
     return ForecastAnswer(
         name=task.name,
         forecast=result,
-        description=fitted.describe(),
+        description=description,
         selection=selection,
-        warnings=tuple(found),
+        warnings=tuple(notes),
+        lower_bound=report,
         fitted=np.asarray(fitted.fitted_values(), dtype=float) if "fitted" in include else None,
         residuals=np.asarray(fitted.residuals(), dtype=float) if "residuals" in include else None,
     )
@@ -185,7 +214,7 @@ def _auto_forecast(task: ForecastTask) -> ForecastAnswer:
     """Model "auto": diagnostics, candidates, backtest, refit, calibrated forecast."""
     found: list[FitWarning] = []
     with captured(found):
-        report = diagnose(task.y, task.seasonal_period)
+        report = diagnose(task.y, task.seasonal_period, periods=task.seasonal_periods)
         candidates = task.candidates
         if transform_from_value(task.transform or None).kind != "none":
             if candidates is None:
@@ -213,6 +242,7 @@ class DiagnosticsTask:
     seasonal_period: int
     max_lag: int | None = None
     include_components: bool = False
+    seasonal_periods: tuple[float, ...] = ()
 
 
 def diagnostics(task: DiagnosticsTask) -> tuple[Diagnostics, list[FitWarning]]:
@@ -224,6 +254,7 @@ def diagnostics(task: DiagnosticsTask) -> tuple[Diagnostics, list[FitWarning]]:
             task.seasonal_period,
             max_lag=task.max_lag,
             include_components=task.include_components,
+            periods=task.seasonal_periods,
         )
     return report, found
 
@@ -240,6 +271,7 @@ class BacktestTask:
     step: int
     coverage: tuple[float, ...]
     metric: str
+    seasonal_periods: tuple[float, ...] = ()
 
 
 def backtests(task: BacktestTask) -> tuple[BacktestReport, list[FitWarning]]:
@@ -254,7 +286,7 @@ def backtests(task: BacktestTask) -> tuple[BacktestReport, list[FitWarning]]:
     }
     with captured(found):
         if task.specifications is None:
-            diagnostics = diagnose(task.y, task.seasonal_period)
+            diagnostics = diagnose(task.y, task.seasonal_period, periods=task.seasonal_periods)
             report = backtest_auto(task.y, task.seasonal_period, diagnostics=diagnostics, **options)
         else:
             report = run_backtest(task.y, task.specifications, task.seasonal_period, **options)

@@ -253,6 +253,27 @@ class ComponentsOut(Out):
     remainder: list[float | None]
 
 
+class PeriodStrengthOut(Out):
+    """One seasonal period's MSTL strength."""
+
+    period: float
+    decomposed_as: int = Field(description="The whole number of steps MSTL used.")
+    strength: float | None
+    matters: bool = Field(description="Strength at or above the threshold.")
+
+
+class SeveralPeriodsOut(Out):
+    """Several seasonal periods decomposed at once by MSTL."""
+
+    decomposition: Literal["mstl"]
+    strength_rule: str
+    threshold: float
+    periods: list[PeriodStrengthOut]
+    periods_that_matter: list[float]
+    trend_strength: float | None
+    left_out: list[str] = Field(description="Periods without two full cycles of history.")
+
+
 class SeasonalityOut(Out):
     """Strengths of trend and season, candidate periods and (on request) the components."""
 
@@ -265,6 +286,9 @@ class SeasonalityOut(Out):
     seasonal_period_from_frequency: int
     candidate_periods: list[CandidatePeriodOut]
     components: ComponentsOut | None
+    several_periods: SeveralPeriodsOut | None = Field(
+        None, description="With two or more seasonal periods: MSTL strength of each."
+    )
 
 
 class OutlierOut(Out):

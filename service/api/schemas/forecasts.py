@@ -101,6 +101,12 @@ class ForecastRequest(Strict):
     metric: Literal["mase", "smape", "rmse"] = Field(
         "mase", description="With `auto`: the backtest score that ranks candidates."
     )
+    lower_bound: float | None = Field(
+        None,
+        description="Points and interval limits below this are raised to it (censoring). "
+        "Left out: 0 when every observed value is >= 0, none otherwise; null: no bound "
+        "(Croston's method keeps its floor at 0 either way).",
+    )
 
 
 class IntervalOut(BaseModel):
@@ -138,6 +144,15 @@ class ModelOut(Out):
     fit_seconds: float
 
 
+class LowerBoundOut(BaseModel):
+    """The lower bound applied to the forecast."""
+
+    value: float
+    method: str = Field(description="How the bound is applied.")
+    reason: str = Field(description="Why this bound: the history, the request or the family.")
+    raised: int = Field(description="How many points and interval limits were raised to it.")
+
+
 class ForecastResponse(BaseModel):
     """Point forecasts with intervals, the model used, how it was chosen, and provenance."""
 
@@ -152,6 +167,9 @@ class ForecastResponse(BaseModel):
     intervals: list[IntervalOut]
     model: ModelOut
     selection: SelectionOut | None = None
+    lower_bound: LowerBoundOut | None = Field(
+        None, description="The bound the forecast respects and how; null when there is none."
+    )
     warnings: list[WarningOut] = []
     fitted: list[float | None] | None = None
     residuals: list[float | None] | None = None

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 from service.core.applicability import NotApplicable
+from service.core.data.periods import period_text
+from service.core.diagnostics.cycles import SeveralPeriods
 from service.core.diagnostics.differencing import DifferencingOrders
 from service.core.diagnostics.random_walk import RandomWalkVerdict
 from service.core.diagnostics.seasonality import Outliers
@@ -91,7 +93,7 @@ def _seasonality(d: Diagnostics) -> list[str]:
     s = d.seasonality
     if not isinstance(s, Seasonality):
         return []
-    out = []
+    out = _cycles(s.several) if s.several is not None else []
     if isinstance(s.seasonal_strength, float):
         if s.seasonal_strength > STRONG:
             out.append(
@@ -110,5 +112,27 @@ def _seasonality(d: Diagnostics) -> list[str]:
         out.append(
             f"The data suggest a period of {found[0]}, not the {s.seasonal_period} implied by "
             "the frequency."
+        )
+    return out
+
+
+def _cycles(several: SeveralPeriods) -> list[str]:
+    """Which cycles drive the series, by their MSTL strengths."""
+    strong = [p for p in several.periods if p.matters]
+    weak = [p for p in several.periods if not p.matters]
+    out = []
+    if strong:
+        names = " and ".join(period_text(p.period) for p in strong)
+        values = " and ".join(f"{p.strength:.2f}" for p in strong)
+        out.append(
+            f"The cycles of {names} steps drive the series (MSTL strengths {values}): "
+            "use a model for several seasonal periods."
+            if len(strong) > 1
+            else f"The cycle of {names} steps drives the series (MSTL strength {values})."
+        )
+    for p in weak:
+        out.append(
+            f"The cycle of {period_text(p.period)} steps is weak (MSTL strength "
+            f"{p.strength:.2f}); a model can leave it out."
         )
     return out

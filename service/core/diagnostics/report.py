@@ -23,6 +23,7 @@ from service.core.diagnostics.autocorrelation import (
     sample_acf,
     white_noise_band,
 )
+from service.core.diagnostics.cycles import several_periods
 from service.core.diagnostics.differencing import (
     DifferencingOrders,
     difference,
@@ -52,8 +53,12 @@ def diagnose(
     seasonal_period: int,
     max_lag: int | None = None,
     include_components: bool = False,
+    periods: tuple[float, ...] = (),
 ) -> Diagnostics:
-    """All diagnostics of a regular series; missing values are interpolated for the tests."""
+    """All diagnostics of a regular series; missing values are interpolated for the tests.
+
+    With two or more ``periods`` (the series' seasonal periods) an MSTL decomposition gives
+    each period's strength, and outliers are flagged on its remainder."""
     check_series(y)
     check_positive_int(seasonal_period, "series.seasonal_period")
     if max_lag is not None:
@@ -79,6 +84,13 @@ def diagnose(
     orders = story_orders(x, seasonal_period, decomposition, notes, decision, walk)
     stationary_form = difference(x, orders.regular, orders.seasonal, seasonal_period)
     acf = _correlogram(x, seasonal_period, max_lag, notes)
+    several = several_periods(x, tuple(periods)) if len(periods) > 1 else None
+    seasonality = _seasonality(x, decomposition, filled.index, include_components)
+    if isinstance(seasonality, Seasonality) and several is not None:
+        seasonality = replace(seasonality, several=several)
+    remainder = decomposition.remainder if isinstance(decomposition, Decomposition) else None
+    if several is not None:
+        remainder = several.remainder
     report = Diagnostics(
         summary=summary,
         stationarity=tests,
@@ -87,11 +99,11 @@ def diagnose(
         differenced_autocorrelation=_correlogram(stationary_form, seasonal_period, max_lag, ()),
         differenced_series=label(orders.regular, orders.seasonal, seasonal_period),
         random_walk=walk,
-        seasonality=_seasonality(x, decomposition, filled.index, include_components),
+        seasonality=seasonality,
         outliers=(
-            outliers(decomposition.remainder, x, filled.observed, filled.index)
-            if isinstance(decomposition, Decomposition)
-            else decomposition
+            outliers(remainder, x, filled.observed, filled.index)
+            if remainder is not None
+            else NotApplicable("no decomposition: no remainder to screen")
         ),
         notes=notes,
     )

@@ -163,7 +163,7 @@ def candidate_periods(detrended: np.ndarray, acf: np.ndarray, band: float) -> li
         peaks, _ = signal.find_peaks(power)
         peaks = peaks[(frequencies[peaks] > 0.0) & (frequencies[peaks] * n >= 2.0)]
         for i in peaks[np.argsort(power[peaks])[::-1]]:
-            period = round(1.0 / frequencies[i])
+            period = fundamental(1.0 / frequencies[i], n)
             share = float(power[i]) / total
             if share < PERIODOGRAM_SHARE:
                 break
@@ -189,6 +189,21 @@ def candidate_periods(detrended: np.ndarray, acf: np.ndarray, band: float) -> li
             )
         )
     return out
+
+
+def fundamental(period: float, n: int) -> int:
+    """The whole-number cycle a periodogram peak belongs to: a peak at a non-integer period is
+    a harmonic (a weekly shape in daily data peaks at 7, 3.5 and 2.33 days), so the smallest
+    multiple k·period (k <= 6) that lands on a whole number within the frequency resolution is
+    its cycle; 3.5 is reported as 7, not rounded to 3 or 4."""
+    for k in range(1, 7):
+        multiple = k * period
+        # One periodogram bin is 1/n in frequency: k·period²/n in period at this multiple.
+        if abs(multiple - round(multiple)) <= max(0.05, k * period * period / n):
+            if round(multiple) <= n // 2:
+                return round(multiple)
+            break
+    return round(period)
 
 
 def _first_acf_peak(acf: np.ndarray, band: float) -> int | None:

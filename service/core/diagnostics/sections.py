@@ -9,6 +9,7 @@ import pandas as pd
 
 from service.core.applicability import NotApplicable
 from service.core.diagnostics.autocorrelation import Correlogram
+from service.core.diagnostics.cycles import MATTERS, SeveralPeriods
 from service.core.diagnostics.differencing import DifferencingOrders
 from service.core.diagnostics.random_walk import RandomWalkVerdict
 from service.core.diagnostics.seasonality import CandidatePeriod, Outliers
@@ -43,6 +44,17 @@ class Seasonality:
     candidates: tuple[CandidatePeriod, ...]
     settings: dict[str, Any]
     components: dict[str, Any] | None
+    several: SeveralPeriods | None = None
+    """With two or more seasonal periods: their MSTL strengths (``diagnostics.cycles``)."""
+
+    @property
+    def periods_that_matter(self) -> tuple[float, ...]:
+        """The periods strong enough to model: by MSTL strength with several periods, else the
+        one period when its STL strength reaches the same threshold."""
+        if self.several is not None:
+            return self.several.periods_that_matter
+        strong = isinstance(self.seasonal_strength, float) and self.seasonal_strength >= MATTERS
+        return (float(self.seasonal_period),) if strong else ()
 
 
 @dataclass(frozen=True)

@@ -44,15 +44,6 @@ class BoundReport:
     reason: str
     raised: int
 
-    def to_dict(self) -> dict[str, Any]:
-        """The wire form."""
-        return {
-            "value": self.value,
-            "method": self.method,
-            "reason": self.reason,
-            "raised": self.raised,
-        }
-
 
 def resolve_lower_bound(values: np.ndarray, requested: float | None, given: bool) -> LowerBound:
     """The request's bound when ``given`` (None turns it off), else 0 for non-negative history."""
@@ -92,3 +83,18 @@ def apply_lower_bound(forecast: Forecast, bound: LowerBound) -> tuple[Forecast, 
     point = np.maximum(forecast.point, b)
     report = BoundReport(b, METHOD, bound.reason, raised)
     return Forecast(forecast.index, point, tuple(intervals)), report
+
+
+def families_in(specification: Any) -> set[str]:
+    """Every family named in a specification's JSON form, nested ones included."""
+    found: set[str] = set()
+    stack = [specification]
+    while stack:
+        item = stack.pop()
+        if isinstance(item, dict):
+            if isinstance(item.get("family"), str):
+                found.add(item["family"])
+            stack.extend(item.values())
+        elif isinstance(item, list):
+            stack.extend(item)
+    return found

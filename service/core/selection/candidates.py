@@ -79,6 +79,8 @@ class SeriesProfile:
     random_walk_reason: str = ""
     seasonal_random_walk: bool = False
     """The diagnostics found y_t = y_{t-m} + noise: seasonal naive is the forecast to beat."""
+    seasonal_periods: tuple[float, ...] = ()
+    """The periods that matter by the diagnostics' strengths (several_period_rules)."""
 
     @property
     def intermittent(self) -> bool:
@@ -178,6 +180,7 @@ def profile_series(
         random_walk=random_walk,
         random_walk_reason=why,
         seasonal_random_walk=seasonal and seasonal_walk,
+        seasonal_periods=_periods_that_matter(diagnostics),
     )
 
 
@@ -257,6 +260,36 @@ def candidate_rules(
         out.append(({"family": "stl", "base": {"family": "ets"}}, "long season: STL + ETS"))
         if thorough:
             out.append(({"family": "stl", "base": {"family": "arima"}}, "long season: STL + ARIMA"))
+    out += several_period_rules(profile)
+    return out
+
+
+# --- several or long periods (issue 14): MSTL and harmonic regression -------------------
+
+
+def _periods_that_matter(diagnostics: Any) -> tuple[float, ...]:
+    found = _lookup(diagnostics, ("seasonality", "periods_that_matter"))
+    return tuple(float(p) for p in found) if isinstance(found, tuple) else ()
+
+
+def several_period_rules(profile: SeriesProfile) -> list[tuple[dict[str, Any], str]]:
+    """MSTL + ETS and harmonic regression when the periods that matter are several or one is
+    above 24 (intermittent series never get here); harmonic regression on the log scale too
+    for positive series, where weekly and yearly cycles that multiply become additive."""
+    periods = [p for p in profile.seasonal_periods if profile.observations >= 2 * p + 1]
+    if not (len(periods) > 1 or any(p > LONG_PERIOD for p in periods)):
+        return []
+    text = ", ".join(f"{p:g}" for p in periods)
+    out: list[tuple[dict[str, Any], str]] = [
+        ({"family": "mstl", "periods": periods}, f"periods {text}: MSTL then ETS"),
+        (
+            {"family": "harmonic_regression", "periods": periods},
+            f"periods {text}: harmonic regression with ARIMA errors",
+        ),
+    ]
+    if profile.positive:
+        logged = {"family": "harmonic_regression", "periods": periods, TRANSFORM_KEY: "log"}
+        out.append((logged, f"periods {text}: harmonic regression on the log scale (positive)"))
     return out
 
 

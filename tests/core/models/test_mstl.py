@@ -7,32 +7,18 @@ import pickle
 
 import numpy as np
 import pytest
-from statsmodels.tsa.seasonal import MSTL
 
 from service.core.errors import FitError
 from service.core.models.ets.family import EtsSpec
-from service.core.models.mstl import SEASONAL_WINDOW, MstlSpec, mstl_parts
+from service.core.models.mstl import MstlSpec, mstl_parts
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
-from tests.multi_period_series import hourly_counts, hourly_rate
+from tests.multi_period_series import direct_mstl, hourly_counts, hourly_rate
 
 
 def test_components_are_statsmodels_mstl_with_the_stated_settings() -> None:
     y = hourly_counts(weeks=4).to_numpy()
     ours = mstl_parts(y, (24, 168))
-    direct = MSTL(
-        y,
-        periods=[24, 168],
-        windows=[SEASONAL_WINDOW, SEASONAL_WINDOW],
-        iterate=2,
-        stl_kwargs={
-            "robust": False,
-            "inner_iter": 2,
-            "outer_iter": 0,
-            "seasonal_jump": 6,
-            "trend_jump": 5,
-            "low_pass_jump": 3,
-        },
-    ).fit()
+    direct = direct_mstl(y, [24, 168])
     np.testing.assert_allclose(ours.seasonal, np.asarray(direct.seasonal), rtol=1e-12)
     np.testing.assert_allclose(ours.remainder, np.asarray(direct.resid), rtol=1e-12, atol=1e-9)
 

@@ -1,0 +1,60 @@
+"""Several seasonal periods in the diagnostics: MSTL strengths against statsmodels directly,
+candidate periods from the data, outliers on the MSTL remainder, findings naming the cycles."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from service.core.diagnostics.report import diagnose
+from service.core.diagnostics.seasonality import fundamental
+from service.core.selection.candidates import candidate_rules, profile_series
+from tests.multi_period_series import daily_calls, direct_mstl, hourly_counts
+
+
+def test_strengths_equal_those_of_statsmodels_mstl_called_directly() -> None:
+    y = hourly_counts(weeks=6)
+    report = diagnose(y, 24, periods=(24.0, 168.0))
+    several = report.seasonality.several  # type: ignore[union-attr]
+    assert several is not None
+    direct = direct_mstl(y.to_numpy(), [24, 168])
+    seasonal = np.asarray(direct.seasonal)
+    resid = np.asarray(direct.resid)
+    for i, found in enumerate(several.periods):
+        expected = max(0.0, 1 - np.var(resid) / np.var(seasonal[:, i] + resid))
+        assert found.strength == pytest.approx(expected, rel=1e-10)
+    assert several.periods_that_matter == (24.0, 168.0)
+
+
+def test_a_daily_series_with_a_weekly_cycle_reports_seven_not_three() -> None:
+    report = diagnose(daily_calls(years=1), 7)
+    periods = [c.period for c in report.seasonality.candidates]  # type: ignore[union-attr]
+    assert periods[0] == 7
+    assert 3 not in periods and 4 not in periods
+    assert fundamental(3.5, 365) == 7 and fundamental(7 / 3, 365) == 7
+    assert fundamental(24.0, 1000) == 24
+
+
+def test_clean_two_cycle_data_yields_few_outliers_on_the_mstl_remainder() -> None:
+    y = hourly_counts(weeks=12)
+    two = diagnose(y, 24, periods=(24.0, 168.0)).outliers
+    one = diagnose(y, 24).outliers
+    # Poisson noise only: a handful per thousand, and fewer than the one-cycle remainder
+    # (where the weekend swing looks like outliers).
+    assert two.count < 0.02 * len(y)  # type: ignore[union-attr]
+    assert two.count < one.count  # type: ignore[union-attr]
+
+
+def test_findings_name_the_cycles_that_drive_the_series() -> None:
+    report = diagnose(daily_calls(years=3), 7, periods=(7.0, 365.25))
+    assert any("cycles of 7 and 365.25 steps drive the series" in f for f in report.findings)
+
+
+def test_auto_considers_mstl_and_harmonic_regression_for_several_periods() -> None:
+    y = hourly_counts(weeks=6)
+    report = diagnose(y, 24, periods=(24.0, 168.0))
+    profile = profile_series(y, 24, report)
+    families = [data["family"] for data, _ in candidate_rules(profile)]
+    assert "mstl" in families and families.count("harmonic_regression") == 2
+    single = profile_series(y, 24, diagnose(y, 24))
+    assert "mstl" not in [data["family"] for data, _ in candidate_rules(single)]
