@@ -97,6 +97,10 @@ OVERDIFFERENCED_Z = 2.575829
 -2.576/√n marks a stable season differenced once too often (the pure case gives -0.5)."""
 
 
+STRICT_OVERDIFFERENCED_Z = 1.644854
+"""One-sided 5 % normal quantile, used when the level already looks stationary."""
+
+
 @dataclass(frozen=True)
 class SeasonalCheck:
     """Ljung-Box on the seasonal differences, their lag-m autocorrelation and their drift."""
@@ -112,6 +116,13 @@ class SeasonalCheck:
         lag-m autocorrelation is not the negative one of a stable season differenced away."""
         floor = -OVERDIFFERENCED_Z / math.sqrt(self.observations)
         return self.white.p_value >= LEVEL_WHITE and self.seasonal_lag_autocorrelation >= floor
+
+    @property
+    def clearly_not_overdifferenced(self) -> bool:
+        """The lag-m autocorrelation is not negative at 5 % one-sided: the stronger evidence
+        asked of a series whose level the unit-root procedure found stationary."""
+        floor = -STRICT_OVERDIFFERENCED_Z / math.sqrt(self.observations)
+        return self.seasonal_lag_autocorrelation >= floor
 
 
 def seasonal_check(x: np.ndarray, seasonal_period: int) -> SeasonalCheck | None:
@@ -176,7 +187,12 @@ def _judged(
         evidence["seasonal_lag_autocorrelation"] = plain_float(
             seasonal.seasonal_lag_autocorrelation
         )
-        if seasonal.uncorrelated and not decision.uncorrelated_differences:
+        stationary_level = not decision.unit_root
+        if (
+            seasonal.uncorrelated
+            and not decision.uncorrelated_differences
+            and (not stationary_level or seasonal.clearly_not_overdifferenced)
+        ):
             return _seasonal(seasonal, seasonal_period, evidence)
     n = steps.size
     band = white_noise_band(n)

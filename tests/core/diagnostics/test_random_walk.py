@@ -130,3 +130,10 @@ def test_straight_line_is_not_a_random_walk() -> None:
     v = random_walk(np.arange(100.0) * 2.0 + 1.0, 1)
     assert isinstance(v, RandomWalkVerdict)
     assert not v.is_random_walk and v.grade == "not_random_walk"
+
+
+def test_a_stationary_series_is_not_mistaken_for_a_seasonal_random_walk() -> None:
+    # Its seasonal differences are over-differenced (lag-m autocorrelation near -0.5); with
+    # the level already stationary, a chance -0.27 no longer passes for white noise.
+    verdicts = _verdicts(lambda rng, n: _ar1(rng, n, 0.5), n=100, period=7)
+    assert not any(v.is_seasonal_random_walk or v.is_random_walk for v in verdicts)
