@@ -39,6 +39,19 @@ class FilledSeries:
         )
 
 
+def interpolate_gaps(values: np.ndarray) -> np.ndarray:
+    """Missing values linearly interpolated by position; at the ends the nearest observed
+    value is held (the one gap filling every fit and test shares). All missing: unchanged."""
+    values = np.asarray(values, dtype=float)
+    known = np.isfinite(values)
+    if known.all() or not known.any():
+        return values
+    steps = np.arange(values.size)
+    out = values.copy()
+    out[~known] = np.interp(steps[~known], steps[known], values[known])
+    return out
+
+
 def fill_gaps(y: pd.Series) -> FilledSeries:
     """Trim missing values at the ends and interpolate the interior ones linearly by position."""
     values = y.to_numpy(dtype=float, na_value=np.nan)
@@ -50,8 +63,7 @@ def fill_gaps(y: pd.Series) -> FilledSeries:
     first, last = int(positions[0]), int(positions[-1])
     kept = values[first : last + 1]
     observed = finite[first : last + 1]
-    steps = np.arange(kept.size)
-    filled = np.interp(steps, steps[observed], kept[observed])
+    filled = interpolate_gaps(kept)
     return FilledSeries(index[first : last + 1], filled, observed, values.size - kept.size)
 
 

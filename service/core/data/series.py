@@ -18,6 +18,7 @@ from typing import Any, Literal
 import numpy as np
 import pandas as pd
 
+from service.core.data.filling import interpolate_gaps
 from service.core.data.frequency import frequency_name, parse_frequency, step_of
 from service.core.data.grid import regular_grid
 from service.core.data.periods import check_periods, default_periods, whole_period
@@ -439,7 +440,7 @@ def _nominal_seconds(offset: pd.DateOffset) -> float:
 
 
 def _interpolate(y: pd.Series) -> pd.Series:
-    filled = y.interpolate(method="linear", limit_direction="both")
+    filled = pd.Series(interpolate_gaps(y.to_numpy(dtype=float)), index=y.index, name=y.name)
     filled.index.freq = y.index.freq
     return filled
 

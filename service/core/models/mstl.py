@@ -24,6 +24,7 @@ import numpy as np
 import pandas as pd
 from statsmodels.tsa.seasonal import MSTL
 
+from service.core.data.filling import interpolate_gaps
 from service.core.data.periods import check_periods
 from service.core.diagnostics.seasonality import stl_settings
 from service.core.errors import FitError, SeriesError
@@ -115,7 +116,7 @@ def mstl_components(
     values = y.to_numpy(dtype=float)
     notes: list[FitWarning] = []
     if not np.all(np.isfinite(values)):
-        values = pd.Series(values).interpolate(limit_direction="both").to_numpy()
+        values = interpolate_gaps(values)
         notes.append(FitWarning("interpolated", "missing values interpolated for MSTL"))
     seasonal = mstl_parts(values, periods).seasonal
     names = [f"period {m}" for m in periods]

@@ -18,6 +18,7 @@ import pandas as pd
 from statsmodels.tsa.seasonal import STL
 
 from service.core.checks import check_positive_int
+from service.core.data.filling import interpolate_gaps
 from service.core.errors import FitError, SeriesError, WindvaneError
 from service.core.models.base import Description, FitWarning, Forecast, as_dict, parameter
 from service.core.models.ets.family import EtsSpec
@@ -152,7 +153,7 @@ def _seasonal_component(y: pd.Series, m: int, robust: bool) -> tuple[pd.Series, 
     values = y.to_numpy(dtype=float)
     notes: list[FitWarning] = []
     if not np.all(np.isfinite(values)):
-        values = pd.Series(values).interpolate(limit_direction="both").to_numpy()
+        values = interpolate_gaps(values)
         notes.append(FitWarning("interpolated", "missing values interpolated for STL"))
     with captured(notes):
         parts = STL(values, period=m, robust=robust).fit()

@@ -15,6 +15,7 @@ import numpy as np
 from scipy import optimize, signal
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 
+from service.core.data.filling import interpolate_gaps
 from service.core.models.arima.likelihood import DENSE_LIMIT, ArmaShape, dense_fit
 from service.core.models.arima.orders import (
     ArimaOrders,
@@ -43,7 +44,7 @@ def css_estimate(
     ``score_from`` on (at least p + mP), so that orders of one search are scored on the same
     observations; the log-likelihood is scaled to all differenced observations.
     """
-    w = _filled(w)
+    w = interpolate_gaps(w)
     n = w.size
     k_exog = 0 if xd is None else xd.shape[1]
     beta0 = np.zeros(k_exog)
@@ -280,15 +281,3 @@ def _white_noise(w: np.ndarray, orders: ArimaOrders, n: int) -> Estimate:
     loglik = -0.5 * n * (math.log(2 * math.pi * sigma2) + 1.0)
     aic, aicc, bic = information_criteria(loglik, 1, n)
     return Estimate(orders, (), (), sigma2, loglik, n, aic, aicc, bic, "exact", True, 0)
-
-
-def _filled(w: np.ndarray) -> np.ndarray:
-    """Missing differences linearly interpolated: CSS needs a complete series (screening only)."""
-    w = np.asarray(w, dtype=float)
-    bad = ~np.isfinite(w)
-    if not bad.any():
-        return w
-    idx = np.arange(w.size)
-    out = w.copy()
-    out[bad] = np.interp(idx[bad], idx[~bad], w[~bad])
-    return out

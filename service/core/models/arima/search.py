@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 
 from service.core.applicability import NotApplicable
+from service.core.data.filling import interpolate_gaps
 from service.core.diagnostics.differencing import DifferencingOrders, orders_from
 from service.core.diagnostics.seasonality import decompose
 from service.core.errors import FitError, SpecificationError
@@ -59,7 +60,7 @@ class OrderSearchResult:
 
 def choose_differencing(y: np.ndarray, seasonal_period: int) -> DifferencingChoice:
     """D by seasonal strength (> 0.64), then d by successive KPSS tests (core.differencing)."""
-    x = _interpolated(np.asarray(y, dtype=float))
+    x = interpolate_gaps(np.asarray(y, dtype=float))
     m = seasonal_period
     decomposition = decompose(x, m) if m > 1 else NotApplicable("no seasonal period")
     return _choice(orders_from(x, m, decomposition))
@@ -67,7 +68,7 @@ def choose_differencing(y: np.ndarray, seasonal_period: int) -> DifferencingChoi
 
 def _regular_only(x: np.ndarray) -> DifferencingChoice:
     """d alone, by the same KPSS rule, on a series already seasonally differenced."""
-    return _choice(orders_from(_interpolated(x), 1, NotApplicable("seasonal order given")))
+    return _choice(orders_from(interpolate_gaps(x), 1, NotApplicable("seasonal order given")))
 
 
 def _choice(found: DifferencingOrders) -> DifferencingChoice:
@@ -258,14 +259,4 @@ def _starting_points(
         if seasonal_order is not None:
             P, Q = seasonal_order[0], seasonal_order[2]
         out.append((p, q, P, Q))
-    return out
-
-
-def _interpolated(x: np.ndarray) -> np.ndarray:
-    bad = ~np.isfinite(x)
-    if not bad.any():
-        return x
-    idx = np.arange(x.size)
-    out = x.copy()
-    out[bad] = np.interp(idx[bad], idx[~bad], x[~bad])
     return out
