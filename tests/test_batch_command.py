@@ -118,7 +118,7 @@ def cluster() -> Iterator[str]:
         n_workers=2,
         threads_per_worker=1,
         processes=True,
-        dashboard_address=None,
+        dashboard_address=":0",  # a free port: 8787 may be taken on a shared machine
         host="127.0.0.1",
     ) as local:
         yield str(local.scheduler_address)

@@ -120,7 +120,7 @@ def cluster(workers: int) -> Iterator[str]:
     from distributed import LocalCluster
 
     with LocalCluster(
-        n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None
+        n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=":0"
     ) as local:
         yield str(local.scheduler_address)
 
