@@ -6,6 +6,7 @@ from typing import Any
 
 from service.api import render
 from service.api.caching import provenance_fields
+from service.api.diagnostics_body import diagnostics_body
 from service.api.schemas.backtests import BacktestRequest
 from service.api.schemas.diagnostics import DiagnosticsRequest
 from service.api.schemas.forecasts import ForecastRequest
@@ -32,7 +33,7 @@ def answer(path: str, raw: str, settings: Settings | None = None) -> dict[str, A
         diagnostics = diagnostics_task(DiagnosticsRequest.model_validate_json(raw), settings)
         report, found = jobs.diagnostics(diagnostics)
         return {
-            **render.diagnostics_body(report, found),
+            **diagnostics_body(report, found),
             "data_hash": data_key(diagnostics.y).label,
         }
     if path == "/v1/backtests":

@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 from statsmodels.tsa.stattools import adfuller
 
-from service.api.render import diagnostics_body
+from service.api.diagnostics_body import diagnostics_body
 from service.core.diagnostics.report import diagnose
 from service.core.diagnostics.stationarity import ADF_LAG_CAP, HypothesisTest, adf_test, kpss_test
 

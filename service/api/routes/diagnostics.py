@@ -7,8 +7,9 @@ from typing import Annotated, Any
 
 from fastapi import APIRouter, Body
 
-from service.api import examples, render
+from service.api import examples
 from service.api.dependencies import PoolDep, SettingsDep
+from service.api.diagnostics_body import diagnostics_body
 from service.api.problems import PROBLEM_RESPONSES
 from service.api.schemas.diagnostics import DiagnosticsRequest, DiagnosticsResponse
 from service.api.tasks import diagnostics_task
@@ -35,4 +36,4 @@ async def create_diagnostics(
     series is a random walk, each verdict with its evidence and a plain-sentence finding."""
     task = await asyncio.to_thread(diagnostics_task, body, settings)  # parsing can be slow
     report, found = await pool.run(jobs.diagnostics, task)
-    return {**render.diagnostics_body(report, found), "data_hash": data_key(task.y).label}
+    return {**diagnostics_body(report, found), "data_hash": data_key(task.y).label}

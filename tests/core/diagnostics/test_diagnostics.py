@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from service.api.render import diagnostics_body
+from service.api.diagnostics_body import diagnostics_body
 from service.core.diagnostics.report import diagnose
 from service.core.errors import RequestError, SeriesError
 

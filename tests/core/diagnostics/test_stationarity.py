@@ -9,7 +9,7 @@ import pytest
 from statsmodels.tools.sm_exceptions import InterpolationWarning
 from statsmodels.tsa.stattools import adfuller, kpss
 
-from service.api.render import hypothesis_test
+from service.api.diagnostics_body import hypothesis_test
 from service.core.applicability import NotApplicable
 from service.core.diagnostics.stationarity import (
     ADF_LAG_CAP,
