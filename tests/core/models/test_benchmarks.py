@@ -1,8 +1,9 @@
-"""The four benchmark families through the model contract, on demo-scenario series."""
+"""What is particular to the four benchmark families, on demo-scenario series: missing
+values, the refilter's parameters, their descriptions. What every family shares (two fits
+agree, the input is untouched, index and nested bounds, pickling) is the contract suite's
+(test_contract.py), which runs these families too."""
 
 from __future__ import annotations
-
-import pickle
 
 import numpy as np
 import pandas as pd
@@ -23,59 +24,12 @@ SPECS = {
     "seasonal_naive": SeasonalNaiveSpec(),
     "drift": DriftSpec(),
 }
-SERIES = ("orders", "energy", "requests", "parcels")
 
 
 def demo_series(name: str) -> ParsedSeries:
     """One demo series, parsed as the service would."""
     s = demo.SCENARIO[name]()
     return parse_series(s.values, start=s.start, frequency=s.frequency)
-
-
-@pytest.mark.parametrize("family", list(SPECS))
-@pytest.mark.parametrize("name", SERIES)
-def test_forecast_index_continues_at_the_frequency(family: str, name: str) -> None:
-    parsed = demo_series(name)
-    y, m = parsed.y, parsed.seasonal_period
-    forecast = SPECS[family].fit(y, m).forecast(7, [0.8, 0.95])
-    expected = pd.date_range(y.index[-1] + y.index.freq, periods=7, freq=y.index.freq)
-    assert forecast.index.equals(expected)
-    assert forecast.index.freq == y.index.freq
-
-
-@pytest.mark.parametrize("family", list(SPECS))
-@pytest.mark.parametrize("name", SERIES)
-def test_bounds_are_ordered_and_nested(family: str, name: str) -> None:
-    parsed = demo_series(name)
-    y, m = parsed.y, parsed.seasonal_period
-    forecast = SPECS[family].fit(y, m).forecast(10, [0.95, 0.8])
-    by_level = {i.coverage: i for i in forecast.intervals}
-    for interval in forecast.intervals:
-        assert np.all(interval.lower <= forecast.point)
-        assert np.all(forecast.point <= interval.upper)
-    assert np.all(by_level[0.95].lower < by_level[0.8].lower)
-    assert np.all(by_level[0.8].upper < by_level[0.95].upper)
-
-
-@pytest.mark.parametrize("family", list(SPECS))
-def test_two_fits_agree_and_the_input_is_untouched(family: str) -> None:
-    parsed = demo_series("energy")
-    y, m = parsed.y, parsed.seasonal_period
-    before = y.copy()
-    first = SPECS[family].fit(y, m).forecast(6, [0.9])
-    second = SPECS[family].fit(y, m).forecast(6, [0.9])
-    np.testing.assert_array_equal(first.point, second.point)
-    np.testing.assert_array_equal(first.intervals[0].upper, second.intervals[0].upper)
-    pd.testing.assert_series_equal(y, before)
-
-
-@pytest.mark.parametrize("family", list(SPECS))
-def test_a_fitted_benchmark_survives_pickling(family: str) -> None:
-    parsed = demo_series("orders")
-    y, m = parsed.y, parsed.seasonal_period
-    fitted = SPECS[family].fit(y, m)
-    again = pickle.loads(pickle.dumps(fitted))
-    np.testing.assert_array_equal(again.forecast(5, [0.8]).point, fitted.forecast(5, [0.8]).point)
 
 
 @pytest.mark.parametrize("family", list(SPECS))
