@@ -37,9 +37,11 @@ def parsed_series(
 
 
 def specification(
-    data: dict[str, object], field: str, periods: tuple[float, ...] = ()
+    data: dict[str, object] | str, field: str, periods: tuple[float, ...] = ()
 ) -> Specification:
-    """A specification from its JSON form (fields already under ``field``), with the series'
-    seasonal periods filled in where a family's ``periods`` is left null."""
-    spec: Specification = with_series_periods(specification_from_dict(data, field), periods)
+    """A specification from its JSON form (fields already under ``field``), or from a family
+    name alone (its defaults), with the series' seasonal periods filled in where a family's
+    ``periods`` is left null."""
+    form = {"family": data} if isinstance(data, str) else data
+    spec: Specification = with_series_periods(specification_from_dict(form, field), periods)
     return spec

@@ -107,7 +107,7 @@ def field_path(loc: Sequence[Any]) -> str:
         if isinstance(p, int):
             out += f"[{p}]"
         elif str(p).startswith(("function-", "literal[", "dict[", "list[", "tagged-union")) or (
-            str(p)[:1].isupper()
+            str(p)[:1].isupper() or p in ("str", "constrained-str")
         ):
             continue  # pydantic's union-branch labels (types, model names) mean nothing to a caller
         else:
@@ -131,10 +131,10 @@ def validation_problem(
     found = [(field_path(e.get("loc", ())), e) for e in errors]
     seen: dict[str, str] = {}
     for path, e in found:
-        if e.get("type") == "literal_error" and any(
+        if e.get("type") in ("literal_error", "string_type") and any(
             other is not e and _within(p, path) for p, other in found
         ):
-            continue  # `"auto" | {...}`: the object branch's error says more than "not 'auto'"
+            continue  # `"auto" | {...}`: the object branch's error says more than "not a name"
         if prefix:
             path = prefix if path == "body" else f"{prefix}.{path}"
         seen.setdefault(path, _message(e))

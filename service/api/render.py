@@ -169,6 +169,7 @@ def _calibration(c: Calibration) -> dict[str, Any]:
             {
                 "coverage": item.coverage,
                 "observed_coverage": item.empirical,
+                "calibrated_coverage": item.calibrated,
                 "factor": item.factor,
                 "scores": item.scores,
             }
@@ -217,6 +218,7 @@ def forecast_answer(answer: ForecastAnswer) -> dict[str, Any]:
     """POST /v1/forecasts without the provenance; FitError when a bound overflows."""
     body: dict[str, Any] = {"name": answer.name, **forecast_body(answer.forecast)}
     body["model"] = model_body(answer.description)
+    body["summary"] = answer.summary
     body["selection"] = None if answer.selection is None else selection_body(answer.selection)
     bound = answer.lower_bound
     body["lower_bound"] = None if bound is None else plain(dataclasses.asdict(bound))

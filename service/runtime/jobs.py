@@ -34,6 +34,7 @@ from service.core.models.transforms import TransformedSpec, transform_from_value
 from service.core.selection.auto import backtest_auto, select
 from service.core.selection.candidates import candidates_for, profile_series
 from service.core.selection.outcome import Selection
+from service.core.selection.summary import auto_summary, explicit_summary
 
 
 @dataclass(frozen=True)
@@ -119,6 +120,8 @@ class ForecastAnswer:
     description: Description
     selection: Selection | None
     warnings: tuple[FitWarning, ...]
+    summary: str = ""
+    """One plain sentence on the forecast (core.selection.summary)."""
     fitted: np.ndarray | None = None
     residuals: np.ndarray | None = None
     lower_bound: BoundReport | None = None
@@ -149,6 +152,10 @@ def _answer(
                 "observed",
             )
         )
+    if selection is None:
+        summary = explicit_summary(description.label)
+    else:
+        summary = auto_summary(selection)
     return ForecastAnswer(
         name=task.name,
         forecast=result,
@@ -156,6 +163,7 @@ def _answer(
         selection=selection,
         warnings=tuple(notes),
         lower_bound=report,
+        summary=summary,
         fitted=np.asarray(fitted.fitted_values(), dtype=float) if "fitted" in include else None,
         residuals=np.asarray(fitted.residuals(), dtype=float) if "residuals" in include else None,
     )

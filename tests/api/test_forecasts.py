@@ -359,3 +359,29 @@ def test_library_versions_in_provenance_follow_the_setting(
     assert set(shown["library_versions"]) >= {"numpy", "pandas", "scipy", "statsmodels"}
     assert hidden["library_versions"] == {}
     assert hidden["data_hash"] == shown["data_hash"]
+
+
+def test_a_family_name_alone_stands_for_its_defaults(client: TestClient) -> None:
+    body = demo_request("orders", None, horizon=4)
+    body["model"] = "naive"
+    answer = client.post(PATH, json=body)
+    assert answer.status_code == 200, answer.text
+    assert answer.json()["model"]["label"] == "naive"
+    assert "fitted as requested" in answer.json()["summary"]
+    body["model"] = "nonsense"
+    refused = client.post(PATH, json=body)
+    assert refused.status_code == 422
+    assert refused.json()["errors"][0]["field"].startswith("model")
+
+
+def test_six_points_are_answered_by_auto_with_a_summary(client: TestClient) -> None:
+    body = {
+        "series": {"start": "2024-01-01", "frequency": "MS", "values": [3, 5, 4, 6, 8, 7]},
+        "horizon": 3,
+    }
+    answer = client.post(PATH, json=body)
+    assert answer.status_code == 200, answer.text
+    data = answer.json()
+    assert data["selection"]["chosen"] == data["model"]["label"]
+    assert "simple_families_only" in [w["code"] for w in data["warnings"]]
+    assert data["summary"].endswith(".")

@@ -8,6 +8,7 @@ from pydantic import Field
 
 from service.api.schemas.common import (
     CoverageLevels,
+    FamilyName,
     OriginCount,
     OriginStep,
     Out,
@@ -24,7 +25,9 @@ class BacktestRequest(Strict):
     """A series, the specifications to compare (or `auto`) and the rolling origins."""
 
     series: SeriesIn
-    models: Literal["auto"] | Annotated[list[SpecificationObject], Field(max_length=20)] = Field(
+    models: (
+        Literal["auto"] | Annotated[list[FamilyName | SpecificationObject], Field(max_length=20)]
+    ) = Field(
         "auto",
         description="Specifications to evaluate, or `auto` for the candidates "
         "automatic selection would try.",

@@ -124,6 +124,17 @@ def _shallow(value: Any) -> Any:
     return value
 
 
+# A family's bare name stands for its default specification: "naive" is {"family": "naive"}.
+FamilyName = Annotated[
+    str,
+    Field(
+        min_length=1,
+        max_length=40,
+        description='A family name alone, shorthand for its defaults: "naive" is '
+        '{"family": "naive"}.',
+    ),
+]
+
 # A specification (possibly a combination of combinations): its nesting is bounded before
 # anything walks it recursively (300 levels crashed serialisation).
 SpecificationObject = Annotated[

@@ -8,6 +8,7 @@ from pydantic import BaseModel, Discriminator, Field, Tag, model_validator
 
 from service.api.schemas.common import (
     CoverageLevels,
+    FamilyName,
     LjungBoxOut,
     Out,
     PositiveWhole,
@@ -89,10 +90,12 @@ class ForecastRequest(Strict):
         max_length=10,
         description="Central prediction-interval levels, each strictly between 0 and 1.",
     )
-    model: Literal["auto"] | SpecificationObject = Field(
-        "auto", description='`auto`, or a specification such as {"family": "naive"}.'
+    model: FamilyName | SpecificationObject = Field(
+        "auto",
+        description='`auto`, a specification such as {"family": "naive"}, or a family name '
+        'alone ("naive") for its defaults.',
     )
-    candidates: list[SpecificationObject] | None = Field(
+    candidates: list[FamilyName | SpecificationObject] | None = Field(
         None, max_length=20, description="With `auto`: the specifications to choose among."
     )
     transform: TransformField = "none"
@@ -166,6 +169,10 @@ class ForecastResponse(BaseModel):
     point: list[float]
     intervals: list[IntervalOut]
     model: ModelOut
+    summary: str = Field(
+        description="One plain sentence: is the series forecastable, by how much the forecast "
+        "beat the naive one in backtests, and how often its intervals covered past values."
+    )
     selection: SelectionOut | None = None
     lower_bound: LowerBoundOut | None = Field(
         None, description="The bound the forecast respects and how; null when there is none."

@@ -21,7 +21,11 @@ class LevelCalibrationOut(Out):
 
     coverage: float
     observed_coverage: float | None = Field(
-        description="Share of actual values inside the interval in the backtest."
+        description="Share of actual values inside the model's own interval in the backtest."
+    )
+    calibrated_coverage: float | None = Field(
+        description="Share of actual values inside the interval as delivered (after the "
+        "factor) in the same backtest."
     )
     factor: float | None
     scores: int

@@ -51,6 +51,12 @@ class Task:
     scale_period: int = 1
     fit_end: int | None = None
     """Estimate on the points before this position (default: the first origin); never later."""
+    settle: str = ""
+    """Also fit the model a forecast would deliver, on the whole series, with the structure
+    (orders, components, adjustment) scored here: "whole" lets the family's search settle it
+    on the whole series and re-estimates it before the first origin (only the parameters are
+    kept from peeking); "early" settles it before the first origin, as scored, and
+    re-estimates it on the whole series (for a costly search: ARIMA's). "" fits nothing more."""
 
 
 def evaluate(task: Task) -> ModelBacktest:
@@ -63,9 +69,13 @@ def evaluate(task: Task) -> ModelBacktest:
     try:
         with captured(caught):
             start = time.perf_counter()
+            delivered = spec.fit(y, task.seasonal_period) if task.settle == "whole" else None
+            scored = spec if delivered is None else settled_specification(delivered)
             # Never estimate on points after the first origin: that would peek.
             fit_end = min(task.fit_end or plan.origins[0], plan.origins[0])
-            fitted = spec.fit(y.iloc[:fit_end], task.seasonal_period)
+            fitted = scored.fit(y.iloc[:fit_end], task.seasonal_period)
+            if task.settle == "early":
+                delivered = settled_specification(fitted).fit(y, task.seasonal_period)
             fit_seconds = time.perf_counter() - start
             label = fitted.describe().label
             start = time.perf_counter()
@@ -87,14 +97,17 @@ def evaluate(task: Task) -> ModelBacktest:
         fit_seconds,
         refilter_seconds,
         tuple(unique_warnings(caught)),
-        resolved=resolved_specification(fitted),
-        refit=_refit_specification(fitted),
+        resolved=resolved_specification(delivered if delivered is not None else fitted),
+        delivered=delivered,
     )
 
 
-def _refit_specification(fitted: Any) -> Any:
-    narrowed = getattr(fitted, "refit_specification", None)
-    return narrowed() if callable(narrowed) else None
+def settled_specification(fitted: Any) -> Any:
+    """The structure a fitted model settled on, to be estimated on another history: a family
+    may offer a cheaper form (ETS: its exact estimates as the optimiser's start)."""
+    settled = getattr(fitted, "settled_specification", None)
+    found = settled() if callable(settled) else None
+    return found if found is not None else resolved_specification(fitted)
 
 
 def resolved_specification(fitted: Any) -> Any:
@@ -104,9 +117,18 @@ def resolved_specification(fitted: Any) -> Any:
     chosen = getattr(fitted, "chosen", None)
     if chosen is not None:
         return chosen
+    structure = getattr(fitted, "settled_structure", None)
+    if callable(structure):
+        # A family whose fit decides what its specification leaves open (Theta's seasonal
+        # adjustment) states what it decided.
+        return structure()
     members = getattr(fitted, "members", None)
     spec = fitted.specification
     is_instance = dataclasses.is_dataclass(spec) and not isinstance(spec, type)
+    base = getattr(fitted, "base", None)
+    if base is not None and is_instance and hasattr(spec, "base") and spec.family == "stl":
+        # STL settles its base model's structure on the adjusted series.
+        return dataclasses.replace(spec, base=resolved_specification(base))
     inner = getattr(fitted, "inner", None)
     if inner is not None and is_instance and spec.family == "transformed":
         # A model on a transformed scale resolves its base (the transform stays as asked).
@@ -167,6 +189,7 @@ def run(
     map_fn: MapFn[Task, ModelBacktest] | None = None,
     periods: Sequence[int] | None = None,
     fit_end: int | None = None,
+    settle: Callable[[Specification], str] | None = None,
 ) -> list[ModelBacktest]:
     """Evaluate every specification over one plan, through ``map_fn`` when given.
 
@@ -176,7 +199,7 @@ def run(
     levels = check_coverage(coverage)
     fit_periods = list(periods) if periods is not None else [seasonal_period] * len(specifications)
     tasks = [
-        Task(s, y, p, plan, levels, seasonal_period, fit_end)
+        Task(s, y, p, plan, levels, seasonal_period, fit_end, settle(s) if settle else "")
         for s, p in zip(specifications, fit_periods, strict=True)
     ]
     mapper = map_fn or map

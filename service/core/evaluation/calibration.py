@@ -38,6 +38,8 @@ class LevelCalibration:
     empirical: float
     factor: float
     scores: int
+    calibrated: float = float("nan")
+    """Coverage in the same backtests of the intervals as delivered (after the factor)."""
 
 
 @dataclass(frozen=True)
@@ -92,6 +94,7 @@ def conformal_quantile(scores: np.ndarray, level: float) -> float:
 def calibrate(backtest: ModelBacktest, minimum_origins: int = MINIMUM_ORIGINS) -> Calibration:
     """Measured coverage per level, and conformal factors when there are enough origins."""
     origins = len(backtest.forecasts)
+    enough = backtest.ok and origins >= minimum_origins
     levels = []
     for level in backtest.levels:
         s = nonconformity(backtest, level)
@@ -99,8 +102,9 @@ def calibrate(backtest: ModelBacktest, minimum_origins: int = MINIMUM_ORIGINS) -
         factor = conformal_quantile(s, level)
         if np.isfinite(factor):
             factor = float(np.clip(factor, *FACTOR_BOUNDS))
-        levels.append(LevelCalibration(level, empirical, factor, int(s.size)))
-    enough = backtest.ok and origins >= minimum_origins
+        applied = factor if enough and np.isfinite(factor) else 1.0
+        calibrated = float(np.mean(s <= applied)) if s.size else float("nan")
+        levels.append(LevelCalibration(level, empirical, factor, int(s.size), calibrated))
     if enough:
         reason = (
             f"split-conformal factors from {origins} rolling origins, applied to widen "

@@ -13,6 +13,8 @@ from service.core.checks import check_positive_int
 from service.core.errors import FieldProblem, RequestError
 
 CALIBRATION_ORIGINS = 8
+SIMPLE_TRAINING = 4
+"""Fewest points before the first origin when only the simple families are compared."""
 MINIMUM_ORIGINS = 5
 """Fewer calibration origins than this and the model's own intervals are returned unadjusted."""
 
@@ -55,13 +57,16 @@ def selection_training(seasonal_period: int) -> int:
     return minimum_training(seasonal_period)
 
 
-def selection_plan(n: int, horizon: int, origins: int, seasonal_period: int) -> Plan | None:
+def selection_plan(
+    n: int, horizon: int, origins: int, seasonal_period: int, training: int | None = None
+) -> Plan | None:
     """The widest honest plan: step = horizon if it fits, else smaller, then fewer origins.
 
     Seasonal candidates get three full seasons before the first origin: with two, AICc
     rejects every seasonal model for its initial states and the ranking says nothing.
+    ``training`` overrides that minimum (short series).
     """
-    need = selection_training(seasonal_period)
+    need = training if training is not None else selection_training(seasonal_period)
     for k in range(origins, 0, -1):
         for step in range(horizon, 0, -1):
             first = n - horizon - step * (k - 1)
@@ -72,17 +77,16 @@ def selection_plan(n: int, horizon: int, origins: int, seasonal_period: int) -> 
     return None
 
 
-def feasible_plan(n: int, horizon: int, origins: int, period: int) -> tuple[Plan, bool]:
-    """The selection plan at the requested horizon, else at the longest horizon that fits."""
+def feasible_plan(
+    n: int, horizon: int, origins: int, period: int, training: int | None = None
+) -> tuple[Plan, bool] | None:
+    """The selection plan at the requested horizon, else at the longest horizon that fits
+    (True beside it when shortened); None when not even one step fits."""
     for h in range(horizon, 0, -1):
-        plan = selection_plan(n, h, origins, period)
+        plan = selection_plan(n, h, origins, period, training)
         if plan is not None:
             return plan, h < horizon
-    raise RequestError(
-        f"{n} points are too few to compare models; at least "
-        f"{selection_training(period) + 1} are needed",
-        field="series.values",
-    )
+    return None
 
 
 def calibration_plan(

@@ -65,10 +65,10 @@ class ModelBacktest:
     warnings: tuple[FitWarning, ...] = ()
     failure: str | None = None
     resolved: Any = None
-    """The complete specification the family's own search settled on (for refits)."""
-    refit: Any = None
-    """A cheaper specification for the refit on the full series, where the family offers one
-    (ETS: the same search, its winner's exact fit started from this fit's estimates)."""
+    """The complete specification the family's own search settled on (the structure scored)."""
+    delivered: Any = None
+    """With ``Task.settle``: the model fitted on the whole series with the structure scored
+    here, the one a forecast delivers."""
 
     @property
     def ok(self) -> bool:

@@ -36,7 +36,8 @@ def model_label(
     ``period``: the seasonal period(s) of seasonal naive, Theta's adjustment, STL, MSTL and
     harmonic regression (``harmonics``: the Fourier pairs per period);
     ``components``: ETS error, trend, damped, season; ``orders``, ``seasonal_orders`` and
-    ``constant`` ("none", "mean" or "drift"): ARIMA; ``variant``: Croston's; ``base``: the
+    ``constant`` ("none", "mean" or "drift"): ARIMA; ``variant``: Croston's, or Theta's
+    adjustment ("additive" when not by ratios); ``base``: the
     label of the model inside STL, MSTL or a transform (the errors' label for harmonic
     regression); ``members``, ``weighted``: a combination's
     size and whether it was given weights; ``power``: the Box-Cox exponent of the
@@ -59,7 +60,10 @@ def model_label(
                 text += "x({},{},{}){}".format(*seasonal_orders, period_text(seasonal[0]))
             return text if constant == "none" else f"{text}, constant: {constant}"
         case "theta":
-            return f"theta, seasonally adjusted ({_periods(seasonal)})" if seasonal else "theta"
+            if not seasonal:
+                return "theta"
+            how = ", additive" if variant == "additive" else ""
+            return f"theta, seasonally adjusted ({_periods(seasonal)}{how})"
         case "stl":
             return f"STL ({_periods(seasonal or periods)}) then {base}"
         case "mstl":

@@ -24,6 +24,9 @@ from service.core.models.intervals import Interval, normal_intervals
 from service.core.models.labels import model_label
 from service.core.models.simple import ljung_box_summary, timed
 
+MULTIPLICATIVE = "multiplicative"
+ADDITIVE = "additive"
+
 
 @dataclass(frozen=True)
 class ThetaSpec:
@@ -34,14 +37,15 @@ class ThetaSpec:
         "Simple exponential smoothing with half the linear-trend slope as drift (Theta method)."
     )
     constraints: ClassVar[tuple[str, ...]] = (
-        "Seasonal adjustment (auto) applies when the period > 1, the data are positive, there "
+        "Seasonal adjustment (auto) applies when the period > 1, there "
         "are two full seasons and the lag-m autocorrelation passes a 90% test.",
         "Intervals use the IMA(1,1) variance σ²[1 + (h−1)α²] on the adjusted scale.",
     )
 
     seasonal_adjustment: str = param(
         "auto",
-        "Classical multiplicative seasonal adjustment: auto (tested), always, or never.",
+        "Classical seasonal adjustment (multiplicative; additive when a value is <= 0): "
+        "auto (tested), always, or never.",
         kind="choice",
         allowed=("auto", "always", "never"),
     )
@@ -51,35 +55,39 @@ class ThetaSpec:
         start = timed()
         values = _checked(y)
         notes: list[FitWarning] = []
-        indices = self._seasonal_indices(values, seasonal_period, notes)
-        adjusted = values / _cycle(indices, 0, values.size)
+        indices, kind = self._seasonal_indices(values, seasonal_period, notes)
+        adjusted = deseasoned(values, indices, kind, 0)
         slope = ols_slope(adjusted)
         alpha = ses_alpha(adjusted)
-        return ThetaFitted(self, y, seasonal_period, alpha, slope, indices, timed() - start, notes)
+        seconds = timed() - start
+        return ThetaFitted(self, y, seasonal_period, alpha, slope, indices, seconds, notes, kind)
 
     def _seasonal_indices(
         self, values: np.ndarray, period: int, notes: list[FitWarning]
-    ) -> tuple[float, ...]:
+    ) -> tuple[tuple[float, ...], str]:
+        """Seasonal indices and their kind: multiplicative for positive data, additive when
+        a value is zero or negative (a ratio to the trend means nothing there)."""
         if self.seasonal_adjustment == "never" or period < 2:
-            return (1.0,)
-        usable = values.size >= 2 * period and bool(np.all(values > 0))
+            return (1.0,), MULTIPLICATIVE
+        enough = values.size >= 2 * period
+        kind = MULTIPLICATIVE if bool(np.all(values > 0)) else ADDITIVE
         if self.seasonal_adjustment == "always":
-            if not usable:
+            if not enough:
                 raise FitError(
-                    "seasonal adjustment needs positive data and two full seasons",
+                    "seasonal adjustment needs two full seasons",
                     field="model.seasonal_adjustment",
                 )
-            return multiplicative_indices(values, period)
-        if usable and seasonal_lag_stands_out(values, period):
-            return multiplicative_indices(values, period)
-        if not usable:
+            return seasonal_indices(values, period, kind), kind
+        if enough and seasonal_lag_stands_out(values, period):
+            return seasonal_indices(values, period, kind), kind
+        if not enough:
             notes.append(
                 FitWarning(
                     "no_seasonal_adjustment",
-                    "theta: seasonal adjustment skipped (needs positive data and two seasons)",
+                    "theta: seasonal adjustment skipped (needs two full seasons)",
                 )
             )
-        return (1.0,)
+        return (1.0,), MULTIPLICATIVE
 
 
 def _checked(y: pd.Series) -> np.ndarray:
@@ -131,12 +139,41 @@ def theta_path(level: float, alpha: float, slope: float, n: int, horizon: int) -
     return level + 0.5 * slope * (h - 1.0 + 1.0 / alpha - (1.0 - alpha) ** n / alpha)
 
 
+def seasonal_indices(values: np.ndarray, period: int, kind: str) -> tuple[float, ...]:
+    """Classical decomposition: centred moving-average ratios (multiplicative, mean 1) or
+    differences (additive, mean 0), averaged per season."""
+    if kind == MULTIPLICATIVE:
+        return multiplicative_indices(values, period)
+    weights = _centred_weights(period)
+    trend = np.convolve(values, weights, mode="valid")
+    offset = (weights.size - 1) // 2
+    differences = values[offset : offset + trend.size] - trend
+    positions = (np.arange(trend.size) + offset) % period
+    means = np.array([differences[positions == s].mean() for s in range(period)])
+    return tuple(float(v) for v in means - means.mean())
+
+
+def _centred_weights(period: int) -> np.ndarray:
+    if period % 2 == 0:
+        return np.r_[0.5, np.ones(period - 1), 0.5] / period
+    return np.ones(period) / period
+
+
+def deseasoned(values: np.ndarray, indices: tuple[float, ...], kind: str, start: int) -> np.ndarray:
+    """``values`` (whose first point has season position ``start``) without the season."""
+    season = _cycle(indices, start, values.size)
+    return values - season if kind == ADDITIVE else values / season
+
+
+def reseasoned(values: np.ndarray, indices: tuple[float, ...], kind: str, start: int) -> np.ndarray:
+    """The season put back on adjusted ``values`` starting at season position ``start``."""
+    season = _cycle(indices, start, values.size)
+    return values + season if kind == ADDITIVE else values * season
+
+
 def multiplicative_indices(values: np.ndarray, period: int) -> tuple[float, ...]:
     """Classical decomposition: centred moving-average ratios, averaged per season, mean 1."""
-    if period % 2 == 0:
-        weights = np.r_[0.5, np.ones(period - 1), 0.5] / period
-    else:
-        weights = np.ones(period) / period
+    weights = _centred_weights(period)
     trend = np.convolve(values, weights, mode="valid")
     offset = (weights.size - 1) // 2
     ratios = values[offset : offset + trend.size] / trend
@@ -162,15 +199,24 @@ class ThetaFitted:
     seasonal_indices: tuple[float, ...]
     fit_seconds: float = 0.0
     warnings: list[FitWarning] = field(default_factory=list)
+    seasonal_kind: str = MULTIPLICATIVE
+    """How the indices apply: ratios (multiplicative) or differences (additive)."""
+
+    def settled_structure(self) -> ThetaSpec:
+        """Theta with the seasonal adjustment this fit decided on, fixed for another history."""
+        adjusted = len(self.seasonal_indices) > 1
+        return ThetaSpec("always" if adjusted else "never")
 
     @property
     def label(self) -> str:
-        """Theta, naming the seasonal period when indices were applied."""
-        return model_label("theta", period=max(len(self.seasonal_indices), 1))
+        """Theta, naming the seasonal period (and an additive adjustment) when indices were
+        applied."""
+        kind = "additive" if self.seasonal_kind == ADDITIVE else "classic"
+        return model_label("theta", period=max(len(self.seasonal_indices), 1), variant=kind)
 
     def _adjusted(self) -> np.ndarray:
         values = self.y.to_numpy(dtype=float)
-        return values / _cycle(self.seasonal_indices, 0, values.size)
+        return deseasoned(values, self.seasonal_indices, self.seasonal_kind, 0)
 
     def _fitted_adjusted(self) -> np.ndarray:
         """One-step in-sample theta forecasts on the adjusted scale (NaN for the first point)."""
@@ -188,23 +234,25 @@ class ThetaFitted:
         return float(np.sqrt(np.sum(e**2) / dof))
 
     def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast:
-        """Theta path times the seasonal indices; IMA(1,1) sd scaled the same way."""
+        """Theta path with the season put back; IMA(1,1) intervals on the adjusted scale,
+        reseasoned the same way."""
         x = self._adjusted()
         level = float(ses_levels(x, self.alpha)[-1])
         path = theta_path(level, self.alpha, self.slope, x.size, horizon)
         h = np.arange(1, horizon + 1, dtype=float)
         sd = self.sigma() * np.sqrt(1.0 + (h - 1.0) * self.alpha**2)
-        season = _cycle(self.seasonal_indices, x.size, horizon)
         adjusted = normal_intervals(path, sd, coverage)
-        intervals = tuple(
-            Interval(i.coverage, i.lower * season, i.upper * season) for i in adjusted
-        )
-        return Forecast(future_index(self.y.index, horizon), path * season, intervals)
+
+        def back(values: np.ndarray) -> np.ndarray:
+            return reseasoned(values, self.seasonal_indices, self.seasonal_kind, x.size)
+
+        intervals = tuple(Interval(i.coverage, back(i.lower), back(i.upper)) for i in adjusted)
+        return Forecast(future_index(self.y.index, horizon), back(path), intervals)
 
     def fitted_values(self) -> pd.Series:
         """One-step in-sample forecasts on the data scale."""
-        season = _cycle(self.seasonal_indices, 0, len(self.y))
-        return pd.Series(self._fitted_adjusted() * season, index=self.y.index, name="fitted")
+        fitted = reseasoned(self._fitted_adjusted(), self.seasonal_indices, self.seasonal_kind, 0)
+        return pd.Series(fitted, index=self.y.index, name="fitted")
 
     def residuals(self) -> pd.Series:
         """Observed minus one-step fitted."""

@@ -222,11 +222,11 @@ class TransformedFitted:
         """Observed minus back-transformed fit, on the original scale."""
         return residuals_from(self.y, self.fitted_values())
 
-    def refit_specification(self) -> TransformedSpec | None:
-        """The inner model's cheaper refit for a longer history, on the same scale; None when
+    def settled_specification(self) -> TransformedSpec | None:
+        """The inner model's settled form for another history, on the same scale; None when
         the inner model offers none."""
-        narrowed = getattr(self.inner, "refit_specification", None)
-        inner = narrowed() if callable(narrowed) else None
+        settled = getattr(self.inner, "settled_specification", None)
+        inner = settled() if callable(settled) else None
         return None if inner is None else TransformedSpec(inner, self.specification.transform)
 
     def refilter(self, y: pd.Series) -> TransformedFitted:

@@ -3,7 +3,10 @@
 Rules (stated for DEVELOPERS.md):
 - Within a family the family's own search decides (ETS by AICc over the taxonomy, ARIMA by
   the stepwise AICc search, Theta, STL + ETS for seasons longer than 24, Croston/SBA for
-  intermittent series), run on the data before the first origin only.
+  intermittent series). It runs on the whole series, and the structure it settles on is
+  what the backtest scores, re-estimated before the first origin (ARIMA: its orders are
+  settled before the first origin and re-estimated on the whole series; delivered.py). The
+  delivered forecast is the scored one: ``selection.chosen`` is the delivered model's label.
 - Across families: ``origins`` (default 3) rolling origins at the requested horizon, ``step``
   apart (``horizon`` when the series allows it, shrinking to 1, then fewer origins), with at
   least max(10, 3m) points before the first origin (10 when non-seasonal); when even one
@@ -16,17 +19,18 @@ Rules (stated for DEVELOPERS.md):
   the SES/Holt/damped average, ...) weighted by the inverse square of its backtest score, by
   default; a single model only with a 10 % lower score, a majority of origins and >= 5
   disjoint windows. Drift is only a benchmark.
-- Naive guard: when the series is judged a random walk and the chosen model's score is not at
-  least 5 % better than the naive forecast's (1 − score/score(naive) < 0.05), the naive
-  forecast is returned with ``no_skill_over_naive``.
+- Guards (guard.py): the naive (seasonal naive) forecast for a (seasonal) random walk without
+  5 % skill over it; the benchmark mixed in when the chosen forecast does not beat it;
+  ``no_skill_over_naive`` whenever the delivered skill is <= 0. Short series: short_series.py.
 - skill_over_naive = 1 − score(chosen) / score(benchmark), the benchmark being seasonal naive
   for a seasonal series and naive otherwise.
 - Calibration: the same estimates are re-filtered through up to 8 origins between the first
   selection origin and n − h; with >= 5 origins the intervals are widened by per-level
   split-conformal factors (calibration.py; never narrowed). Short series fall back to origins
   starting at half the series, fitted there, and to the model's own intervals below 5 origins.
-- The refit runs each member's own search again on the full series (the backtest scored the
-  search procedure, not the structure it settled on before the first origin).
+- The structure is settled on the whole series for ETS, Theta and STL: settled on the early
+  part alone it forecast worse. Scoring it there instead of scoring the search also saves the
+  second search the refit used to run.
 
 The figures behind these rules, and the rules tried and dropped, are in
 tests/benchmarks/RESULTS.md.
@@ -45,13 +49,8 @@ from service.core.checks import check_coverage, check_positive_int
 from service.core.errors import FitError, RequestError
 from service.core.evaluation import calibration as cal
 from service.core.evaluation.backtest import MapFn, Task, run
-from service.core.evaluation.origins import (
-    MINIMUM_ORIGINS,
-    calibration_plan,
-    dense_plan,
-    feasible_plan,
-)
-from service.core.evaluation.records import ModelBacktest, rank
+from service.core.evaluation.origins import MINIMUM_ORIGINS, Plan, calibration_plan, dense_plan
+from service.core.evaluation.records import ModelBacktest, RankEntry, rank
 from service.core.evaluation.scoring import check_metric
 from service.core.models.base import (
     FitWarning,
@@ -60,6 +59,7 @@ from service.core.models.base import (
     family_of,
 )
 from service.core.models.intervals import Interval
+from service.core.models.naive import NaiveSpec
 from service.core.selection.averaging import combine
 from service.core.selection.candidates import (
     CandidateSet,
@@ -67,12 +67,13 @@ from service.core.selection.candidates import (
     candidates_for,
     profile_series,
 )
-from service.core.selection.choice import choose, disjoint_windows
+from service.core.selection.choice import Choice, choose, disjoint_windows
+from service.core.selection.delivered import delivered, model_periods, settle
+from service.core.selection.guard import Guarded, benchmark_name, guard, no_skill_message
 from service.core.selection.outcome import AutoForecast, Selection
 from service.core.selection.plausibility import implausible
-from service.core.selection.refit import for_refit, model_periods, refit
+from service.core.selection.short_series import plan_for, simple_candidates
 from service.core.selection.skill import (
-    SKILL_MARGIN,
     benchmark_of,
     guarded_benchmark,
     skill,
@@ -98,7 +99,7 @@ def select(
     map_fn: MapFn[Task, ModelBacktest] | None = None,
     thorough: bool = False,
 ) -> AutoForecast:
-    """Model "auto": choose by backtest, refit on the full series, forecast, calibrate.
+    """Model "auto": fit and backtest the candidates, choose, guard, calibrate, forecast.
 
     ``thorough`` adds the (slow) stepwise ARIMA search to the candidates; ``map_fn`` fans
     the candidate evaluations out (the runtime passes its pool's map).
@@ -113,50 +114,12 @@ def select(
     y = recent_history(y, seasonal_period)
     profile = profile_series(y, seasonal_period, diagnostics)
     chosen_set = candidates_for(profile, thorough) if candidates is None else _given(candidates)
+    cuts = plan_for(len(y), horizon, origins, profile)
+    if cuts.simple_only and candidates is None:
+        chosen_set = simple_candidates()
+    profile = cuts.profile
     specs = with_benchmarks(list(chosen_set.specifications), profile)
-    clock.lap("profile")
-
-    plan, shortened = feasible_plan(len(y), horizon, origins, profile.benchmark_period)
-    periods = model_periods(specs, profile)
-    # One estimation per candidate serves both the ranking (the selection origins) and the
-    # calibration (denser origins between the first and the last): only re-filtering is added.
-    evaluation_plan = dense_plan(
-        plan,
-        calibration_plan(len(y), plan.horizon, profile.benchmark_period, first=plan.origins[0]),
-    )
-    dense = run(y, specs, profile.benchmark_period, evaluation_plan, levels, map_fn, periods)
-    dense = [_screened(r, y) for r in dense]
-    # The ranking pools the scaled errors over every origin of the dense plan: more origins
-    # for the same estimates, so one lucky window decides less.
-    ranked_origins = evaluation_plan.origins
-    results = [r.at({y.index[o] for o in ranked_origins}) for r in dense]
-    clock.lap("backtest")
-
-    ranking = rank(results, metric)
-    order = sorted(
-        (i for i, r in enumerate(results) if r.ok), key=lambda i: (results[i].score(metric), i)
-    )
-    if not order:
-        raise FitError("no candidate could be fitted to this series", field="series.values")
-    failures = tuple((r.label, r.failure or "") for r in results if not r.ok)
-    bench = results[specs.index(benchmark_of(specs, profile))]
-    bench_score = bench.score(metric)
-
-    picked = choose(
-        results,
-        specs,
-        order,
-        metric,
-        ranking,
-        candidates is None,
-        disjoint_windows(ranked_origins, plan.horizon),
-    )
-    rule, members, ranking = picked.rule, list(picked.members), picked.ranking
-    weights = picked.weights
-    chosen_bt = _merged([results[i] for i in members], weights)
-    skill_score = skill(chosen_bt.score(metric), bench_score)
-
-    extra: list[FitWarning] = []
+    extra = list(cuts.warnings)
     if len(y) < full_length:
         extra.append(
             FitWarning(
@@ -165,75 +128,172 @@ def select(
                 f"{full_length} points: older points cost time and add little to the forecast",
             )
         )
-    if shortened:
-        extra.append(
-            FitWarning(
-                "backtest_horizon_shortened",
-                f"the series is too short to backtest {horizon} steps ahead; candidates were "
-                f"compared {plan.horizon} steps ahead instead",
-            )
-        )
-    guard = guarded_benchmark(profile)
-    guard_family, message = guard or ("naive", "")
-    naive_index = next(
-        (i for i, s in enumerate(specs) if family_of(s) == guard_family),
-        next(i for i, s in enumerate(specs) if family_of(s) == "naive"),
+    clock.lap("profile")
+    if cuts.plan is None:
+        return _unscored(y, horizon, levels, metric, chosen_set, profile, extra, clock)
+    plan = cuts.plan
+
+    periods = model_periods(specs, profile)
+    # One estimation per candidate serves both the ranking (the selection origins) and the
+    # calibration (denser origins between the first and the last): only re-filtering is added.
+    evaluation_plan = dense_plan(
+        plan,
+        calibration_plan(len(y), plan.horizon, profile.benchmark_period, first=plan.origins[0]),
     )
-    over_naive = skill(chosen_bt.score(metric), results[naive_index].score(metric))
-    if guard and (over_naive is None or over_naive < SKILL_MARGIN):
-        rule, members, weights = "naive_guard", [naive_index], ()
-        chosen_bt = results[naive_index]
-        skill_score = skill(chosen_bt.score(metric), bench_score)
+    dense = run(
+        y, specs, profile.benchmark_period, evaluation_plan, levels, map_fn, periods, settle=settle
+    )
+    # The ranking pools the scaled errors over every origin of the dense plan: more origins
+    # for the same estimates, so one lucky window decides less.
+    results = [_screened(r, y) for r in dense]
+    clock.lap("backtest")
+
+    picked = _plausible_choice(
+        results, specs, metric, candidates is None, evaluation_plan, (y, horizon, levels)
+    )
+    bench_index = specs.index(benchmark_of(specs, profile))
+    walk = guarded_benchmark(profile)
+    walk_index = None
+    if walk is not None:
+        walk_index = next(
+            (i for i, s in enumerate(specs) if family_of(s) == walk[0]),
+            next(i for i, s in enumerate(specs) if family_of(s) == "naive"),
+        )
+    guarded = guard(
+        Guarded(picked.rule, picked.members, picked.weights),
+        _merged(results, picked.members, picked.weights).score(metric),
+        None if walk_index is None else (walk_index, results[walk_index].score(metric)),
+        (bench_index, results[bench_index].score(metric)),
+    )
+    members, weights = list(guarded.members), guarded.weights
+    delivered_bt = _merged(results, members, weights)
+    skill_score = skill(delivered_bt.score(metric), results[bench_index].score(metric))
+    if skill_score is not None and skill_score <= 0:
+        bench = benchmark_name(results[bench_index].label)
+        message = no_skill_message(guarded.rule, bench, skill_score, walk[1] if walk else "")
         extra.append(FitWarning("no_skill_over_naive", message))
 
-    # The structure each family's search chose before the first origin is kept; only its
-    # parameters are estimated again on the full series: no second search.
-    member_specs = [dense[i].resolved or specs[i] for i in members]
     calibration = _calibrate(
         y,
-        member_specs,
+        [results[i].resolved or specs[i] for i in members],
         weights,
         profile,
-        _merged([dense[i] for i in members], weights),
+        delivered_bt,
         plan.horizon,
         levels,
         map_fn,
     )
     clock.lap("calibration")
-
-    # The family's own search runs again on the full series: the backtest scored the search
-    # procedure, and a structure settled on the early part alone forecast worse.
-    fitted, dropped = refit(
-        y,
-        [for_refit(specs[i], dense[i]) for i in members],
-        weights,
-        profile,
-        (horizon, levels),
-    )
-    extra.extend(dropped)
+    fitted = delivered(y, [results[i] for i in members], weights, [periods[i] for i in members])
     clock.lap("refit")
     forecast = cal.apply(fitted.forecast(horizon, levels), calibration)
     clock.lap("forecast")
+    label = fitted.describe().label
 
     selection = Selection(
         metric=metric,
-        rule=rule,
-        chosen=chosen_bt.label,
-        ranking=ranking,
-        benchmark=bench.label,
+        rule=guarded.rule,
+        chosen=label,
+        ranking=_ranking(picked.ranking, delivered_bt, label, delivered_bt.score(metric)),
+        benchmark=results[bench_index].label,
         skill_over_naive=skill_score,
         horizon=plan.horizon,
         step=plan.step,
-        origins=tuple(y.index[o] for o in ranked_origins),
+        origins=tuple(y.index[o] for o in evaluation_plan.origins),
         calibration=calibration,
         candidates=chosen_set,
         profile=profile,
-        failures=failures,
+        failures=tuple((r.label, r.failure or "") for r in results if not r.ok),
         observations_used=len(y),
         candidate_seconds=tuple((r.label, r.fit_seconds, r.refilter_seconds) for r in dense),
     )
     warnings_out = tuple(extra) + tuple(fitted.warnings)
     return AutoForecast(fitted, forecast, selection, warnings_out, clock.laps)
+
+
+def _plausible_choice(
+    results: list[ModelBacktest],
+    specs: Sequence[Specification],
+    metric: str,
+    default_set: bool,
+    plan: Plan,
+    final: tuple[pd.Series, int, tuple[float, ...]],
+) -> Choice:
+    """The choice among the working candidates; a member whose forecast from the whole series
+    leaves the plausible band is marked failed (in ``results``) and the choice is made again
+    without it, so that what is scored is what is delivered."""
+    y, horizon, levels = final
+    windows = disjoint_windows(plan.origins, plan.horizon)
+    while True:
+        order = sorted(
+            (i for i, r in enumerate(results) if r.ok), key=lambda i: (results[i].score(metric), i)
+        )
+        if not order:
+            raise FitError("no candidate could be fitted to this series", field="series.values")
+        picked = choose(results, specs, order, metric, rank(results, metric), default_set, windows)
+        problems = {i: _final_problem(results[i], y, horizon, levels) for i in picked.members}
+        if not any(problems.values()):
+            return picked
+        for i, why in problems.items():
+            if why is not None:
+                results[i] = dataclasses.replace(results[i], failure=why)
+
+
+def _final_problem(
+    result: ModelBacktest, y: pd.Series, horizon: int, levels: tuple[float, ...]
+) -> str | None:
+    """Why a candidate's forecast from the whole series is implausible (None when fine)."""
+    if result.delivered is None:
+        return None
+    try:
+        final = result.delivered.forecast(horizon, levels)
+    except (ValueError, ArithmeticError, LookupError) as exc:
+        return f"its forecast from the whole series failed ({exc})"
+    why = implausible(final, y.to_numpy(dtype=float))
+    return None if why is None else f"{why} (from the whole series)"
+
+
+def _ranking(
+    ranking: tuple[RankEntry, ...], delivered_bt: ModelBacktest, label: str, score: float
+) -> tuple[RankEntry, ...]:
+    """The ranking with the delivered forecast under its delivered label (added when the
+    guard made a forecast the choice had not ranked)."""
+    kept = tuple(r for r in ranking if r.label not in (delivered_bt.label, label))
+    entry = RankEntry(label, delivered_bt.specification, score)
+    return tuple(sorted((*kept, entry), key=lambda r: r.score))
+
+
+def _unscored(
+    y: pd.Series,
+    horizon: int,
+    levels: tuple[float, ...],
+    metric: str,
+    candidates: CandidateSet,
+    profile: SeriesProfile,
+    notes: list[FitWarning],
+    clock: _Clock,
+) -> AutoForecast:
+    """A series too short for any backtest: the naive forecast, nothing scored."""
+    fitted = NaiveSpec().fit(y, 1)
+    forecast = fitted.forecast(horizon, levels)
+    clock.lap("forecast")
+    label = fitted.describe().label
+    selection = Selection(
+        metric=metric,
+        rule="too_short",
+        chosen=label,
+        ranking=(),
+        benchmark=label,
+        skill_over_naive=None,
+        horizon=0,
+        step=0,
+        origins=(),
+        calibration=None,
+        candidates=candidates,
+        profile=profile,
+        observations_used=len(y),
+    )
+    return AutoForecast(fitted, forecast, selection, (*notes, *fitted.warnings), clock.laps)
 
 
 class _Clock:
@@ -261,8 +321,12 @@ def _given(candidates: Sequence[Specification]) -> CandidateSet:
     return CandidateSet(tuple(candidates), tuple("requested" for _ in candidates))
 
 
-def _merged(members: Sequence[ModelBacktest], weights: Sequence[float] = ()) -> ModelBacktest:
-    return combine(members, weights=weights) if len(members) > 1 else members[0]
+def _merged(
+    results: Sequence[ModelBacktest], members: Sequence[int], weights: Sequence[float] = ()
+) -> ModelBacktest:
+    """The backtest of the members' weighted combination (a lone member's own)."""
+    chosen = [results[i] for i in members]
+    return combine(chosen, weights=weights) if len(chosen) > 1 else chosen[0]
 
 
 def _calibrate(
@@ -287,7 +351,7 @@ def _calibrate(
     )
     if not all(r.ok for r in results):
         return cal.calibrate(dense)
-    return cal.calibrate(_merged(results, weights))
+    return cal.calibrate(_merged(results, range(len(results)), weights))
 
 
 def _screened(result: ModelBacktest, y: pd.Series) -> ModelBacktest:

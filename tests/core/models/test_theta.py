@@ -74,11 +74,24 @@ def test_seasonality_test_and_indices() -> None:
     assert indices[3] > 1.1 and indices[9] < 0.9  # the peak and trough of the sine
 
 
-def test_always_adjust_needs_positive_data() -> None:
-    y = seasonal_series() - 500.0
+def test_always_adjust_needs_two_seasons() -> None:
     with pytest.raises(FitError) as err:
-        ThetaSpec(seasonal_adjustment="always").fit(y, 12)
+        ThetaSpec(seasonal_adjustment="always").fit(seasonal_series().iloc[:20], 12)
     assert err.value.problems[0].field == "model.seasonal_adjustment"
+
+
+def test_values_at_or_below_zero_keep_their_season_by_additive_adjustment() -> None:
+    # A series through zero: ratios to the trend mean nothing, differences still do.
+    positive = seasonal_series()
+    shifted = positive - float(positive.mean())
+    fitted = ThetaSpec().fit(shifted, 12)
+    assert fitted.seasonal_kind == "additive" and fitted.label.endswith("additive)")
+    assert_allclose(np.sum(fitted.seasonal_indices), 0.0, atol=1e-9)
+    fc = fitted.forecast(12, [0.8])
+    # The forecast keeps the season: its peak-to-trough swing is that of the history's cycle.
+    swing = np.ptp(fc.point)
+    assert swing > 0.5 * np.ptp(shifted.to_numpy()[-12:])
+    assert ThetaSpec("always").fit(shifted, 12).seasonal_kind == "additive"
 
 
 def test_refilter_keeps_alpha_and_slope() -> None:

@@ -50,31 +50,32 @@ def test_auto_leaves_out_a_member_whose_log_scale_bounds_explode() -> None:
     assert any("on the log scale" in label for label in failed)
 
 
-def test_refit_drops_an_implausible_member_and_renormalises(monkeypatch) -> None:  # type: ignore[no-untyped-def]
-    from service.core.models.drift import DriftSpec
-    from service.core.models.naive import NaiveSpec
-    from service.core.selection import refit as selection
-    from service.core.selection.candidates import profile_series
+def test_a_member_whose_final_forecast_explodes_is_left_out_and_the_choice_made_again(
+    monkeypatch,
+) -> None:  # type: ignore[no-untyped-def]
+    from service.core.selection import auto as selection
 
+    rng = np.random.default_rng(5)
     y = pd.Series(
-        np.arange(40.0) + np.sin(np.arange(40.0)),
-        index=pd.date_range("2020-01-01", periods=40, freq="MS"),
+        np.arange(60.0) + rng.normal(0, 2, 60),
+        index=pd.date_range("2020-01-01", periods=60, freq="MS"),
     )
+    whole = y.to_numpy(dtype=float)
+
     calls: list[int] = []
 
-    def second_explodes(fc: Forecast, history: np.ndarray) -> str | None:
+    def first_final_explodes(fc: Forecast, history: np.ndarray) -> str | None:
+        # Only the forecasts from the whole series (not the backtest's) are judged here.
+        if history.size != whole.size:
+            return None
         calls.append(1)
-        return "explodes" if len(calls) == 2 else None
+        return "explodes" if len(calls) == 1 else None
 
-    monkeypatch.setattr(selection, "implausible", second_explodes)
-    profile = profile_series(y, 1)
-    fitted, dropped = selection.refit(
-        y, [NaiveSpec(), DriftSpec()], (0.6, 0.4), profile, (3, (0.8,))
-    )
-    assert [w.code for w in dropped] == ["member_dropped"]
-    assert fitted.describe().label == "naive"
-    calls.clear()
-    both, none_dropped = selection.refit(
-        y, [NaiveSpec(), DriftSpec(), NaiveSpec()], (0.5, 0.25, 0.25), profile, (3, (0.8,))
-    )
-    assert none_dropped and both.describe().parameters["weight[0]"] == 2 / 3
+    monkeypatch.setattr(selection, "implausible", first_final_explodes)
+    out = selection.select(y, 1, 6, (0.8,))
+    failed = [label for label, why in out.selection.failures if "from the whole series" in why]
+    assert len(failed) == 1
+    described = out.fitted.describe()
+    members = described.residual_diagnostics.get("members", [described.label])
+    assert out.selection.chosen == described.label
+    assert failed[0] not in members

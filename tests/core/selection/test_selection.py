@@ -115,10 +115,12 @@ def test_selection_by_another_metric_among_given_candidates() -> None:
         select(seasonal_series(), 12, 6, metric="accuracy")
 
 
-def test_too_short_for_any_comparison_names_the_values() -> None:
-    with pytest.raises(RequestError) as info:
-        select(monthly(np.arange(10.0)), 1, 6)
-    assert info.value.problems[0].field == "series.values"
+def test_ten_points_are_forecast_by_the_simple_families_with_a_warning() -> None:
+    result = select(monthly(np.arange(10.0)), 1, 6)
+    codes = [w.code for w in result.warnings]
+    assert "simple_families_only" in codes
+    assert result.forecast.point.size == 6
+    assert result.selection.chosen == result.fitted.describe().label
 
 
 def test_short_series_is_compared_at_a_shorter_horizon_with_a_warning() -> None:

@@ -81,10 +81,6 @@ class EtsSpec:
         """The complete specifications the search tries on this data."""
         return candidates_for(self, y, seasonal_period)
 
-    def refit_from(self, chosen: EtsSpec, estimates: tuple[float, ...]) -> EtsRefitSpec:
-        """This search for a longer history, warm-started from ``chosen``'s estimates."""
-        return EtsRefitSpec(self, chosen, estimates)
-
     def is_complete(self) -> bool:
         """True when every component is given, so no search is needed."""
         return None not in (self.error, self.trend, self.season) and (
@@ -136,27 +132,25 @@ def _check_explicit(spec: EtsSpec, positive: bool, seasonal_ok: bool, period: in
 
 
 @dataclass(frozen=True)
-class EtsRefitSpec:
-    """The AICc search of ``base`` again, on a longer history, with an earlier exact fit as the
-    start of the winner's exact fit when the same model wins.
+class EtsSettledSpec:
+    """A complete ETS model to be fitted on another history, its exact fit started from earlier
+    estimates of the same model.
 
-    Not a family of its own: the selection refits an ETS candidate on the full series with it.
-    The exact fit (initial states estimated) is most of an ETS search's cost; started from the
-    estimates on the data before the first backtest origin it converges in a few iterations
-    (figures in tests/benchmarks/RESULTS.md)."""
+    Not a family of its own: auto settles each ETS candidate's model on the whole series and
+    scores it re-estimated on the data before the first backtest origin with this. The exact
+    fit (initial states estimated) is most of an ETS fit's cost, and from a nearby start it
+    converges in a few iterations."""
 
     family: ClassVar[str] = "ets"
 
-    base: EtsSpec
-    warm_model: EtsSpec
-    warm_start: tuple[float, ...]
-    """The earlier exact estimates of ``warm_model``, in statsmodels' parameter order."""
+    model: EtsSpec
+    start: tuple[float, ...]
+    """The earlier exact estimates of ``model``, in statsmodels' parameter order."""
 
     def fit(self, y: pd.Series, seasonal_period: int = 1) -> EtsFitted:
-        """The full search, its winner's exact fit warm-started when it is ``warm_model``."""
-        warm = (self.warm_model, self.warm_start)
-        return search_ets(y, seasonal_period, self.base, warm=warm).best
+        """One exact fit of ``model`` started at ``start``."""
+        return search_ets(y, seasonal_period, self.model, warm=(self.model, self.start)).best
 
     def json_form(self) -> dict[str, Any]:
-        """The search it repeats, as a request would write it."""
-        return as_dict(self.base)
+        """The model, as a request would write it."""
+        return as_dict(self.model)

@@ -27,7 +27,7 @@ from service.core.models.library_warnings import captured
 from service.core.models.simple import ljung_box_summary
 
 if TYPE_CHECKING:
-    from service.core.models.ets.family import EtsRefitSpec, EtsSpec
+    from service.core.models.ets.family import EtsSettledSpec, EtsSpec
 
 SIMULATION_PATHS = 5000
 EVALUATION_PATHS = 1000
@@ -87,12 +87,12 @@ class EtsFitted:
         state["_cached"] = None
         return state
 
-    def refit_specification(self) -> EtsRefitSpec | None:
-        """The same search for a longer history, warm-started from this exact fit; None when
-        nothing was searched or the initial states were not estimated."""
-        if self.specification.is_complete() or not self.estimates:
-            return None
-        return self.specification.refit_from(self.chosen, self.estimates)
+    def settled_specification(self) -> EtsSettledSpec | None:
+        """The chosen model, its exact estimates as the start of a fit on another history;
+        None when the initial states were not estimated."""
+        from service.core.models.ets.family import EtsSettledSpec
+
+        return EtsSettledSpec(self.chosen, self.estimates) if self.estimates else None
 
     @property
     def label(self) -> str:

@@ -57,7 +57,8 @@ def search_ets(
     start = time.perf_counter()
     values = checked_values(y)
     if spec.is_complete():
-        direct = _direct_fit(spec, y, values, seasonal_period)
+        start_at = warm[1] if warm is not None and warm[0] == spec else None
+        direct = _direct_fit(spec, y, values, seasonal_period, start_at)
         if direct is not None:
             direct.fit_seconds = time.perf_counter() - start
             score = direct.information_criteria().get("aicc")
@@ -88,17 +89,26 @@ def search_ets(
     return EtsSearch(fitted, tuple(ranking))
 
 
-def _direct_fit(spec: EtsSpec, y: pd.Series, values: np.ndarray, period: int) -> EtsFitted | None:
-    """A fully specified model: one exact fit from statsmodels' own start, as a direct call
-    would make; None (so the two-stage path runs) when it fails, does not converge or
-    forecasts implausibly. On 20 seeded seasonal series the two-stage path found the same
-    likelihood (tests/benchmarks/RESULTS.md)."""
+def _direct_fit(
+    spec: EtsSpec,
+    y: pd.Series,
+    values: np.ndarray,
+    period: int,
+    start_at: tuple[float, ...] | None = None,
+) -> EtsFitted | None:
+    """A fully specified model: one exact fit from statsmodels' own start (or ``start_at``,
+    earlier estimates of the same model), as a direct call would make; None (so the two-stage
+    path runs) when it fails, does not converge or forecasts implausibly. On 20 seeded
+    seasonal series the two-stage path found the same likelihood (tests/benchmarks/RESULTS.md)."""
     caught: list[FitWarning] = []
     label = ets_label(spec)
     try:
         with captured(caught, label):
             model = LeanEtsModel(pd.Series(values), **model_kwargs(spec, period))
-            result = model.fit(disp=False, maxiter=EXACT_MAXITER)
+            start = None
+            if start_at is not None and len(start_at) == len(model.start_params):
+                start = np.asarray(start_at, dtype=float)
+            result = model.fit(start_params=start, disp=False, maxiter=EXACT_MAXITER)
             check = np.asarray(result.forecast(max(2 * period, 12)), dtype=float)
     except (ValueError, np.linalg.LinAlgError, OverflowError, ZeroDivisionError):
         return None
@@ -123,6 +133,7 @@ def _direct_fit(spec: EtsSpec, y: pd.Series, values: np.ndarray, period: int) ->
         initial=estimate.initial,
         initialization="estimated",
         warnings=list(caught),
+        estimates=tuple(float(v) for v in result.params),
     )
     fitted._cached = result
     return fitted

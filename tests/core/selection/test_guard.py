@@ -1,0 +1,132 @@
+"""Auto's honesty: the benchmark guard, the no-skill warning, short series answered, the
+report describing the delivered forecast, and the one-sentence summary."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from service.core.diagnostics.report import diagnose
+from service.core.selection.auto import AutoForecast, select
+from service.core.selection.guard import (
+    BENCHMARK_GUARD,
+    RANDOM_WALK_GUARD,
+    Guarded,
+    guard,
+    no_skill_message,
+)
+from service.core.selection.skill import skill
+from service.core.selection.summary import auto_summary, explicit_summary
+
+
+def series(values: np.ndarray, freq: str = "MS", start: str = "2010-01-01") -> pd.Series:
+    return pd.Series(values, index=pd.date_range(start, periods=values.size, freq=freq))
+
+
+def test_skill_is_one_minus_the_score_ratio_and_none_without_a_benchmark_score() -> None:
+    assert skill(0.8, 1.0) == pytest.approx(0.2)
+    assert skill(1.2, 1.0) == pytest.approx(-0.2)
+    assert skill(1.0, 0.0) is None and skill(float("inf"), 1.0) is None
+
+
+def test_a_forecast_below_the_benchmark_gets_the_benchmark_mixed_in_by_score() -> None:
+    chosen = Guarded("combination", (2, 3), (0.75, 0.25))
+    out = guard(chosen, 1.2, walk=None, benchmark=(1, 1.0))
+    assert out.rule == BENCHMARK_GUARD and out.members == (2, 3, 1)
+    # Inverse-square weights of 1.2 and 1.0: the benchmark takes 1/(1 + 1/1.44).
+    share = 1.0 / (1.0 + 1.0 / 1.44)
+    assert out.weights[-1] == pytest.approx(share)
+    assert sum(out.weights) == pytest.approx(1.0)
+    assert out.weights[0] / out.weights[1] == pytest.approx(3.0)
+    kept = guard(chosen, 0.9, walk=None, benchmark=(1, 1.0))
+    assert kept == chosen
+
+
+def test_a_random_walk_without_5_percent_over_naive_gets_the_naive_forecast() -> None:
+    chosen = Guarded("winner", (4,), ())
+    out = guard(chosen, 0.97, walk=(0, 1.0), benchmark=(0, 1.0))
+    assert out == Guarded(RANDOM_WALK_GUARD, (0,), ())
+
+
+def test_messages_are_plain_sentences_naming_the_benchmark() -> None:
+    text = no_skill_message(BENCHMARK_GUARD, "seasonal naive", -0.12, "")
+    assert "seasonal naive" in text and "12 %" in text and text.endswith(".")
+    walk = "The series behaves like a random walk."
+    assert no_skill_message(RANDOM_WALK_GUARD, "naive", 0.0, walk) == walk
+
+
+@pytest.fixture(scope="module")
+def batch() -> list[AutoForecast]:
+    """Seeded monthly series of every kind a batch brings: noise, walks, trends, seasons."""
+    out = []
+    for seed in range(8):
+        rng = np.random.default_rng(seed)
+        t = np.arange(60)
+        kind = seed % 4
+        noise = rng.normal(0, 1 + seed, t.size)
+        if kind == 0:
+            values = 100 + noise
+        elif kind == 1:
+            values = 100 + np.cumsum(noise)
+        elif kind == 2:
+            values = 100 + 0.8 * t + 3 * noise
+        else:
+            values = 100 + 10 * np.sin(2 * np.pi * t / 12) + noise
+        out.append(select(series(values), 12, 12))
+    return out
+
+
+def test_never_a_negative_skill_without_the_warning(batch: list[AutoForecast]) -> None:
+    for result in batch:
+        value = result.selection.skill_over_naive
+        codes = [w.code for w in result.warnings]
+        if value is not None and value <= 0:
+            assert "no_skill_over_naive" in codes, result.selection.chosen
+        else:
+            assert "no_skill_over_naive" not in codes
+
+
+def test_the_report_describes_the_delivered_forecast(batch: list[AutoForecast]) -> None:
+    for result in batch:
+        label = result.fitted.describe().label
+        assert result.selection.chosen == label
+        assert label in [r.label for r in result.selection.ranking]
+        entry = next(r for r in result.selection.ranking if r.label == label)
+        benchmark = next(
+            r for r in result.selection.ranking if r.label == result.selection.benchmark
+        )
+        assert result.selection.skill_over_naive == pytest.approx(1 - entry.score / benchmark.score)
+
+
+def test_every_auto_forecast_has_a_one_sentence_summary(batch: list[AutoForecast]) -> None:
+    for result in batch:
+        text = auto_summary(result.selection)
+        assert text.endswith(".") and text.count(".") == 1
+        assert "naive" in text and "intervals covered" in text
+    assert explicit_summary("ETS(A,N,N)").startswith("ETS(A,N,N) fitted as requested")
+
+
+def test_six_points_are_forecast_with_a_warning_saying_what_was_cut() -> None:
+    y = series(np.array([12.0, 15.0, 14.0, 18.0, 17.0, 21.0]))
+    result = select(y, 12, 3)
+    assert result.forecast.point.size == 3
+    assert "simple_families_only" in [w.code for w in result.warnings]
+    assert result.selection.chosen == result.fitted.describe().label
+
+
+def test_three_points_get_the_naive_forecast_without_a_backtest() -> None:
+    result = select(series(np.array([5.0, 7.0, 6.0])), 1, 2)
+    assert result.fitted.describe().label == "naive" and result.selection.rule == "too_short"
+    assert "no_backtest" in [w.code for w in result.warnings]
+    assert "could not be measured" in auto_summary(result.selection)
+
+
+def test_three_years_of_weekly_points_are_compared_on_two_seasons() -> None:
+    rng = np.random.default_rng(3)
+    t = np.arange(156)
+    values = 100 + 10 * np.sin(2 * np.pi * t / 52) + rng.normal(0, 2, t.size)
+    y = series(values, "W-SUN", "2020-01-05")
+    result = select(y, 52, 13, diagnostics=diagnose(y, 52))
+    assert result.selection.profile.seasonal and result.forecast.point.size == 13
+    assert "backtest_shortened" in [w.code for w in result.warnings]
