@@ -81,6 +81,10 @@ class EtsSpec:
         """The complete specifications the search tries on this data."""
         return candidates_for(self, y, seasonal_period)
 
+    def settled_from(self, chosen: EtsSpec, estimates: tuple[float, ...]) -> EtsSettledSpec | None:
+        """``chosen`` to be fitted on another history from ``estimates`` (None without them)."""
+        return EtsSettledSpec(chosen, estimates) if estimates else None
+
     def is_complete(self) -> bool:
         """True when every component is given, so no search is needed."""
         return None not in (self.error, self.trend, self.season) and (

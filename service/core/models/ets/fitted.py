@@ -90,9 +90,7 @@ class EtsFitted:
     def settled_specification(self) -> EtsSettledSpec | None:
         """The chosen model, its exact estimates as the start of a fit on another history;
         None when the initial states were not estimated."""
-        from service.core.models.ets.family import EtsSettledSpec
-
-        return EtsSettledSpec(self.chosen, self.estimates) if self.estimates else None
+        return self.specification.settled_from(self.chosen, self.estimates)
 
     @property
     def label(self) -> str:
