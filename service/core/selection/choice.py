@@ -81,13 +81,18 @@ def wins_majority(single: ModelBacktest, other: ModelBacktest) -> bool:
     return bool(keep.any() and np.sum(a[keep] < b[keep]) * 2 > keep.sum())
 
 
-def score_weights(scores: Sequence[float]) -> tuple[float, ...]:
-    """Weights ∝ score^-WEIGHT_POWER, normalised; a zero score (a perfect backtest) takes all."""
+def score_weights(scores: Sequence[float], windows: int = MIN_WINDOWS) -> tuple[float, ...]:
+    """Weights ∝ score^-power, normalised; a zero score (a perfect backtest) takes all.
+
+    The power is WEIGHT_POWER with at least MIN_WINDOWS disjoint backtest windows and shrinks
+    in proportion below that: scores from one or two windows of a short series are too noisy
+    to hand one member nearly all the weight."""
     values = np.asarray(scores, dtype=float)
     if np.any(values <= 0):
         perfect = (values <= 0).astype(float)
         return tuple(float(x) for x in perfect / perfect.sum())
-    raw = values**-WEIGHT_POWER
+    power = WEIGHT_POWER * min(1.0, max(windows, 1) / MIN_WINDOWS)
+    raw = values**-power
     return tuple(float(x) for x in raw / raw.sum())
 
 
@@ -129,7 +134,7 @@ def choose(
     pool = [i for i in order if family_of(specs[i]) not in BENCHMARK_FAMILIES]
     if len(pool) < 2:
         return Choice("winner", (single,), ranking)
-    weights = score_weights([results[i].score(metric) for i in pool])
+    weights = score_weights([results[i].score(metric) for i in pool], windows)
     mixed = combine([results[i] for i in pool], weights=weights)
     mixed_score = mixed.score(metric)
     ranking = tuple(

@@ -65,11 +65,14 @@ def test_members_are_weighted_by_the_inverse_square_of_their_backtest_score() ->
     )
     assert picked.rule == "combination"
     weights = dict(zip(picked.members, picked.weights, strict=True))
-    # Scores 1 and 2: weights 1 and 1/4, normalised to 0.8 and 0.2.
-    np.testing.assert_allclose([weights[2], weights[3]], [0.8, 0.2], rtol=1e-12)
+    # Scores 1 and 2 at the power 2 x 4/5 (four disjoint windows of the five that give the
+    # full power): weights 1 and 2^-1.6, normalised.
+    low = 2.0**-1.6
+    share = 1 / (1 + low)
+    np.testing.assert_allclose([weights[2], weights[3]], [share, 1 - share], rtol=1e-12)
     combined = next(r for r in picked.ranking if r.specification["family"] == "combination")
-    # Both miss on the same side: 0.8 x 1 + 0.2 x 2.
-    assert combined.score == pytest.approx(1.2, rel=1e-12)
+    # Both miss on the same side: the weighted mean of the two scores.
+    assert combined.score == pytest.approx(share * 1 + (1 - share) * 2, rel=1e-12)
 
 
 def test_score_weights_normalise_and_a_perfect_score_takes_all() -> None:
@@ -110,3 +113,13 @@ def test_disjoint_windows_count_the_non_overlapping_forecast_windows() -> None:
     assert disjoint_windows((10, 15, 20), 5) == 3
     assert disjoint_windows((10, 12, 14, 16, 18, 20), 5) == 2
     assert disjoint_windows((), 5) == 0
+
+
+def test_weights_flatten_when_the_backtest_has_few_disjoint_windows() -> None:
+    from service.core.selection.choice import MIN_WINDOWS, score_weights
+
+    full = score_weights([1.0, 2.0], MIN_WINDOWS)
+    assert full[0] == pytest.approx(0.8)  # 1 : 1/4 at the full power of 2
+    one = score_weights([1.0, 2.0], 1)
+    assert 0.5 < one[0] < full[0]
+    assert one[0] == pytest.approx(1 / (1 + 2 ** -(2 / MIN_WINDOWS)))
