@@ -22,7 +22,9 @@ from statsmodels.tsa.statespace.tools import (
     unconstrain_stationary_univariate,
 )
 
-DENSE_LIMIT = 600
+DENSE_LIMIT = 250
+"""Differenced points up to which the dense likelihood is used: whole exact fits were faster
+dense up to 200-300 points and 3-14 x slower than the filter at 450-600 (RESULTS.md)."""
 
 
 @dataclass(frozen=True)
