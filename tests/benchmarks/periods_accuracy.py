@@ -68,11 +68,11 @@ def naive_longest(y: pd.Series, periods: tuple[float, ...], h: int) -> Forecast:
 METHODS: dict[str, Method] = {
     "auto, periods": auto_periods,
     "auto, shortest": auto_single,
-    "snaive longest": naive_longest,
+    "seasonal naive, longest period": naive_longest,
     "ets (AICc)": lambda y, p, h: ets(y, round(p[0]), h),
     "ses/holt/damped": lambda y, p, h: m4_combination(y, round(p[0]), h),
 }
-BENCHMARKS = ("snaive longest", "ets (AICc)", "ses/holt/damped")
+BENCHMARKS = ("seasonal naive, longest period", "ets (AICc)", "ses/holt/damped")
 
 
 def main() -> None:
