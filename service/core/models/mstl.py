@@ -17,7 +17,7 @@ import math
 import time
 import warnings
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, ClassVar
 
 import numpy as np
@@ -227,14 +227,10 @@ class MstlFitted:
     def describe(self) -> Description:
         """The base model's description under an ``MSTL (periods ...) then base`` label."""
         inner = self.base.describe()
-        return Description(
+        return replace(
+            inner,
             family=MstlSpec.family,
             label=model_label("mstl", period=self.periods, base=inner.label),
             specification=as_dict(self.specification),
-            parameters=inner.parameters,
-            information_criteria=inner.information_criteria,
-            residual_variance=inner.residual_variance,
-            residual_diagnostics=inner.residual_diagnostics,
-            observations=inner.observations,
             fit_seconds=self.fit_seconds,
         )

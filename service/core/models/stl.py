@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import time
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, ClassVar
 
 import numpy as np
@@ -126,15 +126,11 @@ class StlFitted:
     def describe(self) -> Description:
         """The base model's description under an ``STL (period m) then base`` label."""
         inner = self.base.describe()
-        return Description(
+        return replace(
+            inner,
             family=StlSpec.family,
             label=model_label("stl", period=self.seasonal_period, base=inner.label),
             specification=as_dict(self.specification),
-            parameters=inner.parameters,
-            information_criteria=inner.information_criteria,
-            residual_variance=inner.residual_variance,
-            residual_diagnostics=inner.residual_diagnostics,
-            observations=inner.observations,
             fit_seconds=self.fit_seconds,
         )
 
