@@ -26,7 +26,8 @@ from service.core.errors import WindvaneError
 from service.runtime import jobs
 from service.runtime.cache import Cache
 from service.runtime.keys import data_key
-from service.runtime.pool import BudgetExceeded, PoolBusy, PoolClosed, WorkerCrashed, pin_threads
+from service.runtime.pool import BudgetExceeded, PoolBusy, PoolClosed, WorkerCrashed
+from service.runtime.workers import pin_threads
 
 
 @dataclass(frozen=True)

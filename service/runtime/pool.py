@@ -13,28 +13,33 @@ import collections
 import contextlib
 import math
 import multiprocessing
-import os
-import signal
 import time
-import traceback
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
-from multiprocessing.connection import Connection
 from typing import Any, TypeVar
 
-T = TypeVar("T")
-
-# Read by OpenMP, OpenBLAS, MKL and Accelerate when they load; OPENBLAS_CORETYPE is left alone.
-THREAD_VARIABLES = (
-    "OMP_NUM_THREADS",
-    "OPENBLAS_NUM_THREADS",
-    "MKL_NUM_THREADS",
-    "VECLIB_MAXIMUM_THREADS",
-    "NUMEXPR_NUM_THREADS",
+from service.runtime.workers import (
+    READY,
+    STARTUP_SECONDS,
+    Failure,
+    Worker,
+    WorkerTraceback,
+    default_start_method,
+    receive,
 )
-STARTUP_SECONDS = 120.0
+
+__all__ = [
+    "BudgetExceeded",
+    "PoolBusy",
+    "PoolClosed",
+    "PoolStats",
+    "WorkPool",
+    "WorkerCrashed",
+    "WorkerTraceback",
+]
+
+T = TypeVar("T")
 RECENT_JOBS = 32
-_READY = "ready"
 
 
 class PoolBusy(RuntimeError):
@@ -65,22 +70,6 @@ class PoolClosed(RuntimeError):
     """The pool was shut down while the job waited."""
 
 
-class WorkerTraceback(Exception):
-    """The traceback of a job's exception as the worker saw it.
-
-    A job's exception is re-raised in the server chained to this one (``raise error from
-    WorkerTraceback(text)``), so a logged internal error shows the worker's frames, which
-    pickling the exception alone would lose.
-    """
-
-    def __init__(self, text: str) -> None:
-        super().__init__(text)
-        self.text = text
-
-    def __str__(self) -> str:
-        return f"\n\n(in the worker process)\n{self.text}"
-
-
 @dataclass(frozen=True)
 class PoolStats:
     """The pool's occupancy, for gauges and /readyz."""
@@ -91,47 +80,6 @@ class PoolStats:
     queued: int
     recycled: int
     start_method: str
-
-
-@dataclass(frozen=True)
-class _Failure:
-    """An exception raised by a job, shipped back with its traceback text for the log."""
-
-    error: BaseException
-    trace: str
-
-
-class _Worker:
-    """One worker process and the parent's end of its pipe."""
-
-    def __init__(self, context: Any, preload: Sequence[str]) -> None:
-        parent, child = context.Pipe(duplex=True)
-        self.conn: Connection = parent
-        self.process = context.Process(
-            target=serve, args=(child, tuple(preload)), daemon=True, name="windvane-worker"
-        )
-        self.process.start()
-        child.close()
-        self.ready = False
-        self.jobs = 0
-        self.watched_by: asyncio.AbstractEventLoop | None = None
-
-    def unwatch(self) -> None:
-        """Stop watching for this process's exit (it is being replaced or stopped)."""
-        loop, self.watched_by = self.watched_by, None
-        if loop is not None:
-            with contextlib.suppress(Exception):  # a closed loop has nothing to remove
-                loop.remove_reader(self.process.sentinel)
-
-    def stop(self, kill: bool) -> None:
-        """Ask an idle worker to exit, or kill a busy one; never blocks for long."""
-        with contextlib.suppress(OSError, ValueError):
-            if kill:
-                self.process.kill()
-            else:
-                self.conn.send(None)
-        with contextlib.suppress(OSError):
-            self.conn.close()
 
 
 class WorkPool:
@@ -154,7 +102,7 @@ class WorkPool:
         self.queue_size = queue_size
         self.budget_seconds = budget_seconds
         self.max_jobs_per_worker = max_jobs_per_worker
-        self.start_method = start_method or _default_start_method()
+        self.start_method = start_method or default_start_method()
         self._context = multiprocessing.get_context(self.start_method)
         if self.start_method == "forkserver" and preload:
             # Modules imported once in the fork server make every replacement start in ms.
@@ -162,9 +110,9 @@ class WorkPool:
         self._preload = tuple(preload)
         self._on_change = on_change
         self._on_recycle = on_recycle
-        self._idle: collections.deque[_Worker] = collections.deque()
-        self._waiters: collections.deque[asyncio.Future[_Worker]] = collections.deque()
-        self._all: set[_Worker] = set()
+        self._idle: collections.deque[Worker] = collections.deque()
+        self._waiters: collections.deque[asyncio.Future[Worker]] = collections.deque()
+        self._all: set[Worker] = set()
         self._admitted = 0
         self._busy = 0
         self._recycled = 0
@@ -207,12 +155,12 @@ class WorkPool:
         """
         ready = 0
         while len(self._all) < self.workers and not self._closed:
-            worker = await asyncio.to_thread(_Worker, self._context, self._preload)
+            worker = await asyncio.to_thread(Worker, self._context, self._preload)
             if self._closed:
                 worker.stop(kill=True)
                 break
             with contextlib.suppress(TimeoutError, EOFError, OSError):
-                worker.ready = await _receive(worker, STARTUP_SECONDS) == _READY
+                worker.ready = await receive(worker, STARTUP_SECONDS) == READY
             ready += worker.ready
             self._all.add(worker)
             self._watch(worker)
@@ -245,18 +193,18 @@ class WorkPool:
         """Wait for every idle worker's start-up message; returns how many are ready.
 
         Called before the server takes traffic, so the first requests do not wait for the
-        workers' start (measured: the first auto job on a just-built pool took 1.3 s against
-        0.7 s). A worker that is not ready in time is left to the first job, which replaces it.
+        workers' start (figures in tests/benchmarks/RESULTS.md). A worker that is not ready in
+        time is left to the first job, which replaces it.
         """
         limit = STARTUP_SECONDS if timeout is None else timeout
         for worker in list(self._idle):
             if worker.ready:
                 continue
             try:
-                message = await _receive(worker, limit)
+                message = await receive(worker, limit)
             except (TimeoutError, EOFError, OSError):
                 continue
-            worker.ready = message == _READY
+            worker.ready = message == READY
         return sum(1 for w in self._idle if w.ready)
 
     def recent_job_seconds(self) -> float:
@@ -306,12 +254,12 @@ class WorkPool:
 
     # --- internals --------------------------------------------------------------------
     def _spawn(self) -> None:
-        worker = _Worker(self._context, self._preload)
+        worker = Worker(self._context, self._preload)
         self._all.add(worker)
         self._watch(worker)
         self._release(worker)
 
-    def _watch(self, worker: _Worker) -> None:
+    def _watch(self, worker: Worker) -> None:
         """Replace the worker as soon as its process exits while idle (out-of-memory killer,
         an operator), so readiness heals without waiting for a request to find it dead."""
         try:
@@ -321,7 +269,7 @@ class WorkPool:
         loop.add_reader(worker.process.sentinel, self._exited, worker)
         worker.watched_by = loop
 
-    def _exited(self, worker: _Worker) -> None:
+    def _exited(self, worker: Worker) -> None:
         worker.unwatch()
         if worker in self._idle and not self._closed:
             self._idle.remove(worker)
@@ -329,7 +277,7 @@ class WorkPool:
             self._changed()
         # A busy worker's job sees its pipe close and reports the crash itself.
 
-    def _release(self, worker: _Worker) -> None:
+    def _release(self, worker: Worker) -> None:
         while self._waiters:
             waiter = self._waiters.popleft()
             if not waiter.done():
@@ -337,7 +285,7 @@ class WorkPool:
                 return
         self._idle.append(worker)
 
-    async def _acquire(self, budget: float) -> _Worker:
+    async def _acquire(self, budget: float) -> Worker:
         """An idle, living worker; waits at most ``budget`` seconds, then PoolBusy."""
         while True:
             worker = self._idle.popleft() if self._idle else await self._wait(budget)
@@ -346,8 +294,8 @@ class WorkPool:
             # Died while idle (out-of-memory killer, an operator): not this job's fault.
             self._replace(worker, "crash")
 
-    async def _wait(self, budget: float) -> _Worker:
-        waiter: asyncio.Future[_Worker] = asyncio.get_running_loop().create_future()
+    async def _wait(self, budget: float) -> Worker:
+        waiter: asyncio.Future[Worker] = asyncio.get_running_loop().create_future()
         self._waiters.append(waiter)
         try:
             # Waiting longer than a job may run means the queue is not draining: refuse.
@@ -368,7 +316,7 @@ class WorkPool:
                 self._waiters.remove(waiter)
 
     async def _run_on(
-        self, worker: _Worker, fn: Callable[..., T], args: Any, budget: float, waited: float = 0.0
+        self, worker: Worker, fn: Callable[..., T], args: Any, budget: float, waited: float = 0.0
     ) -> T:
         recycle: str | None = None
         self._busy += 1
@@ -377,8 +325,8 @@ class WorkPool:
         sent = False
         try:
             if not worker.ready:
-                message = await _receive(worker, STARTUP_SECONDS)
-                if message != _READY:
+                message = await receive(worker, STARTUP_SECONDS)
+                if message != READY:
                     raise WorkerCrashed(worker.process.exitcode)
                 worker.ready = True
             left = budget - waited - (time.perf_counter() - started)
@@ -388,11 +336,11 @@ class WorkPool:
             sent = True
             worker.jobs += 1
             try:
-                reply = await _receive(worker, left)
+                reply = await receive(worker, left)
             except TimeoutError:
                 recycle = "budget"
                 raise BudgetExceeded(budget) from None
-            if isinstance(reply, _Failure):
+            if isinstance(reply, Failure):
                 raise reply.error from WorkerTraceback(reply.trace)
             if self.max_jobs_per_worker and worker.jobs >= self.max_jobs_per_worker:
                 recycle = "retired"
@@ -417,7 +365,7 @@ class WorkPool:
                 self._replace(worker, recycle)
             self._changed()
 
-    def _replace(self, worker: _Worker, reason: str) -> None:
+    def _replace(self, worker: Worker, reason: str) -> None:
         self._all.discard(worker)
         worker.unwatch()
         worker.stop(kill=reason != "retired")
@@ -435,71 +383,6 @@ class WorkPool:
             self._on_change(stats)
 
 
-def _handed(waiter: asyncio.Future[_Worker]) -> bool:
+def _handed(waiter: asyncio.Future[Worker]) -> bool:
     """True when a worker was handed to this waiter (possibly just as it gave up)."""
     return waiter.done() and not waiter.cancelled() and waiter.exception() is None
-
-
-async def _receive(worker: _Worker, timeout: float) -> Any:
-    """The next message from a worker, waiting on its pipe without blocking the loop."""
-    loop = asyncio.get_running_loop()
-    readable: asyncio.Future[None] = loop.create_future()
-    fd = worker.conn.fileno()
-
-    def wake() -> None:
-        if not readable.done():
-            readable.set_result(None)
-
-    loop.add_reader(fd, wake)
-    try:
-        await asyncio.wait_for(readable, timeout)
-    finally:
-        loop.remove_reader(fd)
-        # uvloop (uvicorn's loop) leaves a watched fd non-blocking: a reply larger than the
-        # socket buffer then failed recv() with BlockingIOError, reported as a crashed worker.
-        os.set_blocking(fd, True)
-    # The worker writes a whole message at once; reading it back is a memory copy.
-    return worker.conn.recv()
-
-
-def _default_start_method() -> str:
-    return "forkserver" if "forkserver" in multiprocessing.get_all_start_methods() else "spawn"
-
-
-def pin_threads() -> None:
-    """One BLAS/OpenMP thread in this process: set before the libraries load, limit after."""
-    for name in THREAD_VARIABLES:
-        os.environ[name] = "1"
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:
-        return
-    threadpool_limits(1)
-
-
-def serve(conn: Connection, preload: tuple[str, ...]) -> None:
-    """A worker's main loop: receive (fn, args), send back the result or the failure."""
-    # Ctrl-C reaches the whole process group; the server shuts the workers down itself.
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
-    pin_threads()
-    for module in preload:
-        __import__(module)
-    pin_threads()
-    conn.send(_READY)
-    while True:
-        try:
-            message = conn.recv()
-        except (EOFError, OSError):
-            return
-        if message is None:
-            return
-        fn, args = message
-        try:
-            reply: Any = fn(*args)
-        except BaseException as exc:
-            reply = _Failure(exc, traceback.format_exc())
-        try:
-            conn.send(reply)
-        except Exception as exc:  # an answer or an error that will not pickle
-            trace = reply.trace if isinstance(reply, _Failure) else traceback.format_exc()
-            conn.send(_Failure(RuntimeError(f"the job's result could not be sent: {exc}"), trace))

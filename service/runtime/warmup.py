@@ -14,7 +14,7 @@ from __future__ import annotations
 import contextlib
 import importlib
 
-from service.runtime.pool import pin_threads
+from service.runtime.workers import pin_threads
 
 # Modules a forecast still imports on first use after the jobs module (pandas' pyarrow glue).
 LAZY_MODULES = ("service.runtime.jobs", "pyarrow.pandas_compat")

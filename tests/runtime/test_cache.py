@@ -11,13 +11,8 @@ import pandas as pd
 import pytest
 
 from service.core.models.naive import NaiveSpec
-from service.runtime.cache import (
-    Cache,
-    DiskStore,
-    ResponseCache,
-    StoredResponse,
-    prepare_directory,
-)
+from service.runtime.cache import Cache, ResponseCache, StoredResponse
+from service.runtime.disk import DiskStore, prepare_directory
 from service.runtime.keys import Key, KeyBuilder
 from service.runtime.sealed import MAGIC, BadEntry, Sealer
 
@@ -246,13 +241,13 @@ def test_a_failed_write_is_tried_again_later(
     def no_space(*args: object, **kwargs: object) -> None:
         raise OSError(28, "No space left on device")
 
-    monkeypatch.setattr("service.runtime.cache.os.replace", no_space)
+    monkeypatch.setattr("service.runtime.disk.os.replace", no_space)
     with caplog.at_level(logging.WARNING, logger="windvane.cache"):
         assert not store.write(key("x"), "json", b"X", {})
     assert store.degraded is not None and "No space" in store.degraded
     assert "not writable" in caplog.text
     assert not list(tmp_path.glob("*/.tmp-*"))
-    monkeypatch.setattr("service.runtime.cache.os.replace", real)
+    monkeypatch.setattr("service.runtime.disk.os.replace", real)
     assert not store.write(key("x"), "json", b"X", {})  # still waiting to retry
     store._retry_at = 0.0  # the retry interval has passed
     assert store.write(key("x"), "json", b"X", {})
