@@ -19,7 +19,7 @@ from service.core.models.combination import CombinationSpec
 from service.core.models.croston import CrostonSpec
 from service.core.models.drift import DriftSpec
 from service.core.models.ets.family import EtsSpec
-from service.core.models.harmonic import HarmonicSpec
+from service.core.models.harmonic.family import HarmonicSpec
 from service.core.models.mean import MeanSpec
 from service.core.models.mstl import MstlSpec
 from service.core.models.naive import NaiveSpec

@@ -12,7 +12,8 @@ import pytest
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 
 from service.core.errors import FitError
-from service.core.models.harmonic import FourierTerms, HarmonicSpec, max_harmonics
+from service.core.models.harmonic.family import HarmonicSpec
+from service.core.models.harmonic.terms import FourierTerms, max_harmonics
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
 from service.core.models.transforms import Transform, TransformedSpec
 from tests.multi_period_series import (

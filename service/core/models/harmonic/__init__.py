@@ -1,0 +1,1 @@
+"""Dynamic harmonic regression: specification (family), Fourier terms, ARIMA errors, fitted."""

@@ -1,0 +1,113 @@
+"""Fourier terms of a dynamic harmonic regression and the harmonics per period by AICc."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from service.core.data.periods import period_text
+
+MAX_HARMONICS = 12
+"""Per period; FPP's examples stop near 10 for weekly and yearly cycles."""
+
+
+def max_harmonics(period: float) -> int:
+    """Pairs whose frequency stays below the Nyquist limit, at most MAX_HARMONICS."""
+    return max(1, min(MAX_HARMONICS, math.ceil(period / 2) - 1))
+
+
+@dataclass(frozen=True)
+class FourierTerms:
+    """The sine and cosine columns of the chosen harmonics (a constant first)."""
+
+    periods: tuple[float, ...]
+    harmonics: tuple[int, ...]
+
+    def frequencies(self) -> list[tuple[str, float]]:
+        """Column names and cycles per step, repeated frequencies left out."""
+        seen: list[float] = []
+        out: list[tuple[str, float]] = []
+        for p, count in zip(self.periods, self.harmonics, strict=True):
+            for k in range(1, count + 1):
+                f = k / p
+                if any(abs(f - s) < 1e-9 for s in seen) or f >= 0.5:
+                    continue
+                seen.append(f)
+                out.append((f"{k}/{period_text(p)}", f))
+        return out
+
+    def names(self) -> list[str]:
+        """Coefficient names: constant, then sin and cos per harmonic."""
+        return ["constant"] + [
+            f"{trig} {name}" for name, _ in self.frequencies() for trig in ("sin", "cos")
+        ]
+
+    def matrix(self, t: np.ndarray) -> np.ndarray:
+        """The design at positions ``t`` (steps from the first fitted observation)."""
+        cols = [np.ones_like(t)]
+        for _, f in self.frequencies():
+            angle = 2.0 * np.pi * f * t
+            cols += [np.sin(angle), np.cos(angle)]
+        return np.column_stack(cols)
+
+
+def aicc(rss: float, n: int, k: int) -> float:
+    """AICc of a Gaussian regression with k coefficients plus the variance."""
+    k += 1
+    if rss <= 0 or n - k - 1 <= 0:
+        return math.inf
+    return n * math.log(rss / n) + 2 * k + 2 * k * (k + 1) / (n - k - 1)
+
+
+def choose_harmonics(
+    values: np.ndarray, t: np.ndarray, periods: tuple[float, ...]
+) -> tuple[int, ...]:
+    """Harmonics per period by AICc of least squares, one period at a time until stable."""
+    full = FourierTerms(periods, tuple(max_harmonics(p) for p in periods))
+    x = full.matrix(t)
+    gram, cross, total = x.T @ x, x.T @ values, float(values @ values)
+    columns = _columns_by_period(full)
+    n = values.size
+
+    def score(counts: tuple[int, ...]) -> float:
+        keep = [0] + [c for i, k in enumerate(counts) for c in columns[i][: 2 * k]]
+        g, c = gram[np.ix_(keep, keep)], cross[keep]
+        try:
+            b = np.linalg.solve(g, c)
+        except np.linalg.LinAlgError:
+            return math.inf
+        return aicc(max(total - float(b @ c), 1e-12 * total), n, len(keep))
+
+    counts = tuple(1 for _ in periods)
+    best = score(counts)
+    for _ in range(4):
+        changed = False
+        for i, p in enumerate(periods):
+            for k in range(1, max_harmonics(p) + 1):
+                trial = (*counts[:i], k, *counts[i + 1 :])
+                value = score(trial)
+                if value < best - 1e-9:
+                    counts, best, changed = trial, value, True
+        if not changed:
+            break
+    return counts
+
+
+def _columns_by_period(terms: FourierTerms) -> list[list[int]]:
+    """The design's column numbers of each period's harmonics, in harmonic order."""
+    out: list[list[int]] = []
+    seen: list[float] = []
+    column = 1
+    for p, count in zip(terms.periods, terms.harmonics, strict=True):
+        mine: list[int] = []
+        for k in range(1, count + 1):
+            f = k / p
+            if any(abs(f - s) < 1e-9 for s in seen) or f >= 0.5:
+                continue
+            seen.append(f)
+            mine += [column, column + 1]
+            column += 2
+        out.append(mine)
+    return out
