@@ -9,13 +9,13 @@ from __future__ import annotations
 
 import time
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import asdict, dataclass, field
 from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
+from service.core.diagnostics.autocorrelation import ljung_box, primary_ljung_box_lag, sample_acf
 from service.core.models.base import Description, FitWarning, Forecast, future_index
 from service.core.models.intervals import normal_intervals
 
@@ -121,18 +121,14 @@ def last_observed(values: np.ndarray) -> float:
 def ljung_box_summary(
     residuals: np.ndarray, seasonal_period: int, model_dof: int = 0
 ) -> dict[str, Any]:
-    """Ljung-Box (1978) Q at lag min(10, n/5) (2m for seasonal data, common practice)."""
+    """Ljung-Box (1978) Q of the residuals at the diagnostics' decision lag (10, or 2m when
+    seasonal, at most n/5), with degrees of freedom reduced by the fitted parameters."""
     n = residuals.size
     if n < 4 or not np.any(residuals - residuals.mean()):
         return {"ljung_box": None, "reason": "too few or constant residuals"}
-    lag = min(2 * seasonal_period if seasonal_period > 1 else 10, max(1, n // 5))
-    r = residuals - residuals.mean()
-    denom = float(np.sum(r**2))
-    acf = np.array([np.sum(r[k:] * r[:-k]) / denom for k in range(1, lag + 1)])
-    q = float(n * (n + 2) * np.sum(acf**2 / (n - np.arange(1, lag + 1))))
-    dof = max(1, lag - model_dof)
-    p = float(stats.chi2.sf(q, dof))
-    return {"ljung_box": {"lag": lag, "statistic": q, "degrees_of_freedom": dof, "p_value": p}}
+    lag = primary_ljung_box_lag(n, seasonal_period)
+    box = ljung_box(sample_acf(residuals, lag), n, lag, model_dof)
+    return {"ljung_box": asdict(box)}
 
 
 def timed() -> float:

@@ -43,8 +43,6 @@ figures behind each rule are in tests/benchmarks/RESULTS.md.
 
 from __future__ import annotations
 
-import math
-import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -52,7 +50,13 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from service.core.diagnostics.autocorrelation import seasonal_lag_stands_out
+from service.core.applicability import NotApplicable
+from service.core.diagnostics.autocorrelation import (
+    sample_acf,
+    seasonal_lag_stands_out,
+    white_noise_band,
+)
+from service.core.diagnostics.stationarity import adf_test
 from service.core.errors import SpecificationError
 from service.core.models.registry import FAMILIES, specification_from_dict
 from service.core.models.transforms import Transform, TransformedSpec
@@ -121,29 +125,21 @@ def seasonality_test(values: np.ndarray, period: int) -> bool:
 
 def random_walk_fallback(values: np.ndarray) -> tuple[bool, str]:
     """Unit root not rejected and differences uncorrelated; used until diagnostics are given."""
-    from statsmodels.tsa.stattools import adfuller
-
     y = values[np.isfinite(values)]
     if y.size < 10 or np.ptp(y) == 0:
         return False, "too short or constant to test"
     d = np.diff(y)
-    r1 = float(np.corrcoef(d[1:], d[:-1])[0, 1]) if np.ptp(d) > 0 else 0.0
-    band = 1.96 / math.sqrt(y.size)
-    try:
-        with warnings.catch_warnings(record=True) as seen:
-            warnings.simplefilter("always")
-            result = adfuller(y, regression="c", autolag="AIC", result_object=True)
-        p_value = float(result.pvalue)
-    except (ValueError, np.linalg.LinAlgError):
-        return False, "unit-root test failed"
-    if seen:
+    r1 = float(sample_acf(d, 1)[0]) if np.ptp(d) > 0 else 0.0
+    band = white_noise_band(y.size)
+    test = adf_test(y, "c")
+    if isinstance(test, NotApplicable):
         # A singular or degenerate test regression (e.g. an exact line) decides nothing.
-        return False, f"unit-root test inconclusive: {seen[0].message}"
-    verdict = p_value > 0.05 and abs(r1) <= band
-    rejected = "does not reject" if p_value > 0.05 else "rejects"
+        return False, f"unit-root test inconclusive: {test.reason}"
+    verdict = not test.rejects and abs(r1) <= band
+    rejected = "rejects" if test.rejects else "does not reject"
     reason = (
-        f"ADF p = {p_value:.3f} {rejected} a unit root at 5 %; lag-1 autocorrelation of the "
-        f"differences {r1:.3f} (band ±{band:.3f})"
+        f"ADF p = {test.p_value:.3f} {rejected} a unit root at 5 %; lag-1 autocorrelation of "
+        f"the differences {r1:.3f} (band ±{band:.3f})"
     )
     return verdict, reason
 
