@@ -1,2 +1,2 @@
 """Automatic selection: profile and candidates, backtest ranking, the choice, combination
-weights and the plausibility screen."""
+weights (the plausibility screen is models/plausibility.py, shared with the ETS search)."""

@@ -60,6 +60,7 @@ from service.core.models.base import (
 )
 from service.core.models.intervals import Interval
 from service.core.models.naive import NaiveSpec
+from service.core.models.plausibility import implausible
 from service.core.selection.averaging import combine
 from service.core.selection.candidates import (
     CandidateSet,
@@ -71,7 +72,6 @@ from service.core.selection.choice import Choice, choose, disjoint_windows
 from service.core.selection.delivered import delivered, model_periods, settle
 from service.core.selection.guard import Guarded, benchmark_name, guard, no_skill_message
 from service.core.selection.outcome import AutoForecast, Selection
-from service.core.selection.plausibility import implausible
 from service.core.selection.short_series import plan_for, simple_candidates
 from service.core.selection.skill import (
     benchmark_of,

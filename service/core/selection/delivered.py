@@ -10,8 +10,6 @@ import pandas as pd
 from service.core.evaluation.records import ModelBacktest
 from service.core.models.base import Fitted, Specification, family_of
 from service.core.models.combination import CombinationFitted, CombinationSpec
-from service.core.models.labels import model_label
-from service.core.selection.averaging import CombinedFitted
 from service.core.selection.candidates import SeriesProfile
 
 
@@ -39,16 +37,13 @@ def delivered(
 ) -> Fitted:
     """The members as the backtest fitted them on the whole series, weighted.
 
-    Members sharing one period make the registry's combination family, its specification
-    listing the structures the members settled on; members needing different periods (STL
-    beside non-seasonal models) use a local adapter."""
+    They make the registry's combination family, its specification listing the structures
+    the members settled on; members needing different periods (STL beside non-seasonal
+    models) keep their own, and the residual check uses the longest."""
     fits = [m.delivered for m in members]
     if len(fits) == 1:
         return cast(Fitted, fits[0])
     total = float(sum(weights)) if weights else 0.0
     shares = tuple(w / total for w in weights) if total > 0 else tuple(1 / len(fits) for _ in fits)
-    if len(set(periods)) == 1:
-        spec = CombinationSpec(members=tuple(m.resolved for m in members), weights=shares)
-        return cast(Fitted, CombinationFitted.of(spec, y, periods[0], fits, 0.0))
-    label = model_label("combination", members=len(fits), weighted=True)
-    return CombinedFitted(tuple(fits), label, shares)
+    spec = CombinationSpec(members=tuple(m.resolved for m in members), weights=shares)
+    return cast(Fitted, CombinationFitted.of(spec, y, max(periods), fits, 0.0))

@@ -7,7 +7,7 @@ import pandas as pd
 
 from service.core.models.base import Forecast
 from service.core.models.intervals import Interval
-from service.core.selection.plausibility import BOUND_SPREADS, POINT_SPREADS, implausible
+from service.core.models.plausibility import BOUND_SPREADS, POINT_SPREADS, implausible
 
 HISTORY = np.array([10.0, 14.0, 12.0, 20.0, 16.0])  # range 10 .. 20, spread 10
 

@@ -162,7 +162,8 @@ def test_backtest_auto_ranks_the_candidates() -> None:
 
 def test_combination_averages_points_and_bounds() -> None:
     from service.core.evaluation.backtest import backtest
-    from service.core.selection.averaging import CombinedFitted, combine
+    from service.core.models.combination import CombinationSpec
+    from service.core.selection.averaging import combine
 
     y = seasonal_series()
     report = backtest(y, list(BENCHMARKS), 12, horizon=4, origins=2, step=2, coverage=(0.8,))
@@ -172,7 +173,7 @@ def test_combination_averages_points_and_bounds() -> None:
     np.testing.assert_allclose(
         mixed.forecasts[0].upper[0.8], np.mean([f.upper[0.8] for f in first], 0)
     )
-    fitted = CombinedFitted(tuple(s.fit(y, 12) for s in BENCHMARKS), "mix")
+    fitted = CombinationSpec(members=tuple(BENCHMARKS)).fit(y, 12)
     forecast = fitted.forecast(3, (0.8,))
     parts = [s.fit(y, 12).forecast(3, (0.8,)).point for s in BENCHMARKS]
     np.testing.assert_allclose(forecast.point, np.mean(parts, axis=0))
@@ -181,7 +182,8 @@ def test_combination_averages_points_and_bounds() -> None:
 
 def test_weighted_combination_of_backtests_and_of_fitted_models() -> None:
     from service.core.evaluation.backtest import backtest
-    from service.core.selection.averaging import CombinedFitted, combine
+    from service.core.models.combination import CombinationSpec
+    from service.core.selection.averaging import combine
 
     y = seasonal_series()
     report = backtest(y, list(BENCHMARKS), 12, horizon=4, origins=2, step=2, coverage=(0.8,))
@@ -192,7 +194,7 @@ def test_weighted_combination_of_backtests_and_of_fitted_models() -> None:
         mixed.forecasts[0].point, 0.75 * first[0].point + 0.25 * first[1].point
     )
     assert mixed.specification["weights"][:2] == [0.75, 0.25]
-    fitted = CombinedFitted(tuple(s.fit(y, 12) for s in BENCHMARKS), "mix", tuple(weights))
+    fitted = CombinationSpec(members=tuple(BENCHMARKS), weights=tuple(weights)).fit(y, 12)
     parts = [s.fit(y, 12).forecast(3, (0.8,)) for s in BENCHMARKS[:2]]
     forecast = fitted.forecast(3, (0.8,))
     np.testing.assert_allclose(forecast.point, 0.75 * parts[0].point + 0.25 * parts[1].point)

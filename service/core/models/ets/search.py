@@ -18,6 +18,7 @@ from service.core.models.base import FitWarning
 from service.core.models.ets.fitted import EtsFitted, checked_values, ets_label
 from service.core.models.ets.lean import LeanEtsModel, model_kwargs, n_parameters
 from service.core.models.library_warnings import captured
+from service.core.models.plausibility import point_implausible
 
 if TYPE_CHECKING:
     from service.core.models.ets.family import EtsSpec
@@ -69,7 +70,7 @@ def search_ets(
     for candidate in spec.candidates(values, seasonal_period):
         label = ets_label(candidate)
         estimate = _search_fit(candidate, values, seasonal_period)
-        problem = estimate.failure or _implausible(estimate, values, seasonal_period)
+        problem = estimate.failure or _implausible(estimate, values)
         if problem is not None:
             tried.append(EtsCandidate(label, candidate, None, problem))
             notes.append(FitWarning("failed_candidate", f"{label} left out: {problem}"))
@@ -122,7 +123,7 @@ def _direct_fit(
         tuple(caught),
         forecast_check=check,
     )
-    if not converged or not math.isfinite(estimate.llf) or _implausible(estimate, values, period):
+    if not converged or not math.isfinite(estimate.llf) or _implausible(estimate, values):
         return None
     fitted = EtsFitted(
         specification=spec,
@@ -188,17 +189,10 @@ def _failed(reason: str) -> _Estimate:
     return _Estimate({}, (), math.nan, math.nan, "none", failure=reason)
 
 
-def _implausible(estimate: _Estimate, values: np.ndarray, period: int) -> str | None:
-    """A forecast that is non-finite or leaves a wide band around the history (trap 8)."""
+def _implausible(estimate: _Estimate, values: np.ndarray) -> str | None:
+    """A forecast that is non-finite or leaves the plausible band around the history (trap 8)."""
     check = estimate.forecast_check
-    if check is None:
-        return None
-    if not np.all(np.isfinite(check)):
-        return "its forecast is not finite"
-    spread = float(values.max() - values.min()) or abs(float(values.mean())) or 1.0
-    if check.min() < values.min() - 3 * spread or check.max() > values.max() + 3 * spread:
-        return "its forecast explodes beyond any plausible range of the history"
-    return None
+    return None if check is None else point_implausible(check, values)
 
 
 def _smoothing_of(result: ETSResults) -> dict[str, float]:
