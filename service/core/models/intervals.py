@@ -4,9 +4,10 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 
 @dataclass(frozen=True)
@@ -18,9 +19,13 @@ class Interval:
     upper: np.ndarray
 
 
+@lru_cache(maxsize=64)
 def normal_quantile(coverage: float) -> float:
-    """The two-sided standard-normal multiplier for a central interval (1.959964 for 0.95)."""
-    return float(stats.norm.ppf(0.5 + coverage / 2.0))
+    """The two-sided standard-normal multiplier for a central interval (1.959964 for 0.95).
+
+    ``special.ndtri`` is what ``stats.norm.ppf`` computes (the same bits) without the
+    distribution machinery's ~90 µs per call; an automatic forecast asks for it ~300 times."""
+    return float(special.ndtri(0.5 + coverage / 2.0))
 
 
 def normal_intervals(

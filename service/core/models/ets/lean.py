@@ -13,6 +13,8 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 from statsmodels.tsa.exponential_smoothing.ets import ETSModel, ETSResults, ETSResultsWrapper
 
+from service.core.models.ets.gradient import ForwardDifferenceFit
+
 if TYPE_CHECKING:
     from service.core.models.ets.family import EtsSpec
 
@@ -33,7 +35,7 @@ class _LeanResults(ETSResults):  # type: ignore[misc]
         return np.full((k, k), np.nan)
 
 
-class LeanEtsModel(ETSModel):  # type: ignore[misc]
+class LeanEtsModel(ETSModel, ForwardDifferenceFit):  # type: ignore[misc]
     """ETSModel with lean results and a cheaper likelihood evaluation for the optimiser.
 
     ``_loglike_internal`` is statsmodels' own with the generic wrappers taken out of the hot

@@ -1,0 +1,147 @@
+"""Model "auto" against a user's full ETS sweep by AICc, alternated in one process.
+
+Run: python -m tests.benchmarks.auto_sweep [--rounds 7]
+
+The issue-16 targets: auto's median <= 0.5 s per 200-point monthly series on an idle machine,
+and <= 0.3 x the sweep measured in the same run. "auto" is what a pool worker runs for model
+"auto" (``service.runtime.jobs.forecast`` on the task the API builds from the request body of
+``tests.benchmarks.service.auto_body``); every round uses a distinct last value, so nothing is
+reused between rounds. The sweep is what a user would write with statsmodels alone:
+``ETSModel(...).fit()`` with its defaults over the 15 admissible error / trend / damping /
+season combinations (no multiplicative trend, no additive error with a multiplicative season),
+m = 12, the lowest AICc kept. One BLAS thread, as in the pool's workers. The rounds alternate
+auto and sweep, so load from other jobs falls on both; the load average is printed beside the
+figures. After the rounds, auto's stages (diagnostics, then select's own laps) are the medians
+of a few direct ``diagnose`` + ``select`` calls on the same series.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import time
+import warnings
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from threadpoolctl import threadpool_limits
+
+PERIOD = 12
+COMBINATIONS = tuple(
+    (error, trend, damped, season)
+    for error in ("add", "mul")
+    for trend, damped in ((None, False), ("add", False), ("add", True))
+    for season in (None, "add", "mul")
+    if not (error == "add" and season == "mul")
+)
+
+
+def load_text() -> str:
+    """The 1, 5 and 15 minute load averages."""
+    return "load average " + " ".join(f"{v:.2f}" for v in os.getloadavg())
+
+
+def sweep(y: pd.Series) -> tuple[float, str]:
+    """Seconds of a full ETS sweep by AICc with statsmodels' defaults, and its winner."""
+    from statsmodels.tsa.exponential_smoothing.ets import ETSModel
+
+    start = time.perf_counter()
+    best = (np.inf, "")
+    for error, trend, damped, season in COMBINATIONS:
+        model = ETSModel(
+            y,
+            error=error,
+            trend=trend,
+            damped_trend=damped,
+            seasonal=season,
+            seasonal_periods=PERIOD if season else None,
+        )
+        result = model.fit(disp=False)
+        if result.aicc < best[0]:
+            best = (float(result.aicc), f"{error} {trend} {damped} {season}")
+    return time.perf_counter() - start, best[1]
+
+
+def auto_task(salt: float) -> Any:
+    """The task a pool worker gets for the benchmark's auto request body."""
+    from service.api.schemas.forecasts import ForecastRequest
+    from service.api.tasks import forecast_task
+    from service.config import Settings
+    from tests.benchmarks.service import auto_body
+
+    return forecast_task(ForecastRequest.model_validate(auto_body(salt)), Settings())[0]
+
+
+def auto_seconds(task: Any) -> tuple[float, str]:
+    """Seconds of what a worker runs for model "auto", and the delivered label."""
+    from service.runtime import jobs
+
+    start = time.perf_counter()
+    answer = jobs.forecast(task)
+    return time.perf_counter() - start, answer.description.label
+
+
+def stages(y: pd.Series, repeats: int = 3) -> dict[str, float]:
+    """Median seconds per stage of diagnose + select on ``y``."""
+    from service.core.diagnostics.report import diagnose
+    from service.core.selection.auto import select
+    from tests.benchmarks.selection_speed import HORIZON, LEVELS
+
+    laps: list[dict[str, float]] = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        report = diagnose(y, PERIOD)
+        diagnostics = time.perf_counter() - start
+        result = select(y, PERIOD, HORIZON, LEVELS, diagnostics=report)
+        laps.append({"diagnostics": diagnostics, **result.seconds})
+    return {name: float(np.median([lap[name] for lap in laps])) for name in laps[0]}
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--rounds", type=int, default=7, help="alternated rounds (default 7)")
+    args = parser.parse_args()
+    import service.runtime.jobs  # noqa: F401  (what the fork server preloads)
+    from tests.benchmarks.selection_speed import series
+
+    threadpool_limits(1)
+    warnings.simplefilter("ignore")
+    y = series()
+    print(f"before: {load_text()}")
+    auto_seconds(auto_task(-1.0))  # first call in the process: outside the timing
+    sweep(y)
+    auto_times: list[float] = []
+    sweep_times: list[float] = []
+    for i in range(args.rounds):
+        task = auto_task(1.0 + i)
+        seconds, label = auto_seconds(task)
+        auto_times.append(seconds)
+        seconds, winner = sweep(y)
+        sweep_times.append(seconds)
+    auto_median = float(np.median(auto_times))
+    sweep_median = float(np.median(sweep_times))
+    ratios = [a / s for a, s in zip(auto_times, sweep_times, strict=True)]
+    print(f"after the rounds: {load_text()}; {args.rounds} alternated rounds, one BLAS thread")
+    print(
+        f"auto (worker job), 200 monthly points, h 24: median {auto_median:.3f} s "
+        f"(min {min(auto_times):.3f}, max {max(auto_times):.3f}); delivered {label}"
+    )
+    print(
+        f"full ETS sweep by AICc (15 fits): median {sweep_median:.3f} s "
+        f"(min {min(sweep_times):.3f}, max {max(sweep_times):.3f}); AICc winner {winner}"
+    )
+    print(
+        f"auto / sweep: ratio of medians {auto_median / sweep_median:.2f}, median of the "
+        f"per-round ratios {float(np.median(ratios)):.2f} (target <= 0.3; auto <= 0.5 s idle)"
+    )
+    laps = stages(y)
+    print(
+        "auto's stages (median of 3 diagnose + select calls): "
+        + ", ".join(f"{name} {value:.3f} s" for name, value in laps.items())
+    )
+    print(f"end: {load_text()}")
+
+
+if __name__ == "__main__":
+    main()
