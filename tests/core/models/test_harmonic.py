@@ -158,3 +158,27 @@ def test_too_short_for_a_period_names_it() -> None:
     with pytest.raises(FitError) as caught:
         HarmonicSpec(periods=(24.0, 168.0)).fit(y)
     assert caught.value.problems[0].field == "model.periods[1]"
+
+
+@pytest.mark.parametrize("periods", [(24.0, 168.0), (24.0,)])
+def test_refilter_onto_a_longer_history_forecasts_as_a_whole_new_filter(
+    periods: tuple[float, ...],
+) -> None:
+    # A later backtest origin continues the fitted state over the new points only; the
+    # forecasts must match a filter run over the whole longer history from the start.
+    y = hourly_counts(weeks=5, extra=100)
+    fitted = HarmonicSpec(periods=periods).fit(y.iloc[:700])
+    for end in (700, 724, 800, len(y)):
+        continued = fitted.refilter(y.iloc[:end])
+        whole = fitted.refilter(y.iloc[:end])
+        whole._earlier = None  # what an unpickled copy does: the whole history filtered
+        ours, theirs = continued.forecast(48, [0.8, 0.95]), whole.forecast(48, [0.8, 0.95])
+        np.testing.assert_allclose(ours.point, theirs.point, rtol=1e-8, atol=1e-8)
+        for a, b in zip(ours.intervals, theirs.intervals, strict=True):
+            np.testing.assert_allclose(a.lower, b.lower, rtol=1e-8, atol=1e-8)
+            np.testing.assert_allclose(a.upper, b.upper, rtol=1e-8, atol=1e-8)
+    assert fitted.refilter(y)._earlier is fitted
+    assert fitted.refilter(y.iloc[:500])._earlier is None  # shorter: filtered whole
+    changed = y.copy()
+    changed.iloc[10] += 1.0
+    assert fitted.refilter(changed)._earlier is None  # another past: filtered whole

@@ -28,7 +28,12 @@ if TYPE_CHECKING:
 
 @dataclass
 class HarmonicFitted:
-    """The chosen terms, the error model and the coefficients; SARIMAX is rebuilt on demand."""
+    """The chosen terms, the error model and the coefficients; SARIMAX is rebuilt on demand.
+
+    A refilter onto a history that continues this one (a backtest's later origin) forecasts
+    from this model's filtered state, extended over the new points only (statsmodels'
+    ``extend``), instead of filtering the whole history again: the Kalman filter is recursive,
+    so the forecasts agree to rounding (tests/core/models/test_harmonic.py)."""
 
     specification: HarmonicSpec
     y: pd.Series
@@ -39,6 +44,9 @@ class HarmonicFitted:
     warnings: list[FitWarning] = field(default_factory=list)
     origin: pd.Timestamp | None = None
     _filtered: Any = field(default=None, repr=False, compare=False)
+    _extended: Any = field(default=None, repr=False, compare=False)
+    _earlier: HarmonicFitted | None = field(default=None, repr=False, compare=False)
+    """The model this one was refiltered from, when this history continues its history."""
 
     def __post_init__(self) -> None:
         if self.origin is None:
@@ -46,7 +54,7 @@ class HarmonicFitted:
 
     def __getstate__(self) -> dict[str, Any]:
         state = dict(self.__dict__)
-        state["_filtered"] = None
+        state["_filtered"] = state["_extended"] = state["_earlier"] = None
         return state
 
     def _positions(self, index: pd.DatetimeIndex) -> np.ndarray:
@@ -76,6 +84,24 @@ class HarmonicFitted:
                 self._filtered = model.filter(params, cov_type="none")
         return self._filtered
 
+    def _state_at_end(self) -> Any:
+        """Filter results ending at the last observation, for forecasting: the earlier model's
+        extended over the new points when there is one, else the whole history's."""
+        earlier = self._earlier
+        if self._filtered is not None or earlier is None:
+            return self._results()
+        if self._extended is None:
+            start = len(earlier.y)
+            if start == len(self.y):
+                return earlier._state_at_end()
+            tail = self.y.iloc[start:]
+            with warnings.catch_warnings(record=True):
+                warnings.simplefilter("always")
+                self._extended = earlier._state_at_end().extend(
+                    tail.to_numpy(dtype=float), exog=self._design(tail.index)
+                )
+        return self._extended
+
     def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast:
         """Fourier terms continued, ARIMA errors forecast; Gaussian intervals."""
         h = check_positive_int(horizon, "horizon")
@@ -83,7 +109,7 @@ class HarmonicFitted:
         index = future_index(self.y.index, h)
         with warnings.catch_warnings(record=True):
             warnings.simplefilter("always")
-            prediction = self._results().get_forecast(h, exog=self._design(index))
+            prediction = self._state_at_end().get_forecast(h, exog=self._design(index))
             point = np.asarray(prediction.predicted_mean, dtype=float)
             sd = np.sqrt(np.asarray(prediction.var_pred_mean, dtype=float))
         if not (np.all(np.isfinite(point)) and np.all(np.isfinite(sd))):
@@ -104,9 +130,12 @@ class HarmonicFitted:
     def refilter(self, y: pd.Series) -> HarmonicFitted:
         """The same terms and parameters on another history (positions kept from the origin)."""
         check_series(y)
-        return HarmonicFitted(
+        out = HarmonicFitted(
             self.specification, y, self.terms, self.errors, self.coefficients, 0.0, [], self.origin
         )
+        if continues(self.y, y):
+            out._earlier = self
+        return out
 
     def describe(self) -> Description:
         """Label with periods, harmonics and error orders; coefficients by name; AIC/AICc/BIC."""
@@ -142,6 +171,20 @@ class HarmonicFitted:
             observations=n,
             fit_seconds=self.fit_seconds,
         )
+
+
+def continues(earlier: pd.Series, later: pd.Series) -> bool:
+    """Whether ``later`` is ``earlier`` with (possibly zero) points appended."""
+    n = len(earlier)
+    if n == 0 or len(later) < n or later.index.freq != earlier.index.freq:
+        return False
+    if later.index[0] != earlier.index[0] or later.index[n - 1] != earlier.index[-1]:
+        return False
+    return bool(
+        np.array_equal(
+            later.to_numpy(dtype=float)[:n], earlier.to_numpy(dtype=float), equal_nan=True
+        )
+    )
 
 
 def steps_from(origin: pd.Timestamp, index: pd.DatetimeIndex) -> np.ndarray:
