@@ -7,17 +7,18 @@ import dataclasses
 from typing import Any
 
 from service.api.render import plain, warnings_body
-from service.core.applicability import NotApplicable
+from service.core.applicability import NotApplicable, plain_float
+from service.core.diagnostics import symmetric_test
 from service.core.diagnostics.autocorrelation import BAND_NOTE, Correlogram
 from service.core.diagnostics.cycles import MATTERS, SeveralPeriods
 from service.core.diagnostics.differencing import SEASONAL_RULE, DifferencingOrders
 from service.core.diagnostics.differencing import label as difference_label
 from service.core.diagnostics.random_walk import RULE as RANDOM_WALK_RULE
-from service.core.diagnostics.random_walk import RandomWalkVerdict
+from service.core.diagnostics.random_walk import RandomWalkEvidence, RandomWalkVerdict
 from service.core.diagnostics.seasonality import OUTLIER_RULE, Outliers
 from service.core.diagnostics.sections import Diagnostics, Seasonality
 from service.core.diagnostics.stationarity import VERDICT_RULE, HypothesisTest, Stationarity
-from service.core.diagnostics.unit_root import PROCEDURE, UnitRootDecision, power_evidence
+from service.core.diagnostics.unit_root import PROCEDURE, UnitRootDecision
 from service.core.models.base import FitWarning
 
 STRENGTH_RULE = "max(0, 1 - Var(R)/Var(C + R)), Wang, Smith & Hyndman (2006)"
@@ -132,10 +133,46 @@ def _random_walk(v: RandomWalkVerdict | NotApplicable) -> dict[str, Any]:
         "reason": v.reason,
         "rule": RANDOM_WALK_RULE,
         "tolerated_lags": v.tolerated_lags,
-        "evidence": (
-            v.evidence
-            if v.decision is None
-            else {**v.evidence, "unit_root": unit_root_procedure(v.decision)}
+        "evidence": _evidence(v.evidence, v.decision),
+    }
+
+
+def _evidence(e: RandomWalkEvidence | None, decision: UnitRootDecision | None) -> dict[str, Any]:
+    """The tests a random-walk verdict rests on (none for a straight line)."""
+    if e is None:
+        return {}
+    out: dict[str, Any] = {
+        "observations": e.observations,
+        "ljung_box_differences": e.differences_white,
+        "mean_difference": e.mean_difference,
+    }
+    if e.seasonal is not None:
+        out["ljung_box_seasonal_differences"] = e.seasonal.white
+        out["mean_seasonal_difference"] = e.seasonal.drift
+        out["seasonal_lag_autocorrelation"] = e.seasonal.seasonal_lag_autocorrelation
+    if decision is not None:
+        out["unit_root"] = unit_root_procedure(decision)
+    return out
+
+
+def power_evidence(decision: UnitRootDecision) -> dict[str, Any]:
+    """What this length can tell apart from a random walk, as numbers with their source."""
+    terms, n = decision.terms, decision.observations
+    phi = decision.distinguishable_coefficient
+    return {
+        "observations": n,
+        "smallest_distinguishable_root": plain_float(1.0 / phi) if phi > 0 else None,
+        "largest_distinguishable_coefficient": plain_float(phi),
+        "half_life_steps": plain_float(symmetric_test.half_life(phi)),
+        "definition": (
+            "a stationary AR(1) series with a coefficient at or below this value (its root "
+            "1/coefficient at or above the root given) is told apart from a random walk at least "
+            f"4 times in 5 by the test at {symmetric_test.POWER_LEVEL[terms] * 100:g} %"
+        ),
+        "source": (
+            "seeded simulation in service/core/diagnostics/symmetric_test.py "
+            f"(seed {symmetric_test.SEED}, {symmetric_test.POWER_REPLICATIONS} series per length, "
+            "interpolated in log length)"
         ),
     }
 

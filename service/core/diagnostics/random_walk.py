@@ -20,8 +20,7 @@ one to beat whenever the verdict is one of the first three.
 from __future__ import annotations
 
 import math
-from dataclasses import asdict, dataclass, replace
-from typing import Any
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -59,6 +58,65 @@ RULE = (
 GRADES = ("random_walk", "behaves_like_random_walk", "seasonal_random_walk", "not_random_walk")
 
 
+OVERDIFFERENCED_Z = 2.575829
+"""Two-sided 1 % normal quantile: a lag-m autocorrelation of the seasonal differences below
+-2.576/√n marks a stable season differenced once too often (the pure case gives -0.5)."""
+
+
+STRICT_OVERDIFFERENCED_Z = 1.644854
+"""One-sided 5 % normal quantile, used when the level already looks stationary."""
+
+
+@dataclass(frozen=True)
+class MeanTest:
+    """One-sample t-test of the mean difference against zero (None where not finite)."""
+
+    mean: float | None
+    t_statistic: float | None
+    p_value: float | None
+    degrees_of_freedom: int
+
+    @property
+    def drifts(self) -> bool:
+        """Whether the mean difference is non-zero at the drift level."""
+        return self.p_value is not None and self.p_value < LEVEL_DRIFT
+
+
+@dataclass(frozen=True)
+class SeasonalCheck:
+    """Ljung-Box on the seasonal differences, their lag-m autocorrelation and their drift."""
+
+    white: LjungBox
+    seasonal_lag_autocorrelation: float
+    observations: int
+    drift: MeanTest
+
+    @property
+    def uncorrelated(self) -> bool:
+        """Seasonal differences like white noise: Ljung-Box at 1 % does not reject, and the
+        lag-m autocorrelation is not the negative one of a stable season differenced away."""
+        floor = -OVERDIFFERENCED_Z / math.sqrt(self.observations)
+        return self.white.p_value >= LEVEL_WHITE and self.seasonal_lag_autocorrelation >= floor
+
+    @property
+    def clearly_not_overdifferenced(self) -> bool:
+        """The lag-m autocorrelation is not negative at 5 % one-sided: the stronger evidence
+        asked of a series whose level the unit-root procedure found stationary."""
+        floor = -STRICT_OVERDIFFERENCED_Z / math.sqrt(self.observations)
+        return self.seasonal_lag_autocorrelation >= floor
+
+
+@dataclass(frozen=True)
+class RandomWalkEvidence:
+    """The tests a verdict rests on: whiteness and mean of the first differences, and the
+    seasonal-difference check when one was made."""
+
+    observations: int
+    differences_white: LjungBox
+    mean_difference: MeanTest
+    seasonal: SeasonalCheck | None
+
+
 @dataclass(frozen=True)
 class RandomWalkVerdict:
     """The graded verdict, the forecast to beat, the evidence and a plain reason."""
@@ -67,7 +125,8 @@ class RandomWalkVerdict:
     with_drift: bool
     differences: int | None
     reason: str
-    evidence: dict[str, Any]
+    evidence: RandomWalkEvidence | None
+    """None for a straight line, which needs no test."""
     tolerated_lags: tuple[int, ...]
     decision: UnitRootDecision | None = None
     """The unit-root decision the verdict read (None for a straight line)."""
@@ -90,39 +149,6 @@ class RandomWalkVerdict:
         if self.is_random_walk:
             return "drift" if self.with_drift else "naive"
         return None
-
-
-OVERDIFFERENCED_Z = 2.575829
-"""Two-sided 1 % normal quantile: a lag-m autocorrelation of the seasonal differences below
--2.576/√n marks a stable season differenced once too often (the pure case gives -0.5)."""
-
-
-STRICT_OVERDIFFERENCED_Z = 1.644854
-"""One-sided 5 % normal quantile, used when the level already looks stationary."""
-
-
-@dataclass(frozen=True)
-class SeasonalCheck:
-    """Ljung-Box on the seasonal differences, their lag-m autocorrelation and their drift."""
-
-    white: LjungBox
-    seasonal_lag_autocorrelation: float
-    observations: int
-    drift: dict[str, Any]
-
-    @property
-    def uncorrelated(self) -> bool:
-        """Seasonal differences like white noise: Ljung-Box at 1 % does not reject, and the
-        lag-m autocorrelation is not the negative one of a stable season differenced away."""
-        floor = -OVERDIFFERENCED_Z / math.sqrt(self.observations)
-        return self.white.p_value >= LEVEL_WHITE and self.seasonal_lag_autocorrelation >= floor
-
-    @property
-    def clearly_not_overdifferenced(self) -> bool:
-        """The lag-m autocorrelation is not negative at 5 % one-sided: the stronger evidence
-        asked of a series whose level the unit-root procedure found stationary."""
-        floor = -STRICT_OVERDIFFERENCED_Z / math.sqrt(self.observations)
-        return self.seasonal_lag_autocorrelation >= floor
 
 
 def seasonal_check(x: np.ndarray, seasonal_period: int) -> SeasonalCheck | None:
@@ -161,7 +187,7 @@ def judge(
             False,
             None,
             "The series is a straight line: every step is the same, so it is not a random walk.",
-            {},
+            None,
             (),
         )
     if isinstance(decision, NotApplicable):
@@ -176,17 +202,8 @@ def _judged(
     seasonal: SeasonalCheck | None,
 ) -> RandomWalkVerdict:
     steps = np.diff(x)
-    evidence: dict[str, Any] = {
-        "observations": int(x.size),
-        "ljung_box_differences": asdict(decision.differences_white),
-        "mean_difference": _drift(steps),
-    }
+    evidence = RandomWalkEvidence(int(x.size), decision.differences_white, _drift(steps), seasonal)
     if seasonal is not None:
-        evidence["ljung_box_seasonal_differences"] = asdict(seasonal.white)
-        evidence["mean_seasonal_difference"] = seasonal.drift
-        evidence["seasonal_lag_autocorrelation"] = plain_float(
-            seasonal.seasonal_lag_autocorrelation
-        )
         stationary_level = not decision.unit_root
         if (
             seasonal.uncorrelated
@@ -216,7 +233,7 @@ def _judged(
 
 
 def _graded(
-    decision: UnitRootDecision, drift: bool, evidence: dict[str, Any], lags: tuple[int, ...]
+    decision: UnitRootDecision, drift: bool, evidence: RandomWalkEvidence, lags: tuple[int, ...]
 ) -> RandomWalkVerdict:
     n = decision.observations
     phi = decision.distinguishable_coefficient
@@ -267,8 +284,8 @@ def _steps(half_life: float | None) -> str:
     return f"{rounded} step{'s' if rounded > 1 else ''}"
 
 
-def _seasonal(check: SeasonalCheck, m: int, evidence: dict[str, Any]) -> RandomWalkVerdict:
-    drift = bool(check.drift["p_value"] is not None and check.drift["p_value"] < LEVEL_DRIFT)
+def _seasonal(check: SeasonalCheck, m: int, evidence: RandomWalkEvidence) -> RandomWalkVerdict:
+    drift = check.drift.drifts
     extra = ", moved on by the average yearly change," if drift else ""
     reason = (
         f"Each value is the value one season ({m} steps) earlier plus independent noise: "
@@ -278,18 +295,12 @@ def _seasonal(check: SeasonalCheck, m: int, evidence: dict[str, Any]) -> RandomW
     return RandomWalkVerdict("seasonal_random_walk", drift, 0, reason, evidence, ())
 
 
-def _plain(value: Any) -> Any:
-    if isinstance(value, dict):
-        return {k: _plain(v) for k, v in value.items()}
-    return plain_float(value) if isinstance(value, float) else value
-
-
-def _drift(steps: np.ndarray) -> dict[str, Any]:
+def _drift(steps: np.ndarray) -> MeanTest:
     """One-sample t-test of the mean difference against zero."""
     statistic, p_value = mean_test(steps)
-    return {
-        "mean": plain_float(float(np.mean(steps))),
-        "t_statistic": plain_float(statistic),
-        "p_value": plain_float(p_value),
-        "degrees_of_freedom": int(steps.size - 1),
-    }
+    return MeanTest(
+        plain_float(float(np.mean(steps))),
+        plain_float(statistic),
+        plain_float(p_value),
+        int(steps.size - 1),
+    )

@@ -27,12 +27,12 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Any, Literal
+from typing import Literal
 
 import numpy as np
 from scipy import special
 
-from service.core.applicability import NotApplicable, plain_float
+from service.core.applicability import NotApplicable
 from service.core.diagnostics import symmetric_test
 from service.core.diagnostics.autocorrelation import (
     LjungBox,
@@ -114,28 +114,6 @@ class UnitRootDecision:
         if self.unit_root:
             return "difference_stationary"
         return "trend_stationary" if self.trending else "stationary"
-
-
-def power_evidence(decision: UnitRootDecision) -> dict[str, Any]:
-    """What this length can tell apart from a random walk, as numbers with their source."""
-    terms, n = decision.terms, decision.observations
-    phi = decision.distinguishable_coefficient
-    return {
-        "observations": n,
-        "smallest_distinguishable_root": plain_float(1.0 / phi) if phi > 0 else None,
-        "largest_distinguishable_coefficient": plain_float(phi),
-        "half_life_steps": plain_float(symmetric_test.half_life(phi)),
-        "definition": (
-            "a stationary AR(1) series with a coefficient at or below this value (its root "
-            "1/coefficient at or above the root given) is told apart from a random walk at least "
-            f"4 times in 5 by the test at {_percent(symmetric_test.POWER_LEVEL[terms])}"
-        ),
-        "source": (
-            "seeded simulation in service/core/diagnostics/symmetric_test.py "
-            f"(seed {symmetric_test.SEED}, {symmetric_test.POWER_REPLICATIONS} series per length, "
-            "interpolated in log length)"
-        ),
-    }
 
 
 def _percent(level: float) -> str:

@@ -13,7 +13,6 @@ from service.core.diagnostics.random_walk import (
     RandomWalkVerdict,
     random_walk,
 )
-from service.core.diagnostics.unit_root import power_evidence
 
 SEEDS = range(30)
 Maker = Callable[[np.random.Generator, int], np.ndarray]
@@ -52,7 +51,7 @@ def test_random_walks_with_drift_are_found_with_their_drift() -> None:
     verdicts = _verdicts(lambda rng, n: np.cumsum(0.5 + rng.normal(size=n)))
     hits = [v for v in verdicts if v.is_random_walk and v.with_drift]
     assert len(hits) >= 0.85 * len(verdicts)
-    assert all(v.evidence["mean_difference"]["p_value"] < 0.05 for v in hits)
+    assert all(v.evidence is not None and v.evidence.mean_difference.drifts for v in hits)
     assert {v.forecast_to_beat for v in hits} == {"drift"}
 
 
@@ -79,9 +78,9 @@ def test_the_grade_follows_the_power_of_the_length() -> None:
     assert {v.grade for v in short} == {"behaves_like_random_walk"}
     assert {v.grade for v in long} == {"random_walk"}
     assert short[0].decision is not None
-    power = power_evidence(short[0].decision)
-    assert 0.8 < power["largest_distinguishable_coefficient"] < 0.9
-    assert power["smallest_distinguishable_root"] > 1.1
+    phi = short[0].decision.distinguishable_coefficient
+    assert 0.8 < phi < 0.9
+    assert 1.0 / phi > 1.1
     assert "cannot tell" in short[0].reason and "100 points" in short[0].reason
     assert "5 steps or more" in short[0].reason  # the half-life of AR(1) 0.857
 
