@@ -18,6 +18,9 @@ from typing import Any
 # The environment variable naming a Dask scheduler when no address is given on the command line.
 SCHEDULER_VARIABLE = "WINDVANE_DASK_SCHEDULER"
 CONNECT_SECONDS = 30
+# Items handed to the loky pool ahead of the free workers: enough that a worker finishing a
+# series finds the next one queued, few enough that the parent holds little in memory.
+AHEAD = 4
 
 
 def scheduler_address(given: str | None) -> str | None:
@@ -42,17 +45,28 @@ def fan_out(
     return _on_loky(fn, items, workers)
 
 
+def local_pool(workers: int) -> Any:
+    """joblib's configuration of the local loky pool: ``workers`` processes, one BLAS thread
+    each. joblib keeps the processes between calls made under the same configuration, so a
+    caller can start them (and import in them) before the work, as the batch benchmark does."""
+    from joblib import parallel_config
+
+    return parallel_config(backend="loky", n_jobs=workers, inner_max_num_threads=1)
+
+
 def _on_loky(
     fn: Callable[..., Any], items: Iterable[tuple[Any, ...]], workers: int
 ) -> Iterator[Any]:
-    from joblib import Parallel, delayed, parallel_config
+    from joblib import Parallel, delayed
 
     if workers <= 1:
         for item in items:
             yield fn(*item)
         return
-    with parallel_config(backend="loky", n_jobs=workers, inner_max_num_threads=1):
-        run = Parallel(return_as="generator_unordered", pre_dispatch="4*n_jobs", batch_size=1)
+    with local_pool(workers):
+        run = Parallel(
+            return_as="generator_unordered", pre_dispatch=f"{AHEAD}*n_jobs", batch_size=1
+        )
         yield from run(delayed(fn)(*item) for item in items)
 
 
@@ -74,7 +88,7 @@ def _on_dask(
             submitted[future.key] = item
             return future
 
-        running = as_completed([submit(item) for item in islice(pending, 4 * threads)])
+        running = as_completed([submit(item) for item in islice(pending, AHEAD * threads)])
         for future in running:
             item = submitted.pop(future.key)
             try:

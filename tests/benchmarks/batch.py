@@ -1,24 +1,34 @@
 """Batch throughput: series per second with 1 and 2 loky workers and on a 2-worker Dask
 LocalCluster, resident memory per worker over the run, and the time to the first NDJSON line
-of POST /v1/forecast-batches on a live server; all in one run, printed as ratios.
+of POST /v1/forecast-batches on a live server; printed as ratios with the load average.
 
-    python -m tests.benchmarks.batch               # 60 series (a few minutes on 2 cores)
-    python -m tests.benchmarks.batch --series 2000 # the issue's size
+    python -m tests.benchmarks.batch                  # 40 series, every configuration
+    python -m tests.benchmarks.batch --series 2000    # the issue's size
+    python -m tests.benchmarks.batch --series 20 --only local1,local2
 
 Seeded 120-point monthly series, `auto`, horizon 12, cache off (every series is computed).
+Each configuration first starts its workers and imports the job's modules in all of them
+at once (`warm_up`, timed as "start-up", with the LocalCluster's own start); "run" is the
+series from then on, so the 2/1 scaling compares the work and the start-up is a figure of
+its own (the end-to-end rates include it). Resident memory is sampled per worker every
+--sample-seconds by a thread of this process (psutil), and the rule is printed with the
+verdict. The CPU seconds per series project the duration of a larger run on an idle machine.
 """
 
 from __future__ import annotations
 
 import argparse
+import importlib
 import json
 import os
 import statistics
 import sys
 import tempfile
+import threading
 import time
-from collections import defaultdict
 from collections.abc import Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -27,9 +37,18 @@ import pandas as pd
 
 from service.api.batch_items import answer_entry
 from service.config import Settings
-from service.runtime.fanout import fan_out
+from service.runtime.fanout import CONNECT_SECONDS, fan_out, local_pool
 
 HORIZON = 12
+CONFIGURATIONS = ("local1", "local2", "cluster", "stream")
+# Memory rule: a worker is flat when the median resident size over the last quarter of the
+# run is at most FLAT_GROWTH times the median over its first quarter, once the first tenth
+# of the run (the first fits' allocations) is left out.
+FLAT_GROWTH = 1.10
+SETTLING_SHARE = 0.1
+# Every loky worker's warm-up call lasts at least this long, so no worker takes two of them
+# while another is still starting.
+WARM_HOLD_SECONDS = 0.5
 
 
 def requests(count: int, points: int, seed: int = 2026) -> list[dict[str, Any]]:
@@ -53,110 +72,303 @@ def requests(count: int, points: int, seed: int = 2026) -> list[dict[str, Any]]:
     return out
 
 
-def measured(raw: dict[str, Any], index: int, settings: Settings) -> tuple[int, int, int]:
-    """The batch job, plus which process ran it and its resident memory afterwards."""
-    import psutil
+def long_table(items: list[dict[str, Any]]) -> pd.DataFrame:
+    """The same series as a long table (series_id, timestamp, value) for `windvane batch`."""
+    frames = []
+    for item in items:
+        series = item["series"]
+        stamps = pd.date_range(series["start"], periods=len(series["values"]), freq="MS")
+        frames.append(
+            pd.DataFrame(
+                {
+                    "series_id": item["id"],
+                    "timestamp": stamps.strftime("%Y-%m-%d"),
+                    "value": series["values"],
+                }
+            )
+        )
+    return pd.concat(frames, ignore_index=True)
 
+
+def measured(raw: dict[str, Any], index: int, settings: Settings) -> tuple[int, float]:
+    """The batch job, plus the CPU seconds it took in whichever process ran it."""
+    started = time.process_time()
     found = answer_entry(raw, index, settings)
-    return found["status"], os.getpid(), int(psutil.Process().memory_info().rss)
+    return found["status"], time.process_time() - started
 
 
-def timed_run(
-    items: list[dict[str, Any]], settings: Settings, **where: Any
-) -> tuple[float, dict[int, list[int]], int]:
-    """Seconds for the whole run, resident bytes per worker in completion order, failures."""
-    memory: dict[int, list[int]] = defaultdict(list)
-    failed = 0
+def warm_up(workers: int, scheduler: str | None) -> list[int]:
+    """Start the worker processes and import this module (the whole statistics stack) in
+    every one at once; their process ids (this process's own for one local worker)."""
+    if scheduler:
+        from distributed import Client
+
+        with Client(scheduler, timeout=CONNECT_SECONDS) as client:
+            return sorted(int(pid) for pid in client.run(imported, 0.0).values())
+    if workers <= 1:
+        return [imported(0.0)]
+    from joblib import Parallel, delayed
+
+    seen: set[int] = set()
+    for _ in range(3):  # one call per worker; a worker that took two left another cold
+        with local_pool(workers):
+            seen.update(Parallel(batch_size=1)(
+                delayed(imported)(WARM_HOLD_SECONDS) for _ in range(workers)))  # fmt: skip
+        if len(seen) >= workers:
+            break
+    return sorted(seen)
+
+
+def imported(hold: float) -> int:
+    """In a worker: BLAS pinned, the batch job's modules imported."""
+    from service.runtime.pool import pin_threads
+
     started = time.perf_counter()
+    pin_threads()
+    importlib.import_module(answer_entry.__module__)
+    time.sleep(max(0.0, hold - (time.perf_counter() - started)))
+    return os.getpid()
+
+
+class Sampler(threading.Thread):
+    """Resident bytes of each worker process every ``every`` seconds, with the time."""
+
+    def __init__(self, pids: list[int], every: float) -> None:
+        import psutil
+
+        super().__init__(daemon=True)
+        self.processes = {pid: psutil.Process(pid) for pid in pids}
+        self.every = every
+        self.samples: dict[int, list[tuple[float, int]]] = {pid: [] for pid in pids}
+        self.halt = threading.Event()
+
+    def sample(self) -> None:
+        now = time.perf_counter()
+        for pid, process in self.processes.items():
+            try:
+                self.samples[pid].append((now, int(process.memory_info().rss)))
+            except Exception:  # a worker gone: its series say so
+                continue
+
+    def run(self) -> None:
+        self.sample()
+        while not self.halt.wait(self.every):
+            self.sample()
+
+    def stop(self) -> None:
+        self.halt.set()
+        self.join()
+        self.sample()
+
+
+def memory_verdict(samples: dict[int, list[tuple[float, int]]], start: float, end: float) -> str:
+    """Per worker: first -> last quarter medians after the settling tenth, and the verdict."""
+    settled = start + SETTLING_SHARE * (end - start)
+    quarter = (end - settled) / 4
+    parts, flat = [], True
+    for found in samples.values():
+        first = [b for t, b in found if settled <= t <= settled + quarter]
+        last = [b for t, b in found if t >= end - quarter]
+        if len(first) < 2 or len(last) < 2:
+            return f"too few samples ({len(found)} per worker) to tell; sample more often"
+        a, b = statistics.median(first), statistics.median(last)
+        peak = max(x for _, x in found)
+        flat = flat and b <= FLAT_GROWTH * a
+        parts.append(f"{a / 1e6:.0f} -> {b / 1e6:.0f} MB ({b / a:.2f}x, peak {peak / 1e6:.0f})")
+    verdict = "flat" if flat else "GROWING"
+    return f"{'; '.join(parts)}: {verdict} (rule: last/first quarter <= {FLAT_GROWTH:.2f})"
+
+
+@dataclass
+class Measured:
+    """One configuration's figures."""
+
+    name: str
+    workers: int
+    startup: float
+    seconds: float
+    cpu: float
+    series: int
+    failed: int
+    memory: str = field(default="")
+
+    @property
+    def rate(self) -> float:
+        return self.series / self.seconds
+
+    @property
+    def end_to_end(self) -> float:
+        return self.series / (self.startup + self.seconds)
+
+
+def measure(
+    name: str,
+    items: list[dict[str, Any]],
+    every: float,
+    workers: int,
+    scheduler: str | None = None,
+    before: float = 0.0,
+) -> Measured:
+    """Start and warm the workers, then time every series through ``fan_out``; ``before``:
+    seconds of start-up already spent (the LocalCluster's)."""
+    settings = Settings(cache="off")
+    started = time.perf_counter()
+    pids = warm_up(workers, scheduler)
+    startup = before + time.perf_counter() - started
+    sampler = Sampler(pids, every)
+    sampler.start()
     jobs = ((raw, i, settings) for i, raw in enumerate(items))
-    for status, pid, rss in fan_out(measured, jobs, **where):
-        memory[pid].append(rss)
+    failed, cpu = 0, 0.0
+    begin = time.perf_counter()
+    for status, seconds in fan_out(measured, jobs, workers=workers, scheduler=scheduler):
         failed += status != 200
-    return time.perf_counter() - started, memory, failed
+        cpu += seconds
+    end = time.perf_counter()
+    sampler.stop()
+    found = Measured(name, len(pids), startup, end - begin, cpu, len(items), failed)
+    found.memory = memory_verdict(sampler.samples, begin, end)
+    print(
+        f"{name}: start-up {startup:.1f} s ({len(pids)} worker(s)); {len(items)} series in "
+        f"{found.seconds:.1f} s = {found.rate:.2f} series/s ({found.end_to_end:.2f} with the "
+        f"start-up), CPU {cpu / len(items):.3f} s and wall {found.seconds / len(items):.3f} s "
+        f"per series, {failed} failed; load {load()}\n  memory per worker: {found.memory}",
+        flush=True,
+    )
+    return found
 
 
-def growth(memory: dict[int, list[int]]) -> str:
-    """Per worker: median RSS of its last quarter of jobs over its first quarter."""
-    parts = []
-    for samples in memory.values():
-        if len(samples) < 8:
-            continue
-        q = len(samples) // 4
-        first, last = statistics.median(samples[:q]), statistics.median(samples[-q:])
-        parts.append(f"{first / 1e6:.0f}->{last / 1e6:.0f} MB ({last / first:.2f}x)")
-    return ", ".join(parts) or "too few jobs per worker to tell"
+@contextmanager
+def cluster(workers: int) -> Iterator[tuple[str, float]]:
+    """A LocalCluster of single-threaded worker processes: its address, seconds to start."""
+    from distributed import LocalCluster
+
+    started = time.perf_counter()
+    with LocalCluster(
+        n_workers=workers,
+        threads_per_worker=1,
+        processes=True,
+        dashboard_address=":0",
+        host="127.0.0.1",
+    ) as local:
+        yield str(local.scheduler_address), time.perf_counter() - started
 
 
-def first_line_seconds(items: list[dict[str, Any]]) -> tuple[float, float]:
-    """A live server with 2 pool workers: seconds to the first NDJSON line and to the last."""
+def first_lines(items: list[dict[str, Any]], lines: int) -> tuple[float, float, int]:
+    """A live server with 2 pool workers, ready: seconds to the first NDJSON line and to the
+    last one read (``lines`` of them, then the stream is closed; 0: read to the end)."""
     import httpx
 
     sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-    from live_server import running
+    from live_server import running, wait_until
 
     os.environ["PYTHONPATH"] = str(Path(__file__).resolve().parents[2])
+    body = json.dumps({"requests": items}).encode()
     with tempfile.TemporaryDirectory() as directory:
         with running(Path(directory), pool_workers="2", cache="off") as server:
+            ready = server.url + "/readyz"
+            wait_until(lambda: httpx.get(ready, timeout=5).status_code == 200, "ready", 120)
             started = time.perf_counter()
             first = last = 0.0
+            read = 0
             with httpx.stream(
                 "POST",
                 server.url + "/v1/forecast-batches",
-                json={"requests": items},
-                headers={"accept": "application/x-ndjson"},
+                content=body,
+                headers={"accept": "application/x-ndjson", "content-type": "application/json"},
                 timeout=3600,
             ) as response:
                 for line in response.iter_lines():
                     if not line:
                         continue
+                    json.loads(line)
                     last = time.perf_counter() - started
                     first = first or last
-                    json.loads(line)
-    return first, last
+                    read += 1
+                    if read == lines:
+                        break
+    return first, last, read
 
 
-def cluster(workers: int) -> Iterator[str]:
-    """A LocalCluster of single-threaded worker processes (the scheduler's address)."""
-    from distributed import LocalCluster
+def load() -> str:
+    return "{:.2f} {:.2f} {:.2f}".format(*os.getloadavg())
 
-    with LocalCluster(
-        n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=":0"
-    ) as local:
-        yield str(local.scheduler_address)
+
+def projection(found: dict[str, Measured], count: int, stream_lines: int) -> str:
+    """Minutes a run of ``count`` series would take on an idle machine (CPU per series,
+    the work split over the workers, plus the start-ups measured)."""
+    total, parts = 0.0, []
+    for m in found.values():
+        seconds = m.startup + count * (m.cpu / m.series) / m.workers
+        total += seconds
+        parts.append(f"{m.name} {seconds / 60:.1f} min")
+    if stream_lines == 0 and found:
+        cpu = statistics.mean(m.cpu / m.series for m in found.values())
+        parts.append(f"stream to its end about {count * cpu / 2 / 60:.1f} min")
+        total += count * cpu / 2
+    return f"{', '.join(parts)}; total about {total / 60:.0f} min"
 
 
 def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__)
-    parser.add_argument("--series", type=int, default=60)
+    parser = argparse.ArgumentParser(
+        description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter
+    )
+    parser.add_argument("--series", type=int, default=40)
     parser.add_argument("--points", type=int, default=120)
-    parser.add_argument("--stream-series", type=int, default=40)
+    parser.add_argument(
+        "--only", default=",".join(CONFIGURATIONS), help=f"some of {','.join(CONFIGURATIONS)}"
+    )
+    parser.add_argument(
+        "--stream-series", type=int, default=None, help="series in the NDJSON batch (all)"
+    )
+    parser.add_argument(
+        "--stream-lines", type=int, default=20, help="lines read before closing (0: all)"
+    )
+    parser.add_argument("--sample-seconds", type=float, default=1.0)
+    parser.add_argument("--project", type=int, default=2000, help="series to project for")
+    parser.add_argument("--write-csv", default=None, help="write the series as a long CSV, stop")
     args = parser.parse_args()
+    chosen = [c.strip() for c in args.only.split(",") if c.strip()]
+    if unknown := set(chosen) - set(CONFIGURATIONS):
+        parser.error(f"--only: unknown {sorted(unknown)}")
     items = requests(args.series, args.points)
-    settings = Settings(cache="off")
+    if args.write_csv:
+        long_table(items).to_csv(args.write_csv, index=False)
+        return
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()
     print(f"{args.series} series x {args.points} points, auto, horizon {HORIZON}; cores seen "
-          f"{cores}; load average {os.getloadavg()[0]:.2f}")  # fmt: skip
-    rates: dict[str, float] = {}
-    for name, where in (("local 1 worker", {"workers": 1}), ("local 2 workers", {"workers": 2})):
-        seconds, memory, failed = timed_run(items, settings, **where)
-        rates[name] = args.series / seconds
-        print(f"{name}: {seconds:.1f} s, {rates[name]:.2f} series/s, {failed} failed; "
-              f"memory per worker {growth(memory)}; load {os.getloadavg()[0]:.2f}")  # fmt: skip
-    for address in cluster(2):
-        seconds, memory, failed = timed_run(items, settings, scheduler=address)
-        rates["cluster"] = args.series / seconds
-        print(f"LocalCluster 2 workers: {seconds:.1f} s, {rates['cluster']:.2f} series/s, "
-              f"{failed} failed; memory per worker {growth(memory)}; "
-              f"load {os.getloadavg()[0]:.2f}")  # fmt: skip
-    efficiency = rates["local 2 workers"] / rates["local 1 worker"]
-    per_worker = rates["cluster"] / rates["local 2 workers"]
-    print(f"scaling 2/1 local workers: {efficiency:.2f} (target >= 1.7 with two free cores)")
-    print(f"LocalCluster / local, per worker: {per_worker:.2f} (target within 0.8-1.2)")
-    first, last = first_line_seconds(items[: args.stream_series])
-    print(f"NDJSON over HTTP, {args.stream_series} series, 2 pool workers: first line "
-          f"{first:.2f} s (target < 5 s), last line {last:.1f} s; "
-          f"load {os.getloadavg()[0]:.2f}")  # fmt: skip
+          f"{cores}; load average {load()}; {time.strftime('%H:%M:%S')}", flush=True)  # fmt: skip
+    found: dict[str, Measured] = {}
+    if "local1" in chosen:
+        found["local1"] = measure("local 1 worker (this process)", items, args.sample_seconds, 1)
+    if "local2" in chosen:
+        found["local2"] = measure("local 2 loky workers", items, args.sample_seconds, 2)
+    if "cluster" in chosen:
+        with cluster(2) as (address, seconds):
+            found["cluster"] = measure("LocalCluster 2 workers", items, args.sample_seconds,
+                                       2, address, seconds)  # fmt: skip
+    if "local1" in found and "local2" in found:
+        one, two = found["local1"], found["local2"]
+        print(f"scaling 2/1 local workers: {two.rate / one.rate:.2f} over the run, "
+              f"{two.end_to_end / one.end_to_end:.2f} with the start-ups (target >= 1.7 where "
+              f"two cores are free; cores seen {cores}; load {load()})")  # fmt: skip
+    if "local2" in found and "cluster" in found:
+        ratio = found["cluster"].rate / found["local2"].rate
+        print(f"LocalCluster / local, per worker: {ratio:.2f} (target within 0.8-1.2)")
+    if "stream" in chosen:
+        stream = items[: args.stream_series] if args.stream_series else items
+        first, last, read = first_lines(stream, args.stream_lines)
+        print(f"NDJSON over HTTP, {len(stream)} series posted, 2 pool workers: first line "
+              f"{first:.2f} s (target < 5 s), line {read} at {last:.1f} s; "
+              f"load {load()}")  # fmt: skip
+    if found:
+        print(f"projected for --series {args.project} on an idle machine: "
+              f"{projection(found, args.project, args.stream_lines)}")  # fmt: skip
+    print(f"done {time.strftime('%H:%M:%S')}; load average {load()}")
 
 
 if __name__ == "__main__":
-    main()
+    # Run as the named module, so that the workers unpickle its functions by reference
+    # (importing it and the whole statistics stack) rather than by value from __main__.
+    from tests.benchmarks.batch import main as named
+
+    named()
