@@ -22,6 +22,8 @@ Rules (stated for DEVELOPERS.md):
 - Guards (guard.py): the naive (seasonal naive) forecast for a (seasonal) random walk without
   5 % skill over it; the benchmark mixed in when the chosen forecast does not beat it;
   ``no_skill_over_naive`` whenever the delivered skill is <= 0. Short series: short_series.py.
+- Plausibility (screening.py): a candidate whose forecast leaves the band around its history,
+  at a backtest origin or from the whole series, is left out and the choice made again.
 - skill_over_naive = 1 − score(chosen) / score(benchmark), the benchmark being seasonal naive
   for a seasonal series and naive otherwise.
 - Calibration: the same estimates are re-filtered through up to 8 origins between the first
@@ -38,7 +40,6 @@ tests/benchmarks/RESULTS.md.
 
 from __future__ import annotations
 
-import dataclasses
 import time
 from collections.abc import Sequence
 from typing import Any
@@ -46,21 +47,18 @@ from typing import Any
 import pandas as pd
 
 from service.core.checks import check_coverage, check_positive_int
-from service.core.errors import FitError, RequestError
+from service.core.errors import RequestError
 from service.core.evaluation import calibration as cal
 from service.core.evaluation.backtest import MapFn, Task, run
-from service.core.evaluation.origins import MINIMUM_ORIGINS, Plan, calibration_plan, dense_plan
-from service.core.evaluation.records import ModelBacktest, RankEntry, rank
+from service.core.evaluation.origins import MINIMUM_ORIGINS, calibration_plan, dense_plan
+from service.core.evaluation.records import ModelBacktest, RankEntry
 from service.core.evaluation.scoring import check_metric
 from service.core.models.base import (
     FitWarning,
-    Forecast,
     Specification,
     family_of,
 )
-from service.core.models.intervals import Interval
 from service.core.models.naive import NaiveSpec
-from service.core.models.plausibility import implausible
 from service.core.selection.averaging import combine
 from service.core.selection.candidates import (
     CandidateSet,
@@ -68,10 +66,10 @@ from service.core.selection.candidates import (
     candidates_for,
     profile_series,
 )
-from service.core.selection.choice import Choice, choose, disjoint_windows
 from service.core.selection.delivered import delivered, model_periods, settle
 from service.core.selection.guard import Guarded, benchmark_name, guard, no_skill_message
 from service.core.selection.outcome import AutoForecast, Selection
+from service.core.selection.screening import plausible_choice, screened
 from service.core.selection.short_series import plan_for, simple_candidates
 from service.core.selection.skill import (
     benchmark_of,
@@ -145,10 +143,10 @@ def select(
     )
     # The ranking pools the scaled errors over every origin of the dense plan: more origins
     # for the same estimates, so one lucky window decides less.
-    results = [_screened(r, y) for r in dense]
+    results = [screened(r, y) for r in dense]
     clock.lap("backtest")
 
-    picked = _plausible_choice(
+    picked = plausible_choice(
         results, specs, metric, candidates is None, evaluation_plan, (y, horizon, levels)
     )
     bench_index = specs.index(benchmark_of(specs, profile))
@@ -209,48 +207,6 @@ def select(
     )
     warnings_out = tuple(extra) + tuple(fitted.warnings)
     return AutoForecast(fitted, forecast, selection, warnings_out, clock.laps)
-
-
-def _plausible_choice(
-    results: list[ModelBacktest],
-    specs: Sequence[Specification],
-    metric: str,
-    default_set: bool,
-    plan: Plan,
-    final: tuple[pd.Series, int, tuple[float, ...]],
-) -> Choice:
-    """The choice among the working candidates; a member whose forecast from the whole series
-    leaves the plausible band is marked failed (in ``results``) and the choice is made again
-    without it, so that what is scored is what is delivered."""
-    y, horizon, levels = final
-    windows = disjoint_windows(plan.origins, plan.horizon)
-    while True:
-        order = sorted(
-            (i for i, r in enumerate(results) if r.ok), key=lambda i: (results[i].score(metric), i)
-        )
-        if not order:
-            raise FitError("no candidate could be fitted to this series", field="series.values")
-        picked = choose(results, specs, order, metric, rank(results, metric), default_set, windows)
-        problems = {i: _final_problem(results[i], y, horizon, levels) for i in picked.members}
-        if not any(problems.values()):
-            return picked
-        for i, why in problems.items():
-            if why is not None:
-                results[i] = dataclasses.replace(results[i], failure=why)
-
-
-def _final_problem(
-    result: ModelBacktest, y: pd.Series, horizon: int, levels: tuple[float, ...]
-) -> str | None:
-    """Why a candidate's forecast from the whole series is implausible (None when fine)."""
-    if result.delivered is None:
-        return None
-    try:
-        final = result.delivered.forecast(horizon, levels)
-    except (ValueError, ArithmeticError, LookupError) as exc:
-        return f"its forecast from the whole series failed ({exc})"
-    why = implausible(final, y.to_numpy(dtype=float))
-    return None if why is None else f"{why} (from the whole series)"
 
 
 def _ranking(
@@ -352,20 +308,6 @@ def _calibrate(
     if not all(r.ok for r in results):
         return cal.calibrate(dense)
     return cal.calibrate(_merged(results, range(len(results)), weights))
-
-
-def _screened(result: ModelBacktest, y: pd.Series) -> ModelBacktest:
-    """The record marked failed when a forecast at any origin left the plausible band."""
-    if not result.ok:
-        return result
-    values = y.to_numpy(dtype=float)
-    for f in result.forecasts:
-        intervals = tuple(Interval(v, f.lower[v], f.upper[v]) for v in result.levels)
-        forecast = Forecast(pd.RangeIndex(len(f.point)), f.point, intervals)
-        why = implausible(forecast, values[: y.index.get_loc(f.origin)])
-        if why is not None:
-            return dataclasses.replace(result, failure=f"{why} at {f.origin.isoformat()}")
-    return result
 
 
 def backtest_auto(

@@ -54,6 +54,7 @@ def test_a_member_whose_final_forecast_explodes_is_left_out_and_the_choice_made_
     monkeypatch,
 ) -> None:  # type: ignore[no-untyped-def]
     from service.core.selection import auto as selection
+    from service.core.selection import screening
 
     rng = np.random.default_rng(5)
     y = pd.Series(
@@ -71,7 +72,7 @@ def test_a_member_whose_final_forecast_explodes_is_left_out_and_the_choice_made_
         calls.append(1)
         return "explodes" if len(calls) == 1 else None
 
-    monkeypatch.setattr(selection, "implausible", first_final_explodes)
+    monkeypatch.setattr(screening, "implausible", first_final_explodes)
     out = selection.select(y, 1, 6, (0.8,))
     failed = [label for label, why in out.selection.failures if "from the whole series" in why]
     assert len(failed) == 1

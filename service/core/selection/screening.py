@@ -1,0 +1,75 @@
+"""Which backtested candidates may make the forecast: each forecast, at every backtest origin
+and from the whole series, must stay within the plausible band around its history
+(models/plausibility.py); a member that leaves it is marked failed and the choice is made
+again without it, so that what is scored is what is delivered."""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Sequence
+
+import pandas as pd
+
+from service.core.errors import FitError
+from service.core.evaluation.origins import Plan
+from service.core.evaluation.records import ModelBacktest, rank
+from service.core.models.base import Forecast, Specification
+from service.core.models.intervals import Interval
+from service.core.models.plausibility import implausible
+from service.core.selection.choice import Choice, choose, disjoint_windows
+
+
+def plausible_choice(
+    results: list[ModelBacktest],
+    specs: Sequence[Specification],
+    metric: str,
+    default_set: bool,
+    plan: Plan,
+    final: tuple[pd.Series, int, tuple[float, ...]],
+) -> Choice:
+    """The choice among the working candidates; a member whose forecast from the whole series
+    leaves the plausible band is marked failed (in ``results``) and the choice is made again
+    without it, so that what is scored is what is delivered."""
+    y, horizon, levels = final
+    windows = disjoint_windows(plan.origins, plan.horizon)
+    while True:
+        order = sorted(
+            (i for i, r in enumerate(results) if r.ok), key=lambda i: (results[i].score(metric), i)
+        )
+        if not order:
+            raise FitError("no candidate could be fitted to this series", field="series.values")
+        picked = choose(results, specs, order, metric, rank(results, metric), default_set, windows)
+        problems = {i: final_problem(results[i], y, horizon, levels) for i in picked.members}
+        if not any(problems.values()):
+            return picked
+        for i, why in problems.items():
+            if why is not None:
+                results[i] = dataclasses.replace(results[i], failure=why)
+
+
+def final_problem(
+    result: ModelBacktest, y: pd.Series, horizon: int, levels: tuple[float, ...]
+) -> str | None:
+    """Why a candidate's forecast from the whole series is implausible (None when fine)."""
+    if result.delivered is None:
+        return None
+    try:
+        final = result.delivered.forecast(horizon, levels)
+    except (ValueError, ArithmeticError, LookupError) as exc:
+        return f"its forecast from the whole series failed ({exc})"
+    why = implausible(final, y.to_numpy(dtype=float))
+    return None if why is None else f"{why} (from the whole series)"
+
+
+def screened(result: ModelBacktest, y: pd.Series) -> ModelBacktest:
+    """The record marked failed when a forecast at any origin left the plausible band."""
+    if not result.ok:
+        return result
+    values = y.to_numpy(dtype=float)
+    for f in result.forecasts:
+        intervals = tuple(Interval(v, f.lower[v], f.upper[v]) for v in result.levels)
+        forecast = Forecast(pd.RangeIndex(len(f.point)), f.point, intervals)
+        why = implausible(forecast, values[: y.index.get_loc(f.origin)])
+        if why is not None:
+            return dataclasses.replace(result, failure=f"{why} at {f.origin.isoformat()}")
+    return result
