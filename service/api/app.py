@@ -12,6 +12,7 @@ from fastapi import FastAPI
 
 from service import __version__
 from service.api.auth import install_api_keys
+from service.api.caching import cache_from
 from service.api.docs import install_docs
 from service.api.document import install_document
 from service.api.hits import ResponseHitMiddleware
@@ -28,7 +29,6 @@ from service.api.problems import install_problem_handlers
 from service.api.representations import RepresentationMiddleware
 from service.api.routes import backtests, batches, diagnostics, forecasts, health, models
 from service.config import Settings
-from service.runtime.cache import Cache
 from service.runtime.logs import request_logger
 from service.runtime.pool import PoolStats, WorkPool
 from service.runtime.preload import WARM_MODULES
@@ -74,16 +74,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     @asynccontextmanager
     async def lifespan(app: FastAPI) -> AsyncIterator[None]:
-        secret = settings.cache_secret
-        app.state.cache = Cache(
-            enabled=settings.cache == "on",
-            directory=settings.cache_dir,
-            max_bytes=settings.cache_max_bytes,
-            response_entries=settings.cache_memory_items,
-            response_bytes=settings.cache_memory_bytes,
-            secret=secret.get_secret_value().encode() if secret is not None else None,
-            retry_seconds=settings.cache_retry_seconds,
-        )
+        app.state.cache = cache_from(settings)
         app.state.flights = {}
 
         def occupancy(stats: PoolStats) -> None:

@@ -149,15 +149,7 @@ def _worker_cache(settings: Settings) -> Cache:
     )
     if ident not in _CACHES:
         pin_threads()  # once per process, as in the server's pool
-        secret = settings.cache_secret
-        _CACHES[ident] = Cache(
-            enabled=settings.cache == "on",
-            directory=settings.cache_dir,
-            max_bytes=settings.cache_max_bytes,
-            response_entries=settings.cache_memory_items,
-            response_bytes=settings.cache_memory_bytes,
-            secret=secret.get_secret_value().encode() if secret is not None else None,
-        )
+        _CACHES[ident] = caching.cache_from(settings)
     return _CACHES[ident]
 
 

@@ -23,11 +23,27 @@ from starlette.requests import Request
 
 from service import __version__
 from service.api.schemas.forecasts import ForecastResponse
+from service.config import Settings
 from service.core.errors import FitError
 from service.runtime.cache import Cache, Claim, Lookup, StoredResponse
 from service.runtime.keys import Key, KeyBuilder, canonical_json, runtime_versions
 from service.runtime.pool import BudgetExceeded, WorkerCrashed
 from service.runtime.telemetry import Telemetry
+
+
+def cache_from(settings: Settings) -> Cache:
+    """The response and fitted-model cache a deployment's settings describe."""
+    secret = settings.cache_secret
+    return Cache(
+        enabled=settings.cache == "on",
+        directory=settings.cache_dir,
+        max_bytes=settings.cache_max_bytes,
+        response_entries=settings.cache_memory_items,
+        response_bytes=settings.cache_memory_bytes,
+        secret=secret.get_secret_value().encode() if secret is not None else None,
+        retry_seconds=settings.cache_retry_seconds,
+    )
+
 
 RESPONSES = "windvane-response"
 FITTED = "windvane-fitted"

@@ -9,7 +9,7 @@ from typing import Any
 
 from fastapi import FastAPI
 
-from service.api.representations import describe_representations
+from service.api.media import describe_representations
 from service.api.schemas.specification import add_specification_schemas
 from service.config import Settings
 

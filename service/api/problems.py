@@ -41,26 +41,17 @@ def instance(request: Request) -> str:
 
 # The problem answers every POST endpoint can give, for its OpenAPI `responses`.
 PROBLEM_RESPONSES: dict[int | str, dict[str, Any]] = {
-    400: {
+    status: {
         "model": Problem,
-        "description": "Malformed JSON",
+        "description": description,
         "content": {"application/problem+json": {}},
-    },
-    413: {
-        "model": Problem,
-        "description": "Body larger than the limit",
-        "content": {"application/problem+json": {}},
-    },
-    422: {
-        "model": Problem,
-        "description": "Invalid series, option or specification",
-        "content": {"application/problem+json": {}},
-    },
-    503: {
-        "model": Problem,
-        "description": "Busy (Retry-After) or over the time budget",
-        "content": {"application/problem+json": {}},
-    },
+    }
+    for status, description in (
+        (400, "Malformed JSON"),
+        (413, "Body larger than the limit"),
+        (422, "Invalid series, option or specification"),
+        (503, "Busy (Retry-After) or over the time budget"),
+    )
 }
 
 

@@ -13,7 +13,8 @@ from service.api.schemas.forecasts import ForecastRequest
 from service.config import Settings
 from service.core.checks import check_coverage, check_positive_int
 from service.core.data.regressors import regressors_from_wire
-from service.core.data.series import ParsedSeries, check_horizon_in_range
+from service.core.data.series import ParsedSeries
+from service.core.data.timestamps import check_horizon_in_range
 from service.core.errors import RequestError, WindvaneError
 from service.core.models.transforms import transform_from_value
 from service.runtime import jobs

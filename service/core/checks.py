@@ -5,7 +5,10 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 
-from service.core.errors import RequestError
+import numpy as np
+import pandas as pd
+
+from service.core.errors import FitError, RequestError
 
 
 def check_positive_int(value: object, name: str, maximum: int | None = None) -> int:
@@ -41,3 +44,18 @@ def check_coverage(levels: Sequence[float], name: str = "coverage") -> tuple[flo
     if len(set(out)) != len(out):
         raise RequestError("coverage levels must be unique", field=name)
     return tuple(sorted(out))
+
+
+def complete_values(y: pd.Series, family: str, minimum: int = 1) -> np.ndarray:
+    """The values of a series a family can only fit without gaps, with at least ``minimum``."""
+    values = y.to_numpy(dtype=float)
+    if not np.all(np.isfinite(values)):
+        raise FitError(
+            f"{family} needs a complete series (use missing=interpolate)", field="series.values"
+        )
+    if values.size < minimum:
+        raise FitError(
+            f"{family} needs at least {minimum} observations, got {values.size}",
+            field="series.values",
+        )
+    return values

@@ -20,6 +20,8 @@ from xml.sax.saxutils import escape
 
 import numpy as np
 
+from service.core.data.filling import interpolate_gaps
+
 HISTORY_COLOUR = "#2f3e46"
 FORECAST_COLOUR = "#b5522b"
 BAND_COLOURS = ("#f2c9a8", "#e59a6c", "#d0743f")  # widest level first: lightest
@@ -177,7 +179,7 @@ def _decomposition(values: np.ndarray, periods: list[int]) -> dict[str, np.ndarr
     """Trend, one seasonal component per period and the remainder (STL or MSTL)."""
     from statsmodels.tsa.seasonal import MSTL, STL
 
-    filled = _filled(values)
+    filled = interpolate_gaps(values)
     usable = sorted(p for p in periods if p > 1 and len(filled) >= 2 * p + 1)
     if not usable:
         return {}
@@ -195,15 +197,6 @@ def _decomposition(values: np.ndarray, periods: list[int]) -> dict[str, np.ndarr
         parts[f"season (period {period})"] = seasonal[:, column]
     parts["remainder"] = np.asarray(result.resid)
     return parts
-
-
-def _filled(values: np.ndarray) -> np.ndarray:
-    """Missing values interpolated linearly, the ends carried (a chart, not an estimate)."""
-    positions = np.arange(values.size)
-    known = ~np.isnan(values)
-    if known.all() or not known.any():
-        return values
-    return np.interp(positions, positions[known], values[known])
 
 
 def diagnostics_chart(picture: DiagnosticsPicture, fmt: str, width: int, height: int) -> bytes:

@@ -13,7 +13,7 @@ import pandas as pd
 import pytest
 from fastapi.testclient import TestClient
 
-from service.api.representations import negotiate
+from service.api.media import negotiate
 
 FORECASTS = "/v1/forecasts"
 

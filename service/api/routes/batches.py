@@ -32,6 +32,7 @@ from service.api.batch_items import (
     problem,
 )
 from service.api.dependencies import PoolDep, SettingsDep
+from service.api.media import NDJSON
 from service.api.problems import PROBLEM_RESPONSES
 from service.api.routes.forecasts import answer_forecast
 from service.api.schemas.batches import (
@@ -49,7 +50,7 @@ from service.runtime.portfolio import portfolio, summary_row
 
 router = APIRouter(prefix="/v1", tags=["forecasts"])
 
-NDJSON = "application/x-ndjson"
+
 T = TypeVar("T")
 REQUEST_SCHEMA = "#/components/schemas/BatchRequest"
 

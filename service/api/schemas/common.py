@@ -16,13 +16,13 @@ from pydantic import (
 )
 
 from service.core.data.periods import MAX_PERIODS
+from service.core.data.series import VALUE_MAGNITUDE
+from service.core.data.timestamps import TIMESTAMP_CHARACTERS
 
-# Bounds stated here are checked by the core (which names the index) or by pydantic, and
-# appear in the OpenAPI schema; the limits that come from the settings are added to the
-# schema by service.api.document.install_limits.
-TIMESTAMP_CHARACTERS = 64
+# Bounds stated here or imported from the core are checked by the core (which names the
+# index) or by pydantic, and appear in the OpenAPI schema; the limits that come from the
+# settings are added to the schema by service.api.document.install_limits.
 FREQUENCY_CHARACTERS = 40
-VALUE_MAGNITUDE = 1e30
 SPECIFICATION_DEPTH = 12
 
 NumberOrNullList = Annotated[

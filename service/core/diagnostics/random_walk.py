@@ -33,12 +33,12 @@ from service.core.diagnostics.autocorrelation import (
     significant_lags,
     white_noise_band,
 )
+from service.core.diagnostics.deterministic import mean_test
 from service.core.diagnostics.unit_root import (
     LEVEL_DRIFT,
     LEVEL_WHITE,
     UnitRootDecision,
     integration_order,
-    mean_test,
     stationarity,
 )
 

@@ -17,6 +17,7 @@ from typing import ClassVar
 import numpy as np
 import pandas as pd
 
+from service.core.checks import complete_values
 from service.core.errors import FitError
 from service.core.models.base import (
     Description,
@@ -91,11 +92,7 @@ class CrostonSpec:
 
 
 def _checked(y: pd.Series) -> np.ndarray:
-    values = y.to_numpy(dtype=float)
-    if not np.all(np.isfinite(values)):
-        raise FitError(
-            "croston needs a complete series (use missing=interpolate)", field="series.values"
-        )
+    values = complete_values(y, "croston")
     if np.any(values < 0):
         index = int(np.flatnonzero(values < 0)[0])
         raise FitError("demand must be non-negative", field=f"series.values[{index}]")

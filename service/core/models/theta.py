@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 from scipy import optimize
 
+from service.core.checks import complete_values
 from service.core.diagnostics.autocorrelation import seasonal_lag_stands_out
 from service.core.errors import FitError
 from service.core.models.base import Description, FitWarning, Forecast, as_dict, future_index
@@ -53,7 +54,7 @@ class ThetaSpec:
     def fit(self, y: pd.Series, seasonal_period: int = 1) -> ThetaFitted:
         """Fit α by least squares on the adjusted series and the drift by OLS on time."""
         start = timed()
-        values = _checked(y)
+        values = complete_values(y, "theta", 3)
         notes: list[FitWarning] = []
         indices, kind = self._seasonal_indices(values, seasonal_period, notes)
         adjusted = deseasoned(values, indices, kind, 0)
@@ -88,19 +89,6 @@ class ThetaSpec:
                 )
             )
         return (1.0,), MULTIPLICATIVE
-
-
-def _checked(y: pd.Series) -> np.ndarray:
-    values = y.to_numpy(dtype=float)
-    if not np.all(np.isfinite(values)):
-        raise FitError(
-            "theta needs a complete series (use missing=interpolate)", field="series.values"
-        )
-    if values.size < 3:
-        raise FitError(
-            f"theta needs at least 3 observations, got {values.size}", field="series.values"
-        )
-    return values
 
 
 def ols_slope(values: np.ndarray) -> float:
@@ -263,7 +251,7 @@ class ThetaFitted:
 
     def refilter(self, y: pd.Series) -> ThetaFitted:
         """α, b0 and the indices held fixed on a history with the same start (season phase)."""
-        _checked(y)
+        complete_values(y, "theta", 3)
         return replace(self, y=y, fit_seconds=0.0, warnings=[])
 
     def describe(self) -> Description:

@@ -9,12 +9,8 @@ import pandas as pd
 import pytest
 
 from service.core.data.frequency import parse_frequency
-from service.core.data.series import (
-    Aggregation,
-    check_horizon_in_range,
-    grid_length,
-    parse_series,
-)
+from service.core.data.series import Aggregation, parse_series
+from service.core.data.timestamps import check_horizon_in_range, grid_length
 from service.core.errors import RequestError, SeriesError
 
 

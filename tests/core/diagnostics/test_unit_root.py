@@ -69,7 +69,7 @@ def test_too_short_or_straight_series_get_a_reason() -> None:
 def test_the_fast_f_and_t_tests_agree_with_scipy() -> None:
     from scipy import stats
 
-    from service.core.diagnostics.unit_root import mean_test, one_way_f
+    from service.core.diagnostics.deterministic import mean_test, one_way_f
 
     rng = np.random.default_rng(8)
     values = rng.normal(size=301) + 0.1

@@ -11,6 +11,7 @@ import pandas as pd
 from statsmodels.tools.eval_measures import aic, aicc, bic
 from statsmodels.tsa.exponential_smoothing.ets import ETSResults
 
+from service.core.checks import complete_values
 from service.core.errors import FitError
 from service.core.models.base import (
     Description,
@@ -52,16 +53,8 @@ def ets_label(spec: EtsSpec) -> str:
 
 
 def checked_values(y: pd.Series) -> np.ndarray:
-    values = y.to_numpy(dtype=float)
-    if not np.all(np.isfinite(values)):
-        raise FitError(
-            "ets needs a complete series (use missing=interpolate)", field="series.values"
-        )
-    if values.size < 4:
-        raise FitError(
-            f"ets needs at least 4 observations, got {values.size}", field="series.values"
-        )
-    return values
+    """The complete series ETS needs, at least 4 points."""
+    return complete_values(y, "ets", 4)
 
 
 @dataclass
