@@ -1,4 +1,8 @@
-"""Imports point one way: api -> runtime -> core, and core uses only the numerical stack."""
+"""Imports point one way: api -> runtime -> core, and core uses only the numerical stack.
+
+Inside core the subpackages are layered too, each importing only its own layer and those
+before it: the shared foundation (errors, checks, applicability) -> data -> diagnostics ->
+models -> evaluation -> selection."""
 
 from __future__ import annotations
 
@@ -56,6 +60,30 @@ def runtime_violations(names: list[str]) -> list[str]:
     ]
 
 
+CORE_LAYERS = ("", "data", "diagnostics", "models", "evaluation", "selection")
+"""core's layers in import order; "" is the foundation of top-level modules."""
+
+
+def core_layer(module: str) -> int | None:
+    """The layer of a service.core module (None outside core)."""
+    if module != "service.core" and not module.startswith("service.core."):
+        return None
+    parts = module.split(".")
+    if len(parts) > 3 and parts[2] in CORE_LAYERS:
+        return CORE_LAYERS.index(parts[2])
+    if len(parts) == 3 and parts[2] in CORE_LAYERS:  # "from service.core import data"
+        return CORE_LAYERS.index(parts[2])
+    return 0
+
+
+def layer_violations(module: str, names: list[str]) -> list[str]:
+    """The core modules ``module`` imports from a later layer than its own."""
+    own = core_layer(module)
+    if own is None:
+        return []
+    return [n for n in names if (core_layer(n) or 0) > own]
+
+
 def files_under(part: str) -> list[Path]:
     return sorted((ROOT / part).rglob("*.py"))
 
@@ -69,6 +97,14 @@ def test_core_imports_only_the_standard_library_and_the_numerical_stack(path: Pa
     names = imports_of(path.read_text(encoding="utf-8"), package_of(path))
     bad = core_violations(names)
     assert not bad, f"{_id(path)} imports {bad}; core may import only stdlib, {CORE_ALLOWED}"
+
+
+@pytest.mark.parametrize("path", files_under("core"), ids=_id)
+def test_core_layers_import_only_their_own_layer_and_earlier_ones(path: Path) -> None:
+    module = ".".join(path.relative_to(ROOT.parent).with_suffix("").parts)
+    names = imports_of(path.read_text(encoding="utf-8"), package_of(path))
+    bad = layer_violations(module, names)
+    assert not bad, f"{_id(path)} imports {bad}, a later layer of {' -> '.join(CORE_LAYERS)}"
 
 
 @pytest.mark.parametrize("path", files_under("runtime"), ids=_id)
@@ -96,3 +132,11 @@ def test_the_checks_catch_what_they_should() -> None:
         "service.api.app",
     ]
     assert imports_of("from ... import x\n", "service.core.models") == ["service"]
+    assert {CORE_LAYERS[core_layer(f"service.core.{p}.x") or 0] for p in CORE_LAYERS[1:]} == set(
+        CORE_LAYERS[1:]
+    )
+    assert core_layer("service.core.errors") == 0 and core_layer("service.runtime.jobs") is None
+    backward = ["service.core.models.base", "service.core.selection.auto", "service.core.errors"]
+    assert layer_violations("service.core.data.series", backward) == backward[:2]
+    assert layer_violations("service.core.selection.auto", backward) == []
+    assert layer_violations("service.core.errors", ["service.core.data"]) == ["service.core.data"]

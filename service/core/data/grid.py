@@ -67,3 +67,12 @@ def _arithmetic(first: pd.Timestamp, periods: int, offset: pd.DateOffset) -> np.
         step = np.timedelta64(7 * offset.n, "D").astype(f"timedelta64[{unit}]")
         return np.datetime64(naive.to_datetime64(), unit) + steps * step
     return None
+
+
+def future_index(index: pd.DatetimeIndex, horizon: int) -> pd.DatetimeIndex:
+    """The ``horizon`` timestamps that continue a regular index at its frequency."""
+    freq = index.freq
+    if freq is None:
+        raise ValueError("the series index has no frequency; parse it with core.series first")
+    start = index[-1] + freq
+    return pd.date_range(start=start, periods=horizon, freq=freq, tz=index.tz)

@@ -14,8 +14,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from service.core.data.grid import future_index
 from service.core.errors import RequestError
-from service.core.models.base import future_index
 
 
 @dataclass(frozen=True)

@@ -11,13 +11,20 @@ trace (on a single-period remainder the other cycle's swings look like outliers)
 
 from __future__ import annotations
 
+import math
+import warnings
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from statsmodels.tsa.seasonal import MSTL
 
 from service.core.data.periods import period_text
-from service.core.diagnostics.seasonality import strength
-from service.core.models.mstl import mstl_parts
+from service.core.diagnostics.seasonality import stl_settings, strength
+
+MSTL_SEASONAL_WINDOW = 51
+"""Seasonal smoother span in cycles for every period: wider than MSTL's default (7 + 4i), which
+let the components absorb noise and narrowed the intervals (tests/benchmarks/RESULTS.md)."""
 
 MATTERS = 0.3
 """Strength from which a period is said to drive the series (findings call < 0.3 weak)."""
@@ -80,3 +87,36 @@ def several_periods(x: np.ndarray, periods: tuple[float, ...]) -> SeveralPeriods
         for p in kept
     )
     return SeveralPeriods(found, strength(remainder, parts.trend), remainder, notes)
+
+
+@dataclass(frozen=True)
+class MstlParts:
+    """Trend, one seasonal column per period (n x k) and remainder."""
+
+    trend: np.ndarray
+    seasonal: np.ndarray
+    remainder: np.ndarray
+
+
+def mstl_parts(values: np.ndarray, periods: Sequence[int]) -> MstlParts:
+    """statsmodels' MSTL with cheap STL passes (two inner, none robust, loess jumps)."""
+    settings = stl_settings(min(periods))
+    kwargs = {
+        "robust": False,
+        "inner_iter": 2,
+        "outer_iter": 0,
+        "seasonal_jump": math.ceil(MSTL_SEASONAL_WINDOW / 10),
+        "trend_jump": settings["trend_jump"],
+        "low_pass_jump": settings["low_pass_jump"],
+    }
+    with warnings.catch_warnings():
+        # MSTL warns about nothing we can act on beyond what the checks above refuse.
+        warnings.simplefilter("ignore", UserWarning)
+        windows = [MSTL_SEASONAL_WINDOW] * len(periods)
+        result = MSTL(
+            values, periods=list(periods), windows=windows, iterate=2, stl_kwargs=kwargs
+        ).fit()
+    seasonal = np.asarray(result.seasonal, dtype=float).reshape(values.size, -1)
+    return MstlParts(
+        np.asarray(result.trend, dtype=float), seasonal, np.asarray(result.resid, dtype=float)
+    )

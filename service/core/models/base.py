@@ -147,12 +147,3 @@ def residuals_from(y: pd.Series, fitted: pd.Series) -> pd.Series:
     return pd.Series(
         y.to_numpy(dtype=float) - fitted.to_numpy(dtype=float), index=y.index, name="residuals"
     )
-
-
-def future_index(index: pd.DatetimeIndex, horizon: int) -> pd.DatetimeIndex:
-    """The ``horizon`` timestamps that continue a regular index at its frequency."""
-    freq = index.freq
-    if freq is None:
-        raise ValueError("the series index has no frequency; parse it with core.series first")
-    start = index[-1] + freq
-    return pd.date_range(start=start, periods=horizon, freq=freq, tz=index.tz)

@@ -18,13 +18,13 @@ import numpy as np
 import pandas as pd
 
 from service.core.checks import complete_values
+from service.core.data.grid import future_index
 from service.core.errors import FitError
 from service.core.models.base import (
     Description,
     FitWarning,
     Forecast,
     as_dict,
-    future_index,
     parameter,
     residuals_from,
 )

@@ -15,27 +15,21 @@ from __future__ import annotations
 
 import math
 import time
-import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any, ClassVar
 
 import numpy as np
 import pandas as pd
-from statsmodels.tsa.seasonal import MSTL
 
 from service.core.data.filling import interpolate_gaps
 from service.core.data.periods import check_periods
-from service.core.diagnostics.seasonality import stl_settings
+from service.core.diagnostics.cycles import mstl_parts
 from service.core.errors import FitError, SeriesError
 from service.core.models.base import Description, FitWarning, Forecast, as_dict, parameter
 from service.core.models.intervals import Interval, normal_quantile
 from service.core.models.labels import model_label
 from service.core.models.stl import base_parameter, carried_seasonal, fit_base
-
-SEASONAL_WINDOW = 51
-"""Seasonal smoother span in cycles for every period: wider than MSTL's default (7 + 4i), which
-let the components absorb noise and narrowed the intervals (tests/benchmarks/RESULTS.md)."""
 
 
 def periods_parameter() -> Any:
@@ -121,39 +115,6 @@ def mstl_components(
     seasonal = mstl_parts(values, periods).seasonal
     names = [f"period {m}" for m in periods]
     return pd.DataFrame(seasonal, index=y.index, columns=names), notes
-
-
-@dataclass(frozen=True)
-class MstlParts:
-    """Trend, one seasonal column per period (n x k) and remainder."""
-
-    trend: np.ndarray
-    seasonal: np.ndarray
-    remainder: np.ndarray
-
-
-def mstl_parts(values: np.ndarray, periods: Sequence[int]) -> MstlParts:
-    """statsmodels' MSTL with cheap STL passes (two inner, none robust, loess jumps)."""
-    settings = stl_settings(min(periods))
-    kwargs = {
-        "robust": False,
-        "inner_iter": 2,
-        "outer_iter": 0,
-        "seasonal_jump": math.ceil(SEASONAL_WINDOW / 10),
-        "trend_jump": settings["trend_jump"],
-        "low_pass_jump": settings["low_pass_jump"],
-    }
-    with warnings.catch_warnings():
-        # MSTL warns about nothing we can act on beyond what the checks above refuse.
-        warnings.simplefilter("ignore", UserWarning)
-        windows = [SEASONAL_WINDOW] * len(periods)
-        result = MSTL(
-            values, periods=list(periods), windows=windows, iterate=2, stl_kwargs=kwargs
-        ).fit()
-    seasonal = np.asarray(result.seasonal, dtype=float).reshape(values.size, -1)
-    return MstlParts(
-        np.asarray(result.trend, dtype=float), seasonal, np.asarray(result.resid, dtype=float)
-    )
 
 
 def seasonal_spread(components: pd.DataFrame, periods: Sequence[int]) -> float:

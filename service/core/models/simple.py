@@ -15,8 +15,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from service.core.data.grid import future_index
 from service.core.diagnostics.autocorrelation import ljung_box, primary_ljung_box_lag, sample_acf
-from service.core.models.base import Description, FitWarning, Forecast, future_index
+from service.core.models.base import Description, FitWarning, Forecast
 from service.core.models.intervals import normal_intervals
 
 

@@ -17,9 +17,10 @@ import pandas as pd
 from scipy import optimize
 
 from service.core.checks import complete_values
+from service.core.data.grid import future_index
 from service.core.diagnostics.autocorrelation import seasonal_lag_stands_out
 from service.core.errors import FitError
-from service.core.models.base import Description, FitWarning, Forecast, as_dict, future_index
+from service.core.models.base import Description, FitWarning, Forecast, as_dict
 from service.core.models.base import parameter as param
 from service.core.models.intervals import Interval, normal_intervals
 from service.core.models.labels import model_label

@@ -8,9 +8,10 @@ import pickle
 import numpy as np
 import pytest
 
+from service.core.diagnostics.cycles import mstl_parts
 from service.core.errors import FitError
 from service.core.models.ets.family import EtsSpec
-from service.core.models.mstl import MstlSpec, mstl_parts
+from service.core.models.mstl import MstlSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
 from tests.multi_period_series import direct_mstl, hourly_counts, hourly_rate
 

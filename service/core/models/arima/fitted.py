@@ -18,11 +18,12 @@ import pandas as pd
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 
 from service.core.checks import check_coverage, check_positive_int
+from service.core.data.grid import future_index
 from service.core.data.regressors import aligned_future, aligned_history
 from service.core.errors import FitError, SeriesError
 from service.core.models.arima.orders import ArimaOrders, Estimate, design_matrix
 from service.core.models.arima.search import OrderSearchResult
-from service.core.models.base import Description, FitWarning, Forecast, as_dict, future_index
+from service.core.models.base import Description, FitWarning, Forecast, as_dict
 from service.core.models.intervals import normal_intervals
 from service.core.models.simple import ljung_box_summary
 

@@ -12,13 +12,13 @@ from statsmodels.tools.eval_measures import aic, aicc, bic
 from statsmodels.tsa.exponential_smoothing.ets import ETSResults
 
 from service.core.checks import complete_values
+from service.core.data.grid import future_index
 from service.core.errors import FitError
 from service.core.models.base import (
     Description,
     FitWarning,
     Forecast,
     as_dict,
-    future_index,
     residuals_from,
 )
 from service.core.models.ets.lean import LeanEtsModel, model_kwargs, n_parameters

@@ -14,8 +14,9 @@ import pandas as pd
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 
 from service.core.checks import check_coverage, check_positive_int
+from service.core.data.grid import future_index
 from service.core.errors import FitError, SeriesError
-from service.core.models.base import Description, FitWarning, Forecast, as_dict, future_index
+from service.core.models.base import Description, FitWarning, Forecast, as_dict
 from service.core.models.harmonic.errors import ErrorModel
 from service.core.models.harmonic.terms import FourierTerms
 from service.core.models.intervals import normal_intervals
