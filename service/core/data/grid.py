@@ -1,7 +1,7 @@
 """Regular time grids built with array arithmetic instead of ``pandas.date_range``.
 
 ``date_range`` steps month-, quarter-, year- and week-anchored offsets one date at a time
-in Python: a 200-point monthly grid took milliseconds, most of a cached answer's time. On
+in Python, most of a cached answer's time (tests/benchmarks/RESULTS.md). On
 such a grid every step is a whole number of calendar months (or of 7 days), so the grid is
 a vector sum in numpy. Only naive and UTC timestamps take this path: a zone with daylight
 saving moves wall-clock steps in UTC, and there ``date_range`` is kept. The result equals

@@ -173,7 +173,7 @@ def _check_values(values: Sequence[Any] | None, max_points: int) -> np.ndarray:
 def _aggregate(y: pd.Series, aggregate: Aggregation, own: pd.DateOffset) -> pd.Series:
     offset = parse_frequency(aggregate.frequency, None, "aggregate.frequency")
     if nominal_seconds(offset) < nominal_seconds(own):
-        # A finer step would expand the series (one year at PT1S took 57 s): refused.
+        # A finer step would expand the series many times over: refused.
         raise SeriesError(
             f"aggregate.frequency {frequency_name(offset)} is finer than the series' own "
             f"step {frequency_name(own)}; aggregation only makes a series coarser",

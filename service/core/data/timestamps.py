@@ -18,7 +18,7 @@ from service.core.errors import RequestError, SeriesError
 # pandas also reads words such as "now" and "today"; ISO 8601 starts with a four-digit year.
 _ISO_START = re.compile(r"^\d{4}")
 # Bounds checked before any work (the API states them in its schema): an ISO 8601 date-time
-# with a fraction and an offset has ~35 characters; a 300 kB one took seconds to parse.
+# with a fraction and an offset has ~35 characters; a long one is slow to parse.
 TIMESTAMP_CHARACTERS = 64
 # Timestamps, grids and forecast horizons stay inside pandas' nanosecond range, which the
 # cache keys and the statistics use.

@@ -3,8 +3,8 @@
 Seasonal series are decomposed by STL (Cleveland et al. 1990) with a seasonal window of 13,
 two inner passes, one robustness pass (so that a spike stays in the remainder instead of
 leaking into the seasonal values a year away, which flagged its neighbours as outliers), and
-loess jumps of a tenth of each window (the defaults of the original Fortran implementation);
-statsmodels' defaults (five inner passes, every point smoothed) cost 3 x as much.
+loess jumps of a tenth of each window (the defaults of the original Fortran implementation),
+cheaper than statsmodels' defaults (five inner passes, every point smoothed; RESULTS.md).
 Non-seasonal series get a LOWESS trend over a tenth of the series instead.
 """
 

@@ -2,8 +2,9 @@
 
 The ADF lag search is done here with one QR factorisation: the candidate regressions are
 nested in the column order, so every lag's residual sum of squares falls out of the same
-factors. That picks the same lag by AIC as ``statsmodels.tsa.stattools.adfuller`` (tested) at
-a fraction of its cost, which refits OLS once per candidate lag (40 s at 100,000 points).
+factors. That picks the same lag by AIC as ``statsmodels.tsa.stattools.adfuller`` (tested),
+which refits OLS once per candidate lag (its cost on long series: tests/benchmarks/RESULTS.md).
+KPSS is statsmodels' ``kpss`` at our bandwidth.
 """
 
 from __future__ import annotations

@@ -29,6 +29,7 @@ from service.core.models.base import FitWarning
 from service.core.models.library_warnings import captured
 
 CSS_EVALUATIONS = 30
+"""Residual evaluations per coefficient a CSS fit may use: more than converged fits need."""
 
 
 def css_estimate(
@@ -65,9 +66,8 @@ def css_estimate(
 
     names = coefficient_names(orders, regressor_names)
     if x0.size and n - max(ncond, score_from) > x0.size:
-        # Converged CSS fits took at most 22 evaluations per coefficient (637 fits of the quick
-        # search on the benchmark series); the ones that reach the cap wander with a
-        # non-invertible MA and cost more than all the converged ones together at 100 per.
+        # CSS_EVALUATIONS per coefficient is above what converged fits need; the fits that
+        # reach it wander with a non-invertible MA (figures in tests/benchmarks/RESULTS.md).
         with np.errstate(all="ignore"):
             solution = optimize.least_squares(
                 residuals, x0, jac=jacobian, method="lm", max_nfev=CSS_EVALUATIONS * x0.size
@@ -100,8 +100,8 @@ def css_estimate(
 def _css_jacobian(
     w: np.ndarray, xd: np.ndarray | None, orders: ArimaOrders, x: np.ndarray, skip: int
 ) -> np.ndarray:
-    """Analytic derivatives of the CSS residuals, one filter per coefficient: numerical ones
-    took k + 1 residual evaluations per step and made each CSS fit 4-8 x slower."""
+    """Analytic derivatives of the CSS residuals, one filter per coefficient (numerical ones
+    cost k + 1 residual evaluations per step)."""
     k_exog = 0 if xd is None else xd.shape[1]
     arma = x[k_exog:]
     p, q, P, Q, m = orders.p, orders.q, orders.P, orders.Q, orders.m

@@ -72,9 +72,8 @@ class ArimaSpec:
     )
     search: str = parameter(
         "thorough",
-        "order search effort: thorough (CSS screening then an exact stepwise walk, about 0.3-1 s "
-        "at 200 monthly points) or quick (walk on CSS AICc, two exact fits, about 0.1-0.3 s; "
-        "same orders on most reference series, AICc within a few points otherwise)",
+        "order search effort: thorough (CSS screening then an exact stepwise walk) or quick "
+        "(walk on CSS AICc, two exact fits: faster, the same orders on most series)",
         kind="choice",
         allowed=tuple(EFFORTS),
     )
@@ -211,7 +210,7 @@ def _final_fit(
     """The one exact fit: warm-started, full iteration budget, tight tolerance when ``tight``.
 
     Without ``tight`` (the quick search) a converged exact search estimate is kept as it is:
-    polishing it to the tight tolerance cost 0.02-0.4 s for log-likelihood gains < 1e-4.
+    polishing it to the tight tolerance bought negligible likelihood (RESULTS.md).
     """
     if not tight and start is not None and start.method == "exact" and start.converged:
         return start

@@ -2,7 +2,8 @@
 
 The same likelihood as a Kalman filter with a stationary start (what SARIMAX computes on
 the differenced series), but a few dense LAPACK calls per evaluation instead of a filter
-step per observation: about 0.3 ms at n = 200 against 3-6 ms. The regression coefficients
+step per observation (faster at short lengths; figures in tests/benchmarks/RESULTS.md).
+The regression coefficients
 and σ² are concentrated out by generalised least squares, so the optimiser sees only the
 ARMA coefficients, kept stationary and invertible by Monahan's (1984) transform. The
 dense Cholesky costs O(n³): beyond ``DENSE_LIMIT`` observations callers use the filter.
@@ -23,8 +24,8 @@ from statsmodels.tsa.statespace.tools import (
 )
 
 DENSE_LIMIT = 250
-"""Differenced points up to which the dense likelihood is used: whole exact fits were faster
-dense up to 200-300 points and 3-14 x slower than the filter at 450-600 (RESULTS.md)."""
+"""Differenced points up to which the dense likelihood is used, below where the filter
+overtakes it (the crossing is measured in tests/benchmarks/RESULTS.md)."""
 
 
 @dataclass(frozen=True)
@@ -61,7 +62,7 @@ def autocovariances(ar_poly: np.ndarray, ma_poly: np.ndarray, nobs: int) -> np.n
     impulse[0] = 1.0
     psi = signal.lfilter(ma_poly, ar_poly, impulse)
     # b_j = Σ_i θ_{j+i} ψ_i and the filter state below are correlations: one call each instead
-    # of a Python loop (the loops were half the cost of an evaluation at p + mP = 13).
+    # of a Python loop over the lags.
     b = np.zeros(k)
     b[: q + 1] = np.correlate(ma_poly, psi[: q + 1], mode="full")[q:]
     flat, cols = _yule_walker_layout(k, p)

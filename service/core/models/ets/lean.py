@@ -22,10 +22,10 @@ if TYPE_CHECKING:
 class _LeanResults(ETSResults):  # type: ignore[misc]
     """statsmodels' ETS results without the parameter covariance, which nothing here reads.
 
-    ETSResults computes it eagerly: a complex-step Hessian of the likelihood (k(k+1)/2 + k
-    evaluations; 7 ms for the 15 parameters of a monthly seasonal model) for every fit and
-    for every re-filtered origin, about 10 % of an ETS search. The estimates, the forecasts
-    and both kinds of intervals do not depend on it; standard errors would be NaN.
+    ETSResults computes it eagerly, a complex-step Hessian of the likelihood (k(k+1)/2 + k
+    evaluations) for every fit and every re-filtered origin (its share of an ETS search is
+    in tests/benchmarks/RESULTS.md). The estimates, the forecasts and both kinds of intervals
+    do not depend on it; standard errors would be NaN.
     """
 
     @property
