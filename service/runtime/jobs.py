@@ -35,6 +35,7 @@ from service.core.selection.auto import backtest_auto, select
 from service.core.selection.candidates import candidates_for, profile_series
 from service.core.selection.outcome import Selection
 from service.core.selection.summary import auto_summary, explicit_summary
+from service.runtime.spread import lent_map
 
 
 @dataclass(frozen=True)
@@ -237,6 +238,7 @@ def _auto_forecast(task: ForecastTask) -> ForecastAnswer:
             metric=task.metric,
             candidates=candidates,
             diagnostics=report,
+            map_fn=lent_map(),
         )
     found = [*chosen.warnings, *found]
     return _answer(task, chosen.fitted, chosen.forecast, found, chosen.selection)

@@ -18,6 +18,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any, TypeVar
 
+from service.runtime.spread import cores_idle, with_helpers
 from service.runtime.workers import (
     READY,
     STARTUP_SECONDS,
@@ -126,8 +127,16 @@ class WorkPool:
         self._changed()
 
     # --- public -----------------------------------------------------------------------
-    async def run(self, fn: Callable[..., T], *args: Any, budget_seconds: float | None = None) -> T:
-        """Run ``fn(*args)`` in a worker: PoolBusy when full, BudgetExceeded past the budget."""
+    async def run(
+        self,
+        fn: Callable[..., T],
+        *args: Any,
+        budget_seconds: float | None = None,
+        spread: bool = False,
+    ) -> T:
+        """Run ``fn(*args)`` in a worker: PoolBusy when full, BudgetExceeded past the budget.
+
+        ``spread``: the job also gets the workers idle when it starts (runtime/spread.py)."""
         if self._closed:
             raise PoolClosed("the pool is shut down")
         budget = budget_seconds if budget_seconds is not None else self.budget_seconds
@@ -136,12 +145,19 @@ class WorkPool:
         self._admitted += 1
         self._changed()
         admitted = time.perf_counter()
+        lent: list[Worker] = []
         try:
             worker = await self._acquire(budget)
             # The budget is the caller's: time spent queued for a worker counts against it.
             waited = time.perf_counter() - admitted
+            lent = self._borrow() if spread else []
+            if lent:
+                fn, args = with_helpers, (len(lent), fn, *args)
             return await self._run_on(worker, fn, args, budget, waited)
         finally:
+            for spare in lent:
+                self._busy -= 1
+                self._release(spare)
             self._admitted -= 1
             self._changed()
 
@@ -276,6 +292,20 @@ class WorkPool:
             self._replace(worker, "crash")
             self._changed()
         # A busy worker's job sees its pipe close and reports the crash itself.
+
+    def _borrow(self) -> list[Worker]:
+        """Idle workers (as many as the machine has idle cores besides the job's), reserved
+        for one job when none waits: a request arriving meanwhile waits for that job's end."""
+        lent: list[Worker] = []
+        idle_cores = cores_idle()
+        while self._idle and not self._waiters and len(lent) < idle_cores - 1:
+            worker = self._idle.popleft()
+            if not worker.process.is_alive():
+                self._replace(worker, "crash")
+                continue
+            lent.append(worker)
+            self._busy += 1
+        return lent
 
     def _release(self, worker: Worker) -> None:
         while self._waiters:

@@ -52,3 +52,18 @@ def _divide_the_stock(parts: int) -> float:
 def broken() -> float:
     """A job with a programming error (not a domain refusal) two frames down."""
     return _divide_the_stock(0)
+
+
+def spread_pids(count: int) -> tuple[int, list[int]]:
+    """The lent cores this job got, and the processes that evaluated ``count`` items."""
+    from service.runtime import spread
+
+    map_fn = spread.lent_map()
+    if map_fn is None:
+        return 0, [os.getpid()] * count
+    return spread._lent, map_fn(_slow_pid, list(range(count)))
+
+
+def _slow_pid(_: int) -> int:
+    time.sleep(0.05)
+    return os.getpid()

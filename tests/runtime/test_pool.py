@@ -303,3 +303,39 @@ def test_retry_after_follows_the_recent_job_time() -> None:
         asyncio.run(scenario())
     finally:
         small.close()
+
+
+def test_a_spread_job_gets_the_idle_workers_and_gives_them_back(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    monkeypatch.setattr("service.runtime.pool.cores_idle", lambda: 2)  # an idle machine
+    p = WorkPool(2, 2, budget_seconds=20.0)
+
+    async def scenario() -> tuple[tuple[int, list[int]], tuple[int, list[int]], int]:
+        await p.wait_until_ready()
+        spread = await p.run(pool_jobs.spread_pids, 6, spread=True)
+        plain = await p.run(pool_jobs.spread_pids, 6)
+        # Both workers are free again: two jobs run at once.
+        pids = await asyncio.gather(p.run(pool_jobs.pid), p.run(pool_jobs.pid))
+        return spread, plain, len(set(pids))
+
+    try:
+        spread, plain, workers = asyncio.run(scenario())
+    finally:
+        p.close()
+    assert spread[0] == 1 and len(set(spread[1])) == 2  # the worker and one forked helper
+    assert plain[0] == 0
+    assert workers == 2
+    assert p.stats().busy == 0
+
+
+def test_nothing_is_lent_while_other_processes_want_the_cores(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    monkeypatch.setattr("service.runtime.pool.cores_idle", lambda: 1)  # one core, the job's
+    p = WorkPool(2, 2, budget_seconds=20.0)
+    try:
+        lent, _ = asyncio.run(p.run(pool_jobs.spread_pids, 2, spread=True))
+    finally:
+        p.close()
+    assert lent == 0

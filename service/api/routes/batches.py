@@ -183,8 +183,15 @@ class _Deadline:
         """Seconds until the deadline."""
         return self.deadline - asyncio.get_running_loop().time()
 
-    async def run(self, fn: Callable[..., T], *args: Any, budget_seconds: float | None = None) -> T:
-        """The pool's run, its budget cut to what is left of the batch's."""
+    async def run(
+        self,
+        fn: Callable[..., T],
+        *args: Any,
+        budget_seconds: float | None = None,
+        spread: bool = False,
+    ) -> T:
+        """The pool's run, its budget cut to what is left of the batch's; never spread (the
+        batch keeps every worker busy with its own items)."""
         left = self.left()
         if left <= 0:
             raise _NotRun()

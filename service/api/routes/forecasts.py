@@ -30,7 +30,11 @@ class Runner(Protocol):
     """What a forecast needs of the pool (a batch hands in one bounded by its deadline)."""
 
     async def run(
-        self, fn: Callable[..., T], *args: Any, budget_seconds: float | None = None
+        self,
+        fn: Callable[..., T],
+        *args: Any,
+        budget_seconds: float | None = None,
+        spread: bool = False,
     ) -> T: ...
 
 
@@ -51,7 +55,9 @@ async def _computed(
     that a new horizon or coverage on the same data needs no refit."""
     cache = get_cache(request)
     if task.specification is None or not cache.enabled:
-        return render.forecast_answer(await pool.run(jobs.forecast, task)), None
+        # Model auto may spread its candidates over workers that are idle (runtime/spread.py).
+        answer = await pool.run(jobs.forecast, task, spread=task.specification is None)
+        return render.forecast_answer(answer), None
     telemetry = get_telemetry(request)
     key = fit_key_for(task)
     stored = await asyncio.to_thread(cache.load_fitted, key)
