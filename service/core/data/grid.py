@@ -74,5 +74,6 @@ def future_index(index: pd.DatetimeIndex, horizon: int) -> pd.DatetimeIndex:
     freq = index.freq
     if freq is None:
         raise ValueError("the series index has no frequency; parse it with core.series first")
-    start = index[-1] + freq
-    return pd.date_range(start=start, periods=horizon, freq=freq, tz=index.tz)
+    # By array arithmetic where it can, as regular_grid: equal to date_range, and a backtest
+    # asks for one at every origin of every candidate.
+    return regular_grid(index[-1] + freq, horizon, freq)
