@@ -125,7 +125,10 @@ def cluster() -> Iterator[str]:
 
 
 def test_a_dask_cluster_gives_exactly_the_local_answers(
-    cluster: str, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+    cluster: str,
+    tmp_path: Path,
+    monkeypatch: pytest.MonkeyPatch,
+    capsys: pytest.CaptureFixture[str],
 ) -> None:
     monkeypatch.setenv("WINDVANE_CACHE", "off")
     source = tmp_path / "sales.parquet"
@@ -135,9 +138,17 @@ def test_a_dask_cluster_gives_exactly_the_local_answers(
     monkeypatch.setenv("WINDVANE_DASK_SCHEDULER", cluster)
     assert run(source, remote) == 0
     assert local.read_text().splitlines() == remote.read_text().splitlines()
-    summaries = [p.with_name(p.stem + ".summary.csv").read_text() for p in (local, remote)]
-    assert summaries[0] == summaries[1]
-    assert "broken" in summaries[0]
+    summaries = [p.with_name(p.stem + ".summary.csv") for p in (local, remote)]
+    assert summaries[0].read_text() == summaries[1].read_text()
+    # On the cluster too the malformed series is reported and the others are answered.
+    status = pd.read_csv(summaries[1]).set_index("series_id")["status"].to_dict()
+    assert status == {"s0": 200, "broken": 422, "s1": 200, "s2": 200}
+    assert "4 series: 3 answered, 1 failed" in capsys.readouterr().out
+    # A resumed run on the cluster sends only the series not yet answered (the broken one).
+    before = remote.read_text()
+    assert run(source, remote) == 0
+    assert "this run: 1 series forecast, 3 already done" in capsys.readouterr().out
+    assert remote.read_text() == before
 
 
 def test_run_failures_are_one_line_with_a_status(
