@@ -54,6 +54,11 @@ def test_a_constant_series_is_answered_with_tests_marked_not_applicable(client: 
 def test_a_short_series_and_missing_values_are_answered(client: Any) -> None:
     short = client.post("/v1/diagnostics", json={**_series([1.0, 2.0, 4.0, 3.0]), "max_lag": 50})
     assert short.status_code == 200
+    answered = short.json()
+    assert answered["stationarity"]["verdict"] == "not_applicable"
+    assert "at least 10" in answered["stationarity"]["adf_constant"]["reason"]
+    acf = answered["autocorrelation"]["series"]
+    assert acf["max_lag"] == 1 and acf["notes"] == ["max_lag 50 clamped to 1 for 4 observations"]
     rng = np.random.default_rng(3)
     values: list[Any] = list(np.round(rng.normal(10, 1, 60), 3))
     values[10] = values[11] = None

@@ -347,7 +347,12 @@ def test_truncated_json_is_a_client_problem(client: TestClient, data: st.DataObj
 
 def test_the_bases_are_answered(client: TestClient) -> None:
     for body in BASES:
-        assert client.post(PATH, json=body).status_code == 200
+        response = client.post(PATH, json=body)
+        assert response.status_code == 200, response.text
+        answer = ForecastResponse.model_validate(response.json())
+        assert len(answer.point) == body["horizon"]
+        assert [i.coverage for i in answer.intervals] == body["coverage"]
+        assert answer.model.family == body["model"]["family"]
 
 
 def test_library_versions_in_provenance_follow_the_setting(

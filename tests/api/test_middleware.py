@@ -68,7 +68,10 @@ def test_a_problem_carries_the_request_id_of_its_response(client: TestClient) ->
 
 
 def test_a_body_at_the_limit_is_read(small: TestClient) -> None:
-    assert post(small, body_of_size(LIMIT)).status_code == 200
+    response = post(small, body_of_size(LIMIT))
+    assert response.status_code == 200, response.text
+    assert response.json()["model"]["family"] == "naive"
+    assert len(response.json()["point"]) == demo.orders().horizon
 
 
 def test_a_body_one_byte_over_the_limit_is_refused(small: TestClient) -> None:

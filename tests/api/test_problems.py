@@ -364,6 +364,9 @@ def test_the_two_base_bodies_are_valid(limited_client: TestClient) -> None:
     for body in (start_body(), stamps_body()):
         response = limited_client.post(PATH, json=body)
         assert response.status_code == 200, response.text
+        answer = response.json()
+        assert len(answer["point"]) == body["horizon"] and answer["warnings"] == []
+        assert answer["model"]["family"] == body["model"]["family"]
 
 
 def test_the_table_has_at_least_thirty_rows() -> None:
@@ -415,3 +418,5 @@ def test_a_null_is_a_missing_value_by_default(limited_client: TestClient) -> Non
         PATH, content=NULL_AT_3, headers={"content-type": "application/json"}
     )
     assert response.status_code == 200, response.text
+    assert [w["code"] for w in response.json()["warnings"]] == ["interpolated"]
+    assert response.json()["warnings"][0]["message"].startswith("1 missing value(s)")
