@@ -20,13 +20,6 @@ def check_positive_int(value: object, name: str, maximum: int | None = None) -> 
     return value
 
 
-def check_non_negative_int(value: object, name: str) -> int:
-    """An integer >= 0."""
-    if isinstance(value, bool) or not isinstance(value, int) or value < 0:
-        raise RequestError(f"{name} must be a whole number >= 0, got {value!r}", field=name)
-    return value
-
-
 def check_coverage(levels: Sequence[float], name: str = "coverage") -> tuple[float, ...]:
     """Coverage levels strictly between 0 and 1, unique, returned sorted ascending."""
     out: list[float] = []

@@ -34,7 +34,6 @@ DEFAULT_WIDTH = 900
 DEFAULT_HEIGHT = 450
 MIN_PIXELS = 200
 MAX_PIXELS = 3000
-FORMATS = ("svg", "png")
 
 
 @dataclass(frozen=True)

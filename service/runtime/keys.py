@@ -158,8 +158,3 @@ def fit_key(
         .versions()
         .finish()
     )
-
-
-def request_key(fit: Key, options: Mapping[str, Any]) -> Key:
-    """Key of a finished response: the fit key plus every other request option."""
-    return KeyBuilder("response").text("fit", fit.digest).json("options", options).finish()

@@ -160,7 +160,7 @@ def compare_tests(n: int = 100, replications: int = 20_000, seed: int = 1) -> No
         return d.shape[1] * gamma, gamma / np.sqrt(scale / xx)
 
     tests: dict[str, Callable[[np.ndarray], np.ndarray]] = {
-        "weighted symmetric n(rho - 1)": lambda y: st.row_statistics(y),
+        "weighted symmetric n(rho - 1)": lambda y: st.row_statistics(y, "c")[0],
         "Dickey-Fuller n(rho - 1)": lambda y: dickey_fuller(y)[0],
         "Dickey-Fuller t": lambda y: dickey_fuller(y)[1],
     }

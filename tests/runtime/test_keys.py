@@ -12,7 +12,6 @@ from service.runtime.keys import (
     data_key,
     fit_key,
     float64_bytes,
-    request_key,
     runtime_versions,
     timestamp_bytes,
 )
@@ -74,14 +73,6 @@ def test_every_nan_hashes_alike() -> None:
     other = np.frombuffer(np.uint64(0x7FF8000000000001).tobytes(), dtype="<f8")
     assert np.isnan(other[0])
     assert float64_bytes(quiet) == float64_bytes(other)
-
-
-def test_horizon_is_in_the_request_key_not_in_the_fit_key() -> None:
-    fitted = fit_key(weekly([1.0, 2.0, 3.0]), 1, SPEC)
-    short = request_key(fitted, {"horizon": 4, "coverage": [0.8, 0.95]})
-    long = request_key(fitted, {"horizon": 8, "coverage": [0.8, 0.95]})
-    assert short != long
-    assert short == request_key(fitted, {"coverage": (0.8, 0.95), "horizon": 4})
 
 
 def test_parts_are_framed_so_boundaries_matter() -> None:

@@ -1,19 +1,6 @@
-"""Frequencies: ISO 8601 durations and pandas aliases to offsets, and default seasonal periods.
+"""Frequencies: ISO 8601 durations and pandas aliases to offsets, and their steps.
 
-Default seasonal period by step (the cycle most business series repeat):
-
-| step                 | period | cycle                |
-| -------------------- | ------ | -------------------- |
-| n seconds            | 60/n   | a minute (if n divides 60, else 1) |
-| n minutes            | 1440/n | a day (if n divides 1440, else 1)  |
-| n hours              | 24/n   | a day (if n divides 24, else 1)    |
-| 1 day                | 7      | a week               |
-| business day         | 5      | a working week       |
-| n days (n > 1)       | 1      | none                 |
-| 1 week               | 52     | a year               |
-| n weeks              | 52/n   | a year (if n divides 52, else 1)   |
-| n months             | 12/n   | a year (if n divides 12, else 1): monthly 12, quarterly 4 |
-| a year or longer     | 1      | none                 |
+The default seasonal periods of each step are in ``periods.py``.
 
 Spellings people write, beside ISO 8601 durations and the current pandas aliases: the
 aliases recent pandas versions renamed or removed are read as the steps they meant, in
@@ -202,32 +189,6 @@ def step_of(offset: pd.DateOffset) -> Step | None:
         if set(kwds) == {"years"}:
             return Step("months", 12 * n * int(kwds["years"]))
     return None
-
-
-def default_seasonal_period(offset: pd.DateOffset) -> int:
-    """The period of the cycle a series at this step usually repeats (table in the docstring)."""
-    step = step_of(offset)
-    if step is None:
-        return 1
-    cycles = {"months": 12, "weeks": 52}
-    if step.unit in cycles:
-        return _divides(cycles[step.unit], step.count)
-    if step.unit == "business_days":
-        return 5 if step.count == 1 else 1
-    seconds = step.count
-    if seconds == 86400:
-        return 7
-    if seconds % 3600 == 0 and seconds < 86400:
-        return _divides(24, seconds // 3600)
-    if seconds % 60 == 0 and seconds < 3600:
-        return _divides(1440, seconds // 60)
-    if seconds < 60:
-        return _divides(60, seconds)
-    return 1
-
-
-def _divides(cycle: int, count: int) -> int:
-    return cycle // count if cycle % count == 0 and cycle // count > 1 else 1
 
 
 def frequency_name(offset: pd.DateOffset) -> str:

@@ -55,8 +55,6 @@ RULE = (
     "with drift when a t-test finds the mean difference non-zero at 5 %."
 )
 
-GRADES = ("random_walk", "behaves_like_random_walk", "seasonal_random_walk", "not_random_walk")
-
 
 OVERDIFFERENCED_Z = 2.575829
 """Two-sided 1 % normal quantile: a lag-m autocorrelation of the seasonal differences below

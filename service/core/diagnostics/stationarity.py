@@ -49,8 +49,6 @@ VERDICT_RULE = (
     "inconclusive below 20 points, with KPSS reported beside it as a check."
 )
 
-_NAMES = {"c": "constant", "ct": "constant_and_trend"}
-
 
 @dataclass(frozen=True)
 class HypothesisTest:

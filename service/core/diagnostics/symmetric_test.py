@@ -93,11 +93,11 @@ POWER_LEVEL: dict[str, float] = {"c": 0.05, "ct": 0.01}
 
 def statistic(y: np.ndarray, terms: Terms) -> tuple[float, float]:
     """n (ρ̂ - 1) and ρ̂ of the weighted symmetric estimator on the demeaned (detrended) series."""
-    stats, rho = _statistics(y[None, :], terms)
+    stats, rho = row_statistics(y[None, :], terms)
     return float(stats[0]), float(rho[0])
 
 
-def _statistics(y: np.ndarray, terms: Terms) -> tuple[np.ndarray, np.ndarray]:
+def row_statistics(y: np.ndarray, terms: Terms) -> tuple[np.ndarray, np.ndarray]:
     """Row-wise statistic and coefficient: ρ̂ = Σ z_t z_{t-1} / (Σ_{2..n-1} z_t² + Σ z_t² / n)."""
     n = y.shape[1]
     z = y - y.mean(axis=1, keepdims=True)
@@ -109,11 +109,6 @@ def _statistics(y: np.ndarray, terms: Terms) -> tuple[np.ndarray, np.ndarray]:
     inner = np.einsum("ij,ij->i", z[:, 1:-1], z[:, 1:-1])
     rho = lagged / (inner + np.einsum("ij,ij->i", z, z) / n)
     return n * (rho - 1.0), rho
-
-
-def row_statistics(y: np.ndarray, terms: Terms = "c") -> np.ndarray:
-    """The statistic of each row of y (for simulations)."""
-    return _statistics(y, terms)[0]
 
 
 def critical_value(terms: Terms, level: float, n: int) -> float:
@@ -146,7 +141,7 @@ def simulated_quantiles(index: int, terms: Terms) -> np.ndarray:
     rng = _stream(index, terms, 0)
     chunk = 2_000
     values = [
-        _statistics(np.cumsum(rng.standard_normal((chunk, n)), axis=1), terms)[0]
+        row_statistics(np.cumsum(rng.standard_normal((chunk, n)), axis=1), terms)[0]
         for _ in range(CRITICAL_REPLICATIONS // chunk)
     ]
     return np.quantile(np.concatenate(values), LEVELS)
@@ -159,7 +154,7 @@ def simulated_power_coefficient(index: int, terms: Terms, critical: float) -> fl
     low, high = 0.0, 1.0
     for _ in range(14):
         middle = 0.5 * (low + high)
-        power = float(np.mean(_statistics(_ar1(shocks, middle), terms)[0] < critical))
+        power = float(np.mean(row_statistics(_ar1(shocks, middle), terms)[0] < critical))
         low, high = (middle, high) if power >= POWER else (low, middle)
     return round(0.5 * (low + high), 4)
 

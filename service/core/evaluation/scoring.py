@@ -122,16 +122,3 @@ def check_metric(metric: str, name: str = "metric") -> str:
             f"{name} must be one of {', '.join(POINT_METRICS)}; got {metric!r}", field=name
         )
     return metric
-
-
-def point_score(metric: str, actual: np.ndarray, forecast: np.ndarray, scale: float) -> float:
-    """One point metric by name (``scale`` is used by MASE only)."""
-    if metric == "mase":
-        return mase(actual, forecast, scale)
-    if metric == "smape":
-        return smape(actual, forecast)
-    if metric == "rmse":
-        return rmse(actual, forecast)
-    if metric == "mae":
-        return mae(actual, forecast)
-    raise RequestError(f"unknown metric {metric!r}", field="metric")

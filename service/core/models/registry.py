@@ -45,12 +45,6 @@ _FAMILY_CLASSES: tuple[type[Any], ...] = (
 FAMILIES: dict[str, type[Any]] = {cls.family: cls for cls in _FAMILY_CLASSES}
 
 
-def register(cls: type[Any]) -> type[Any]:
-    """Add a family (used by families defined outside this module, and by tests)."""
-    FAMILIES[cls.family] = cls
-    return cls
-
-
 def parameters_of(cls: type[Any]) -> list[ParameterInfo]:
     """The catalogue entries of one family's hyperparameters, in declaration order."""
     out = []

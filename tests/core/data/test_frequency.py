@@ -7,7 +7,6 @@ import pytest
 
 from service.core.data.frequency import (
     Step,
-    default_seasonal_period,
     frequency_name,
     parse_frequency,
     step_of,
@@ -91,39 +90,6 @@ def test_bad_frequencies_name_the_field(text: str) -> None:
 def test_a_non_string_frequency_is_refused() -> None:
     with pytest.raises(SeriesError):
         parse_frequency(7, None, "frequency")  # type: ignore[arg-type]
-
-
-@pytest.mark.parametrize(
-    ("text", "period"),
-    [
-        ("PT1S", 60),
-        ("PT7S", 1),
-        ("PT1M", 1440),
-        ("PT10M", 144),
-        ("PT7M", 1),
-        ("h", 24),
-        ("2h", 12),
-        ("5h", 1),
-        ("D", 7),
-        ("2D", 1),
-        ("B", 5),
-        ("2B", 1),
-        ("W-MON", 52),
-        ("2W-MON", 26),
-        ("3W-MON", 1),
-        ("MS", 12),
-        ("ME", 12),
-        ("2MS", 6),
-        ("5MS", 1),
-        ("QS-JAN", 4),
-        ("QE-DEC", 4),
-        ("YS-JAN", 1),
-        ("YE-DEC", 1),
-    ],
-)
-def test_default_seasonal_periods_follow_the_table(text: str, period: int) -> None:
-    # The table is the docstring of service.core.data.frequency (common practice).
-    assert default_seasonal_period(parse_frequency(text, None, "frequency")) == period
 
 
 @pytest.mark.parametrize(
