@@ -20,6 +20,7 @@ from xml.sax.saxutils import escape
 
 import numpy as np
 
+from service.core.applicability import NotApplicable
 from service.core.data.filling import interpolate_gaps
 
 HISTORY_COLOUR = "#2f3e46"
@@ -175,26 +176,30 @@ def _correlogram(
 
 
 def _decomposition(values: np.ndarray, periods: list[int]) -> dict[str, np.ndarray]:
-    """Trend, one seasonal component per period and the remainder (STL or MSTL)."""
-    from statsmodels.tsa.seasonal import MSTL, STL
+    """Trend, one seasonal component per period and the remainder: the diagnostics' own STL
+    (one period) or MSTL (several), so the chart shows what the response reports."""
+    # Imported here: statsmodels stays out of the server process, which only calls the pool.
+    from service.core.diagnostics.cycles import mstl_parts
+    from service.core.diagnostics.seasonality import decompose
 
     filled = interpolate_gaps(values)
     usable = sorted(p for p in periods if p > 1 and len(filled) >= 2 * p + 1)
     if not usable:
         return {}
     if len(usable) == 1:
-        result = STL(filled, period=usable[0], robust=True).fit()
+        single = decompose(filled, usable[0])
+        if isinstance(single, NotApplicable) or single.seasonal is None:
+            return {}
         return {
-            "trend": result.trend,
-            f"season (period {usable[0]})": result.seasonal,
-            "remainder": result.resid,
+            "trend": single.trend,
+            f"season (period {usable[0]})": single.seasonal,
+            "remainder": single.remainder,
         }
-    result = MSTL(filled, periods=usable).fit()
-    seasonal = np.asarray(result.seasonal).reshape(len(filled), -1)
-    parts = {"trend": np.asarray(result.trend)}
+    several = mstl_parts(filled, usable)
+    parts = {"trend": several.trend}
     for column, period in enumerate(usable):
-        parts[f"season (period {period})"] = seasonal[:, column]
-    parts["remainder"] = np.asarray(result.resid)
+        parts[f"season (period {period})"] = several.seasonal[:, column]
+    parts["remainder"] = several.remainder
     return parts
 
 
