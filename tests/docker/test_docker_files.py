@@ -448,3 +448,72 @@ def test_the_readme_runs_the_image_with_an_init_process() -> None:
     readme = (ROOT / "README.md").read_text()
     runs = [line for line in readme.splitlines() if line.strip().startswith("docker run")]
     assert runs and all("--init" in line for line in runs), runs
+
+
+# --- compose: the batch profile -------------------------------------------------------------
+
+
+def option(command: list[str], name: str) -> str:
+    """The value after ``name`` in a command list."""
+    return command[command.index(name) + 1]
+
+
+def test_the_batch_profile_is_a_dask_cluster_of_the_windvane_image(
+    compose: dict[str, Any], steps: list[Instruction]
+) -> None:
+    services = compose["services"]
+    scheduler, worker = services["batch-scheduler"], services["batch-worker"]
+    for service in (scheduler, worker):
+        assert service["profiles"] == ["batch"]
+        # Naming only the batch services (as the README does) builds the service's image.
+        assert service["build"] == services["windvane"]["build"]
+        assert service["image"] == services["windvane"]["image"]
+    # The image installs Dask (the [batch] extra), so the `dask` commands exist in it.
+    extra = tomllib.loads((ROOT / "pyproject.toml").read_text())["project"]["optional-dependencies"]
+    assert any(d.startswith("dask[distributed]") for d in extra["batch"])
+    assert any('"windvane[batch]"' in s.arguments for s in final_stage(steps) if s.keyword == "RUN")
+    assert scheduler["command"][:2] == ["dask", "scheduler"]
+    port = option(scheduler["command"], "--port")
+    assert f"127.0.0.1:{port}:{port}" in scheduler["ports"]
+    command = worker["command"]
+    assert command[:3] == ["dask", "worker", f"tcp://batch-scheduler:{port}"]
+    assert option(command, "--nthreads") == "1" and option(command, "--nworkers") == "1"
+    env = worker["environment"]
+    assert all(
+        env[k] == "1" for k in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+    )
+
+
+def test_batch_workers_share_the_services_cache_and_secret(compose: dict[str, Any]) -> None:
+    services = compose["services"]
+    service, worker = services["windvane"]["environment"], services["batch-worker"]
+    assert worker["environment"]["WINDVANE_CACHE_DIR"] == service["WINDVANE_CACHE_DIR"]
+    assert worker["environment"]["WINDVANE_CACHE_SECRET"] == service["WINDVANE_CACHE_SECRET"]
+    assert worker["volumes"] == services["windvane"]["volumes"]
+
+
+def test_batch_services_probe_their_own_health_endpoint(compose: dict[str, Any]) -> None:
+    # The image's HEALTHCHECK probes the service's port, where nothing listens in a Dask
+    # container: each batch service probes Dask's /health on its own HTTP port.
+    services = compose["services"]
+    for name in ("batch-scheduler", "batch-worker"):
+        service = services[name]
+        port = option(service["command"], "--dashboard-address").lstrip(":")
+        probe = " ".join(service["healthcheck"]["test"])
+        assert f"http://127.0.0.1:{port}/health" in probe, name
+    assert services["batch-worker"]["depends_on"]["batch-scheduler"]["condition"] == (
+        "service_healthy"
+    )
+
+
+def test_the_readme_starts_the_batch_profile_by_existing_service_names(
+    compose: dict[str, Any],
+) -> None:
+    readme = (ROOT / "README.md").read_text()
+    [line] = [x for x in readme.splitlines() if "--profile batch" in x and "compose" in x]
+    words = line.split()
+    assert words[words.index("--profile") + 1] == "batch"
+    named = [w for w in words if w.startswith("batch-")]
+    assert named and set(named) <= set(compose["services"]), named
+    port = option(compose["services"]["batch-scheduler"]["command"], "--port")
+    assert f"--scheduler tcp://127.0.0.1:{port}" in readme
