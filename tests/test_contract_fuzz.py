@@ -7,6 +7,7 @@ an RFC 9457 problem. Hypothesis runs derandomized, so a failure reproduces.
 
 from __future__ import annotations
 
+import time
 from collections import Counter
 from collections.abc import Iterator
 from pathlib import Path
@@ -43,6 +44,7 @@ CHECKS = [
     response_schema_conformance,
 ]
 PROBLEM = "application/problem+json"
+READY_SECONDS = 60
 
 SENT: Counter[str] = Counter()
 STATUSES: Counter[int] = Counter()
@@ -62,6 +64,10 @@ def client(tmp_path_factory: pytest.TempPathFactory) -> Iterator[TestClient]:
         )
     )
     with TestClient(app, raise_server_exceptions=False) as test_client:
+        # The pool starts in the background: fuzz the ready service (/readyz answers 200).
+        deadline = time.monotonic() + READY_SECONDS
+        while test_client.get("/readyz").status_code != 200 and time.monotonic() < deadline:
+            time.sleep(0.05)
         yield test_client
 
 

@@ -58,6 +58,25 @@ def install_limits(app: FastAPI, settings: Settings) -> None:
     app.openapi = openapi  # type: ignore[method-assign]
 
 
+PROBLEM = "application/problem+json"
+
+
+def problem_schemas(document: dict[str, Any]) -> dict[str, Any]:
+    """Every problem answer described under the media type it is sent with: FastAPI files a
+    response model under application/json, and a problem+json entry is left without one."""
+    ref = {"$ref": "#/components/schemas/Problem"}
+    for operations in document.get("paths", {}).values():
+        for operation in operations.values():
+            for response in operation.get("responses", {}).values():
+                content = response.get("content", {})
+                if PROBLEM not in content:
+                    continue
+                if content.get("application/json", {}).get("schema") == ref:
+                    del content["application/json"]
+                content[PROBLEM] = {**content[PROBLEM], "schema": ref}
+    return document
+
+
 def install_document(
     app: FastAPI,
     settings: Settings,
@@ -70,6 +89,7 @@ def install_document(
     def with_specifications() -> dict[str, Any]:
         if app.openapi_schema is None:
             document = describe_representations(add_specification_schemas(build()))
+            document = problem_schemas(document)
             app.openapi_schema = amend(document)
         return app.openapi_schema
 
