@@ -36,6 +36,10 @@ Rules (the table DEVELOPERS.md carries; n = observations, m = seasonal period):
       and long period          + stl with ets base (and, when thorough, stl with arima
                                  base), instead of the seasonal variants of ets and arima;
                                  ets then runs with m = 1
+      and periods that matter  + mstl with ets base and harmonic regression (also on the log
+        are several or one       scale when positive); beside them stl is left out when the
+        is above 24              periods are several, and with a long period the models
+                                 fitted with m = 1 (ets, the SES/Holt/damped combination)
 
 A family that is not (yet) in the registry is skipped and listed in ``skipped``. The
 figures behind each rule are in tests/benchmarks/RESULTS.md.
@@ -256,8 +260,10 @@ def candidate_rules(
         out.append(({"family": "stl", "base": {"family": "ets"}}, "long season: STL + ETS"))
         if thorough:
             out.append(({"family": "stl", "base": {"family": "arima"}}, "long season: STL + ARIMA"))
-    out += several_period_rules(profile)
-    return out
+    several = several_period_rules(profile)
+    if several:
+        out = [rule for rule in out if not _superseded(rule[0], several, profile)]
+    return out + several
 
 
 # --- several or long periods (issue 14): MSTL and harmonic regression -------------------
@@ -287,6 +293,20 @@ def several_period_rules(profile: SeriesProfile) -> list[tuple[dict[str, Any], s
         logged = {"family": "harmonic_regression", "periods": periods, TRANSFORM_KEY: "log"}
         out.append((logged, f"periods {text}: harmonic regression on the log scale (positive)"))
     return out
+
+
+def _superseded(
+    data: Mapping[str, Any], several: list[tuple[dict[str, Any], str]], profile: SeriesProfile
+) -> bool:
+    """Candidates that model fewer of the periods that matter than MSTL and harmonic regression
+    do, left out beside them: STL at the first period alone when there are several, and, for a
+    long period, the models fitted without any (period 1). On hourly counts with daily and
+    weekly cycles these forecast Monday at Sunday night's level, and their share of the
+    combination cost more than the members they joined gained (tests/benchmarks/RESULTS.md)."""
+    family = data.get("family")
+    if family == "stl":
+        return len(several[0][0]["periods"]) > 1
+    return profile.long_period and family in ("ets", "combination")
 
 
 def candidates_for(profile: SeriesProfile, thorough: bool = False) -> CandidateSet:
