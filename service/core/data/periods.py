@@ -130,5 +130,31 @@ def usual_periods(offset: pd.DateOffset) -> tuple[float, ...]:
     return ()
 
 
+_CYCLE_SECONDS = (
+    (60.0, "minute-long"),
+    (3600.0, "hourly"),
+    (86400.0, "daily"),
+    (7 * 86400.0, "weekly"),
+    (YEAR_DAYS * 86400.0, "yearly"),
+)
+
+
+def cycle_name(period: float, offset: pd.DateOffset | None) -> str | None:
+    """The cycle's everyday name at this step ("daily" for 24 hourly steps, "yearly" for 52.18
+    weeks or 365 days), within 1 %; None when it is no calendar cycle."""
+    step = None if offset is None else step_of(offset)
+    if step is None:
+        return None
+    if step.unit == "months":
+        return "yearly" if math.isclose(period * step.count, 12, rel_tol=0.01) else None
+    if step.unit == "business_days":
+        return "weekly" if math.isclose(period * step.count, 5, rel_tol=0.01) else None
+    length = period * step.count * (7 * 86400 if step.unit == "weeks" else 1)
+    for seconds, name in _CYCLE_SECONDS:
+        if math.isclose(length, seconds, rel_tol=0.01):
+            return name
+    return None
+
+
 def _whole(cycle: int, count: int) -> tuple[float, ...]:
     return (float(cycle // count),) if cycle % count == 0 and cycle // count > 1 else ()

@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+import pandas as pd
+from pandas.tseries.frequencies import to_offset
+
 from service.core.applicability import NotApplicable
-from service.core.data.periods import period_text
+from service.core.data.periods import cycle_name, period_text
 from service.core.diagnostics.cycles import SeveralPeriods
 from service.core.diagnostics.differencing import DifferencingOrders
 from service.core.diagnostics.random_walk import RandomWalkVerdict
@@ -93,7 +96,7 @@ def _seasonality(d: Diagnostics) -> list[str]:
     s = d.seasonality
     if not isinstance(s, Seasonality):
         return []
-    out = _cycles(s.several) if s.several is not None else []
+    out = _cycles(s.several, d.summary.frequency) if s.several is not None else []
     if isinstance(s.seasonal_strength, float):
         if s.seasonal_strength > STRONG:
             out.append(
@@ -116,23 +119,39 @@ def _seasonality(d: Diagnostics) -> list[str]:
     return out
 
 
-def _cycles(several: SeveralPeriods) -> list[str]:
-    """Which cycles drive the series, by their MSTL strengths."""
+def _cycles(several: SeveralPeriods, frequency: str) -> list[str]:
+    """Which cycles drive the series, by their MSTL strengths, each named ("the daily (24
+    steps) and weekly (168 steps) cycles")."""
     strong = [p for p in several.periods if p.matters]
     weak = [p for p in several.periods if not p.matters]
+    offset = _offset(frequency)
     out = []
     if strong:
-        names = " and ".join(period_text(p.period) for p in strong)
+        names = " and ".join(_cycle(p.period, offset) for p in strong)
         values = " and ".join(f"{p.strength:.2f}" for p in strong)
         out.append(
-            f"The cycles of {names} steps drive the series (MSTL strengths {values}): "
+            f"The {names} cycles drive the series (MSTL strengths {values}): "
             "use a model for several seasonal periods."
             if len(strong) > 1
-            else f"The cycle of {names} steps drives the series (MSTL strength {values})."
+            else f"The {names} cycle drives the series (MSTL strength {values})."
         )
     for p in weak:
         out.append(
-            f"The cycle of {period_text(p.period)} steps is weak (MSTL strength "
+            f"The {_cycle(p.period, offset)} cycle is weak (MSTL strength "
             f"{p.strength:.2f}); a model can leave it out."
         )
     return out
+
+
+def _cycle(period: float, offset: pd.DateOffset | None) -> str:
+    """A calendar cycle by name and length ("daily (24 steps)"), another by length ("24-step")."""
+    name = cycle_name(period, offset)
+    text = period_text(period)
+    return f"{name} ({text} steps)" if name else f"{text}-step"
+
+
+def _offset(frequency: str) -> pd.DateOffset | None:
+    try:
+        return to_offset(frequency)
+    except (TypeError, ValueError):
+        return None

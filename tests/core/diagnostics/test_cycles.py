@@ -5,7 +5,9 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from pandas.tseries.frequencies import to_offset
 
+from service.core.data.periods import cycle_name
 from service.core.diagnostics.report import diagnose
 from service.core.diagnostics.seasonality import fundamental
 from service.core.selection.candidates import candidate_rules, profile_series
@@ -47,7 +49,35 @@ def test_clean_two_cycle_data_yields_few_outliers_on_the_mstl_remainder() -> Non
 
 def test_findings_name_the_cycles_that_drive_the_series() -> None:
     report = diagnose(daily_calls(years=3), 7, periods=(7.0, 365.25))
-    assert any("cycles of 7 and 365.25 steps drive the series" in f for f in report.findings)
+    text = "The weekly (7 steps) and yearly (365.25 steps) cycles drive the series"
+    assert any(f.startswith(text) for f in report.findings)
+    hourly = diagnose(hourly_counts(weeks=6), 24, periods=(24.0, 168.0))
+    text = "The daily (24 steps) and weekly (168 steps) cycles drive the series"
+    assert any(f.startswith(text) for f in hourly.findings)
+
+
+@pytest.mark.parametrize(
+    ("period", "freq", "name"),
+    [
+        (24, "h", "daily"),
+        (168, "h", "weekly"),
+        (48, "30min", "daily"),
+        (7, "D", "weekly"),
+        (365.25, "D", "yearly"),
+        (365, "D", "yearly"),
+        (52.18, "W-SUN", "yearly"),
+        (12, "MS", "yearly"),
+        (4, "QS", "yearly"),
+        (5, "B", "weekly"),
+        (60, "s", "minute-long"),
+        (10, "D", None),
+        (100, "h", None),
+    ],
+)
+def test_cycles_are_named_by_their_calendar_length(
+    period: float, freq: str, name: str | None
+) -> None:
+    assert cycle_name(period, to_offset(freq)) == name
 
 
 def test_auto_considers_mstl_and_harmonic_regression_for_several_periods() -> None:
@@ -56,5 +86,17 @@ def test_auto_considers_mstl_and_harmonic_regression_for_several_periods() -> No
     profile = profile_series(y, 24, report)
     families = [data["family"] for data, _ in candidate_rules(profile)]
     assert "mstl" in families and families.count("harmonic_regression") == 2
+    # Beside them, the models of fewer periods go: STL at 24 alone, and ETS and the
+    # SES/Holt/damped average fitted without a period (24 is long); the benchmarks stay.
+    assert not {"stl", "ets", "combination"} & set(families)
+    assert {"naive", "seasonal_naive", "drift"} <= set(families)
     single = profile_series(y, 24, diagnose(y, 24))
-    assert "mstl" not in [data["family"] for data, _ in candidate_rules(single)]
+    families = [data["family"] for data, _ in candidate_rules(single)]
+    assert "mstl" not in families and {"stl", "ets", "combination"} <= set(families)
+
+
+def test_one_long_period_keeps_the_models_without_a_period_beside_mstl() -> None:
+    y = hourly_counts(weeks=6)
+    profile = profile_series(y, 168, diagnose(y, 168))
+    families = [data["family"] for data, _ in candidate_rules(profile)]
+    assert "mstl" in families and {"stl", "ets", "combination"} <= set(families)
