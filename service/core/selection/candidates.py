@@ -23,7 +23,7 @@ Rules (the table DEVELOPERS.md carries; n = observations, m = seasonal period):
     intermittent               croston (classic), croston (sba), mean
     not intermittent           ets (AICc over the taxonomy), drift (benchmark only)
       and positive             + ets with additive errors on the log scale (AICc over trend
-                                 and season)
+                                 and season; a damped trend, season by AICc, when m <= 4)
       and fitted with m = 1    + the equal-weight combination of SES, Holt and damped Holt
                                  (additive errors), the M4 competition's benchmark; no theta
                                  (without a season it is SES with drift, inside that span)
@@ -71,6 +71,8 @@ SEASONAL_STRENGTH = 0.64
 LONG_PERIOD = 24
 SHORT_POINTS = 30
 SHORT_SEASONS = 3
+DAMPED_LOG_PERIOD = 4
+"""Up to this seasonal period the log-scale ETS candidate has a damped trend."""
 TRANSFORM_KEY = "transform"
 """A rule's dict may name a transform: the specification is then fitted on that scale."""
 
@@ -233,9 +235,15 @@ def candidate_rules(
     out.append(({"family": "ets"}, "exponential smoothing, AICc over the taxonomy"))
     if profile.positive:
         # Additive errors on the log scale: growth and seasons proportional to the level,
-        # with bounds that stay positive.
-        logged = {"family": "ets", "error": "add", TRANSFORM_KEY: "log"}
-        out.append((logged, "exponential smoothing on the log scale (positive series)"))
+        # with bounds that stay positive. With a period of at most DAMPED_LOG_PERIOD (yearly,
+        # quarterly, non-seasonal data) its trend is damped: a log-scale trend compounds, and
+        # short histories give little evidence that growth goes on at the same rate.
+        logged: dict[str, Any] = {"family": "ets", "error": "add", TRANSFORM_KEY: "log"}
+        reason = "exponential smoothing on the log scale (positive series)"
+        if profile.seasonal_period <= DAMPED_LOG_PERIOD:
+            logged |= {"trend": "add", "damped": True}
+            reason = "damped-trend exponential smoothing on the log scale (positive series)"
+        out.append((logged, reason))
     if profile.model_period == 1:
         # Seasonal members cost ~4 s of exact fits on 200 monthly points: non-seasonal only.
         # Theta is left out here: without a season it is SES with half the OLS slope, inside
