@@ -27,9 +27,10 @@ Rules (stated for DEVELOPERS.md):
 - skill_over_naive = 1 − score(chosen) / score(benchmark), the benchmark being seasonal naive
   for a seasonal series and naive otherwise.
 - Calibration: the same estimates are re-filtered through up to 8 origins between the first
-  selection origin and n − h; with >= 5 origins the intervals are widened by per-level
-  split-conformal factors (calibration.py; never narrowed). Short series fall back to origins
-  starting at half the series, fitted there, and to the model's own intervals below 5 origins.
+  selection origin and n − h; with >= 5 origins the intervals are rescaled by per-level
+  split-conformal factors (calibration.py; narrowed by at most 10 % below the 90 % level,
+  never at 90 % and above). Short series fall back to origins starting at half the series,
+  fitted there, and to the model's own intervals below 5 origins.
 - The structure is settled on the whole series for ETS, Theta and STL: settled on the early
   part alone it forecast worse. Scoring it there instead of scoring the search also saves the
   second search the refit used to run.

@@ -6,7 +6,13 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from service.core.evaluation.calibration import apply, calibrate, conformal_quantile, nonconformity
+from service.core.evaluation.calibration import (
+    NARROW_FLOOR,
+    apply,
+    calibrate,
+    conformal_quantile,
+    nonconformity,
+)
 from service.core.evaluation.records import ModelBacktest, OriginForecast
 from service.core.models.base import Forecast
 from service.core.models.intervals import Interval, normal_quantile
@@ -62,16 +68,25 @@ def test_calibration_restores_coverage_of_too_narrow_intervals() -> None:
     assert np.mean(np.abs(fresh) <= width) == pytest.approx(0.8, abs=0.06)
 
 
-def test_too_wide_intervals_are_reported_but_never_narrowed() -> None:
+def test_too_wide_intervals_are_reported_and_narrowed_only_a_little_below_90() -> None:
     rng = np.random.default_rng(12)
     # The model believes sd = 2 but errors have sd = 1: its 80 % interval covers ~99 %.
     bt = synthetic(rng.normal(scale=1.0, size=(8, 12)), half_width=2 * Z80)
     result = calibrate(bt)
     assert result.applied
     assert result.levels[0].empirical > 0.95
-    # The conformal quantile is about 0.5, but the factor stops at FACTOR_BOUNDS[0] = 1.
+    # The conformal quantile is about 0.5, but the factor stops at NARROW_FLOOR = 0.9.
     assert conformal_quantile(nonconformity(bt, 0.8), 0.8) < 0.7
-    assert result.factor(0.8) == 1.0
+    assert result.factor(0.8) == NARROW_FLOOR
+
+
+def test_too_wide_intervals_at_95_are_never_narrowed() -> None:
+    rng = np.random.default_rng(12)
+    bt = synthetic(rng.normal(scale=1.0, size=(8, 12)), half_width=4 * Z80, level=0.95)
+    result = calibrate(bt)
+    assert result.applied
+    assert conformal_quantile(nonconformity(bt, 0.95), 0.95) < 0.9
+    assert result.factor(0.95) == 1.0
 
 
 def test_apply_scales_each_side_and_keeps_levels_nested() -> None:
