@@ -8,6 +8,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from service.core.data.periods import period_text, too_long_periods
 from service.core.data.regressors import RegressorSet
 from service.core.diagnostics.report import diagnose
 from service.core.diagnostics.sections import Diagnostics
@@ -153,6 +154,7 @@ def _answer(
                 "observed",
             )
         )
+    notes += periods_left_out(task.seasonal_periods, len(task.y))
     if selection is None:
         summary = explicit_summary(description.label)
     else:
@@ -168,6 +170,18 @@ def _answer(
         fitted=np.asarray(fitted.fitted_values(), dtype=float) if "fitted" in include else None,
         residuals=np.asarray(fitted.residuals(), dtype=float) if "residuals" in include else None,
     )
+
+
+def periods_left_out(periods: tuple[float, ...], observations: int) -> list[FitWarning]:
+    """A warning for each seasonal period given that no model can estimate on this history."""
+    return [
+        FitWarning(
+            "period_left_out",
+            f"seasonal period {period_text(p)} was left out: the {observations} observations "
+            f"hold fewer than two of its cycles ({needed} points needed)",
+        )
+        for p, needed in too_long_periods(periods, observations)
+    ]
 
 
 def forecast_from(bundle: FittedBundle, task: ForecastTask) -> ForecastAnswer:

@@ -1,5 +1,6 @@
 """Non-negative histories give non-negative forecasts and bounds in every family; the request
-sets or turns off the bound; Croston keeps its floor; interpolated gaps are reported."""
+sets or turns off the bound; Croston keeps its floor; interpolated gaps and periods too long
+for the history are reported."""
 
 from __future__ import annotations
 
@@ -69,3 +70,23 @@ def test_a_forecast_from_interpolated_gaps_says_so() -> None:
     answer = jobs.forecast(_task(values, {"family": "naive"}))
     found = [w for w in answer.warnings if w.code == "interpolated"]
     assert found and "2 missing value(s)" in found[0].message
+
+
+def test_a_period_too_long_for_the_history_is_reported_left_out() -> None:
+    body = ForecastRequest.model_validate(
+        {
+            "series": {
+                "start": "2026-01-05T00:00:00",
+                "frequency": "h",
+                "values": _low_counts(),
+                "seasonal_period": [24, 1000],
+            },
+            "horizon": 24,
+            "model": {"family": "naive"},
+        }
+    )
+    task, _ = forecast_task(body, Settings(api_keys=""))
+    answer = jobs.forecast(task)
+    found = [w for w in answer.warnings if w.code == "period_left_out"]
+    assert len(found) == 1 and "seasonal period 1000 was left out" in found[0].message
+    assert "2000 points needed" in found[0].message

@@ -85,10 +85,14 @@ SeasonalPeriods = Annotated[
     WithJsonSchema(
         {
             "anyOf": [
-                {"type": "number", "minimum": 1},
+                {
+                    "type": "number",
+                    "minimum": 1,
+                    "description": "1 (no season), or at least 2",
+                },
                 {
                     "type": "array",
-                    "items": {"type": "number", "exclusiveMinimum": 1},
+                    "items": {"type": "number", "minimum": 2},
                     "minItems": 1,
                     "maxItems": MAX_PERIODS,
                 },

@@ -59,7 +59,8 @@ def period_text(period: float) -> str:
 
 
 def check_periods(value: Any, field: str) -> tuple[float, ...]:
-    """A whole number >= 1, or a list of distinct numbers > 1; sorted, as floats.
+    """1 (no season) or a number >= 2, or a list of distinct numbers >= 2 (a cycle spans two
+    steps at least); sorted, as floats.
 
     Problems name the entry (``seasonal_period[1]``)."""
     if isinstance(value, bool) or value is None:
@@ -88,8 +89,8 @@ def check_periods(value: Any, field: str) -> tuple[float, ...]:
         where = field if single else f"{field}[{i}]"
         if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
             problems.append(FieldProblem(where, "must be a finite number"))
-        elif v <= 1:
-            problems.append(FieldProblem(where, f"must be greater than 1; got {v}"))
+        elif v < 2:
+            problems.append(FieldProblem(where, f"must be at least 2 (steps per cycle); got {v}"))
         elif float(v) in out:
             problems.append(FieldProblem(where, f"repeats the period {period_text(float(v))}"))
         else:
@@ -102,6 +103,12 @@ def check_periods(value: Any, field: str) -> tuple[float, ...]:
 def whole_period(periods: Sequence[float]) -> int:
     """The whole-number period of the single-season models: the shortest, rounded (1: none)."""
     return round(min(periods)) if periods else 1
+
+
+def too_long_periods(periods: Sequence[float], observations: int) -> list[tuple[float, int]]:
+    """The periods the history holds fewer than two full cycles of, each with the points it
+    needs (the rule of the defaults above): the models and the diagnostics leave them out."""
+    return [(p, math.ceil(2 * p)) for p in periods if observations < 2 * p]
 
 
 def default_periods(offset: pd.DateOffset, observations: int) -> tuple[float, ...]:

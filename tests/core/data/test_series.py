@@ -378,6 +378,8 @@ def test_several_periods_are_sorted_and_non_integer_ones_allowed() -> None:
     ("given", "field"),
     [
         ([24, 0.5], "seasonal_period[1]"),
+        ([24, 1.5], "seasonal_period[1]"),
+        (1.5, "seasonal_period"),
         ([24, 24], "seasonal_period[1]"),
         ([24, "x"], "seasonal_period[1]"),
         ([], "seasonal_period"),
