@@ -121,7 +121,7 @@ def warm_up(workers: int, scheduler: str | None) -> list[int]:
 
 def imported(hold: float) -> int:
     """In a worker: BLAS pinned, the batch job's modules imported."""
-    from service.runtime.pool import pin_threads
+    from service.runtime.workers import pin_threads
 
     started = time.perf_counter()
     pin_threads()
@@ -219,19 +219,25 @@ def measure(
     sampler.start()
     jobs = ((raw, i, settings) for i, raw in enumerate(items))
     failed, cpu = 0, 0.0
-    begin = time.perf_counter()
+    begin, own = time.perf_counter(), time.process_time()
     for status, seconds in fan_out(measured, jobs, workers=workers, scheduler=scheduler):
         failed += status != 200
         cpu += seconds
-    end = time.perf_counter()
+    end, own = time.perf_counter(), time.process_time() - own
     sampler.stop()
+    parent = (
+        ""
+        if pids == [os.getpid()]
+        else (f"; this process (the parent) {own:.1f} CPU-s, {own / cpu:.1%} of the workers'")
+    )
     found = Measured(name, len(pids), startup, end - begin, cpu, len(items), failed)
     found.memory = memory_verdict(sampler.samples, begin, end)
     print(
         f"{name}: start-up {startup:.1f} s ({len(pids)} worker(s)); {len(items)} series in "
         f"{found.seconds:.1f} s = {found.rate:.2f} series/s ({found.end_to_end:.2f} with the "
         f"start-up), CPU {cpu / len(items):.3f} s and wall {found.seconds / len(items):.3f} s "
-        f"per series, {failed} failed; load {load()}\n  memory per worker: {found.memory}",
+        f"per series, {failed} failed{parent}; load {load()}\n"
+        f"  memory per worker: {found.memory}",
         flush=True,
     )
     return found
