@@ -183,3 +183,29 @@ def test_workers_sharing_a_cache_directory_reuse_each_others_answers(
         served = client.post("/v1/forecasts", json={k: v for k, v in body.items() if k != "id"})
     assert served.json()["provenance"]["cache"] == "hit"
     assert served.json()["point"] == first["forecast"]["point"]
+
+
+def test_the_benchmarks_memory_rule_tells_flat_from_growing() -> None:
+    from tests.benchmarks.batch import memory_verdict
+
+    times = [float(t) for t in range(101)]
+    flat = {1: [(t, 250_000_000 + int(t) % 3 * 1_000_000) for t in times]}
+    growing = {1: [(t, 250_000_000 + int(t) * 1_000_000) for t in times]}
+    assert memory_verdict(flat, 0.0, 100.0).endswith("flat (rule: last/first quarter <= 1.10)")
+    assert "GROWING" in memory_verdict(growing, 0.0, 100.0)
+    assert memory_verdict({1: [(0.0, 1), (100.0, 1)]}, 0.0, 100.0).startswith("too few")
+
+
+@pytest.mark.slow
+def test_the_batch_benchmark_runs_two_local_workers_end_to_end() -> None:
+    import subprocess
+    import sys
+
+    root = Path(__file__).resolve().parents[1]
+    command = [sys.executable, "-m", "tests.benchmarks.batch", "--series", "4",
+               "--only", "local2", "--sample-seconds", "0.2"]  # fmt: skip
+    done = subprocess.run(command, cwd=root, capture_output=True, text=True, timeout=600)
+    assert done.returncode == 0, done.stderr[-2000:]
+    assert "local 2 loky workers: start-up" in done.stdout
+    assert "(2 worker(s)); 4 series in" in done.stdout and "0 failed" in done.stdout
+    assert "projected for --series 2000 on an idle machine" in done.stdout
