@@ -9,6 +9,8 @@ import math
 import numpy as np
 from scipy import special
 
+from service.core.diagnostics.autocorrelation import sample_acf
+
 LEVEL_SEASON = 0.001
 """A fixed season is removed before the tests only when clearly there: a false removal on a
 series without one costs the tests power."""
@@ -29,7 +31,7 @@ def trend_t_ratio(x: np.ndarray) -> float:
     denominator = float(residuals @ residuals)
     if denominator <= 0.0:
         return math.inf
-    r = min(max(float(residuals[1:] @ residuals[:-1]) / denominator, -0.99), 0.99)
+    r = min(max(float(sample_acf(residuals, 1)[0]), -0.99), 0.99)
     standard_error = math.sqrt(denominator / (n - 2) / float(t @ t) * (1 + r) / (1 - r))
     return slope / standard_error
 
