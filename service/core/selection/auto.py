@@ -32,8 +32,8 @@ Rules (stated for DEVELOPERS.md):
   never at 90 % and above). Short series fall back to origins starting at half the series,
   fitted there, and to the model's own intervals below 5 origins.
 - The structure is settled on the whole series for ETS, Theta and STL: settled on the early
-  part alone it forecast worse. Scoring it there instead of scoring the search also saves the
-  second search the refit used to run.
+  part alone it forecast worse. Scoring it there instead of scoring the search also spares
+  the refit a second search.
 
 The figures behind these rules, and the rules tried and dropped, are in
 tests/benchmarks/RESULTS.md.

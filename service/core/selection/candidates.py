@@ -10,7 +10,7 @@ Rules (the table DEVELOPERS.md carries; n = observations, m = seasonal period):
                       the diagnostics, STL seasonal strength >= 0.64 (the threshold of Wang,
                       Smith & Hyndman 2006, from memory, also used for D in the ARIMA search)
     long period       seasonal and m >= 24: ETS and seasonal ARIMA are slow or unstable there
-                      (seasonal ARIMA on hourly data ran past the time budget)
+                      (hourly seasonal ARIMA runs past the time budget: RESULTS.md)
     positive          every observed value > 0 (admits multiplicative ETS, left to its search)
     intermittent      no negative values and a share of zeros >= 0.3
     short             n < 30, or fewer than 3 full seasons when seasonal
@@ -245,9 +245,9 @@ def candidate_rules(
             reason = "damped-trend exponential smoothing on the log scale (positive series)"
         out.append((logged, reason))
     if profile.model_period == 1:
-        # Seasonal members cost ~4 s of exact fits on 200 monthly points: non-seasonal only.
-        # Theta is left out here: without a season it is SES with half the OLS slope, inside
-        # the span of SES and Holt already averaged (mean MASE 0.998 -> 0.975 without it).
+        # Non-seasonal members only: seasonal ones cost seconds of exact fits. Theta is left
+        # out here: without a season it is SES with half the OLS slope, inside the span of
+        # SES and Holt already averaged (figures in tests/benchmarks/RESULTS.md).
         out.append((_TREND_COMBINATION, "SES, Holt and damped Holt averaged (the M4 benchmark)"))
     else:
         out.append(({"family": "theta"}, "theta method on classically adjusted data"))
