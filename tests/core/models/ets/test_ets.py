@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import pickle
 import time
-from collections.abc import Iterator
 
 import numpy as np
 import pandas as pd
@@ -18,13 +17,6 @@ from service.core.models import registry
 from service.core.models.ets.family import EtsSpec, candidates_for
 from service.core.models.ets.fitted import ets_label
 from service.core.models.ets.search import search_ets
-
-
-@pytest.fixture(autouse=True)
-def one_blas_thread() -> Iterator[None]:
-    """As in the pool: L-BFGS-B's tiny BLAS calls are several times slower multi-threaded."""
-    with threadpool_limits(1):
-        yield
 
 
 def monthly(n: int = 96, seed: int = 3, level: float = 100.0) -> pd.Series:

@@ -3,13 +3,11 @@
 from __future__ import annotations
 
 import warnings
-from collections.abc import Iterator
 
 import numpy as np
 import pandas as pd
 import pytest
 from statsmodels.tsa.exponential_smoothing.ets import ETSModel
-from threadpoolctl import threadpool_limits
 
 from service.core.models.ets.lean import LeanEtsModel
 
@@ -18,13 +16,6 @@ SHAPES = [
     {"error": "mul", "trend": None, "damped_trend": False, "seasonal": "mul"},
     {"error": "mul", "trend": "add", "damped_trend": False, "seasonal": None},
 ]
-
-
-@pytest.fixture(autouse=True)
-def one_blas_thread() -> Iterator[None]:
-    """As in the pool."""
-    with threadpool_limits(1):
-        yield
 
 
 def positive_seasonal(n: int = 84, seed: int = 5) -> pd.Series:
