@@ -34,8 +34,8 @@ def cores_idle() -> int:
     """Cores no other process wants right now: the cores this process may use minus the
     processes the kernel counts runnable at this instant besides the caller (Linux's
     /proc/loadavg; 0 where unknown, so nothing is lent). Lent workers only help on free
-    cores: a helper competing for a busy one made auto 1.1-1.2 x slower at load 5 on 2
-    cores. The instant count, unlike the load average, does not remember our own last job."""
+    cores: a helper competing for a busy one made auto slower (tests/benchmarks/RESULTS.md).
+    The instant count, unlike the load average, does not remember our own last job."""
     try:
         with open("/proc/loadavg", "rb") as stream:
             runnable = int(stream.read().split()[3].split(b"/")[0])

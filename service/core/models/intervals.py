@@ -24,7 +24,8 @@ def normal_quantile(coverage: float) -> float:
     """The two-sided standard-normal multiplier for a central interval (1.959964 for 0.95).
 
     ``special.ndtri`` is what ``stats.norm.ppf`` computes (the same bits) without the
-    distribution machinery's ~90 µs per call; an automatic forecast asks for it ~300 times."""
+    distribution machinery, which cost more than the quantile; auto asks for it at every
+    origin of every candidate."""
     return float(special.ndtri(0.5 + coverage / 2.0))
 
 

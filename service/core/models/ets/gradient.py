@@ -1,9 +1,9 @@
 """ETSModel's optimisation with the same forward differences, without scipy's generic machinery.
 
 statsmodels fits ETS with L-BFGS-B and lets scipy approximate the gradient by forward
-differences (``approx_grad``). scipy's ``approx_derivative`` spends about twice as long in
-its own bookkeeping (array-API checks, wrappers, generators) as in the likelihood it
-differentiates: 20-30 % of model "auto" on a monthly series. ``ForwardDifferenceFit`` runs the
+differences (``approx_grad``). scipy's ``approx_derivative`` spends longer in its own
+bookkeeping (array-API checks, wrappers, generators) than in the likelihood it
+differentiates (figures: tests/benchmarks/RESULTS.md). ``ForwardDifferenceFit`` runs the
 same L-BFGS-B with a gradient that evaluates the likelihood at exactly the points scipy
 would (absolute step 1e-8, the same fallback and the same one-sided turns at the bounds) and
 divides exactly as scipy does, so every gradient, every iterate and every fit is
