@@ -112,7 +112,11 @@ def main() -> None:
     threadpool_limits(1)
     warnings.simplefilter("ignore")
     y = series()
-    print(f"before: {load_text()}")
+    from service.runtime.spread import cores_idle
+
+    print(
+        f"before: {load_text()}; idle cores now (what the pool asks before lending): {cores_idle()}"
+    )
     auto_seconds(auto_task(-1.0))  # first calls in the process: outside the timing
     auto_seconds(auto_task(-1.0), helpers=1)
     sweep(y)
