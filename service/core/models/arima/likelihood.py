@@ -23,6 +23,8 @@ from statsmodels.tsa.statespace.tools import (
     unconstrain_stationary_univariate,
 )
 
+from service.core.models.arima.orders import lag_polynomials
+
 DENSE_LIMIT = 250
 """Differenced points up to which the dense likelihood is used, below where the filter
 overtakes it (the crossing is measured in tests/benchmarks/RESULTS.md)."""
@@ -85,20 +87,6 @@ def _yule_walker_layout(k: int, p: int) -> tuple[np.ndarray, np.ndarray]:
     return flat, cols.ravel()
 
 
-def polynomials(shape: ArmaShape, arma: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """φ(L)Φ(L^m) and θ(L)Θ(L^m) in increasing powers (SARIMAX sign conventions)."""
-    p, q, P, Q, m = shape.p, shape.q, shape.P, shape.Q, shape.m
-    seasonal_ar = np.zeros(m * P + 1)
-    seasonal_ar[0] = 1.0
-    seasonal_ar[m::m] = -arma[p + q : p + q + P]
-    seasonal_ma = np.zeros(m * Q + 1)
-    seasonal_ma[0] = 1.0
-    seasonal_ma[m::m] = arma[p + q + P :]
-    ar = np.concatenate(([1.0], -arma[:p]))
-    ma = np.concatenate(([1.0], arma[p : p + q]))
-    return np.convolve(ar, seasonal_ar), np.convolve(ma, seasonal_ma)
-
-
 def _blocks(shape: ArmaShape) -> tuple[tuple[int, int, float], ...]:
     """(start, length, sign) of each polynomial block; MA blocks flip sign (θ = -φ form)."""
     out, at = [], 0
@@ -138,7 +126,7 @@ def profile(
     shape: ArmaShape, arma: np.ndarray, w: np.ndarray, x: np.ndarray | None, finite: np.ndarray
 ) -> _Profile:
     """Log-likelihood with β and σ² at their GLS optimum for these ARMA coefficients."""
-    ar_poly, ma_poly = polynomials(shape, arma)
+    ar_poly, ma_poly = lag_polynomials(shape, arma)
     gamma = autocovariances(ar_poly, ma_poly, w.size)
     cov = linalg.toeplitz(gamma)
     if not finite.all():

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
+from typing import Protocol
 
 import numpy as np
 from statsmodels.tools import eval_measures
@@ -119,7 +120,26 @@ def coefficient_names(orders: ArimaOrders, regressor_names: tuple[str, ...]) -> 
     return tuple(names)
 
 
-def lag_polynomials(orders: ArimaOrders, arma: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+class LagOrders(Protocol):
+    """The orders of the four lag polynomials and the seasonal period, by name."""
+
+    @property
+    def p(self) -> int: ...
+
+    @property
+    def q(self) -> int: ...
+
+    @property
+    def P(self) -> int: ...
+
+    @property
+    def Q(self) -> int: ...
+
+    @property
+    def m(self) -> int: ...
+
+
+def lag_polynomials(orders: LagOrders, arma: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """The expanded AR polynomial φ(L)Φ(L^m) and MA polynomial θ(L)Θ(L^m), increasing powers."""
     p, q, P, Q, m = orders.p, orders.q, orders.P, orders.Q, orders.m
     ar, ma = arma[:p], arma[p : p + q]
