@@ -17,8 +17,8 @@ from service.core.evaluation.backtest import backtest as run_backtest
 from service.core.evaluation.records import BacktestReport
 
 # The families: the automatic selection looks them up in the registry only when a request
-# runs (candidate rules, refit), so without this import the first request of a process paid
-# ~0.24 s of statsmodels imports. The pool's fork server preloads this module.
+# runs (candidate rules, refit), so without this import the first request of a process
+# would pay the statsmodels imports. The pool's fork server preloads this module.
 from service.core.models import registry as _registry  # noqa: F401
 from service.core.models.base import Description, Fitted, FitWarning, Forecast, Specification
 from service.core.models.library_warnings import captured
