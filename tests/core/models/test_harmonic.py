@@ -182,3 +182,12 @@ def test_refilter_onto_a_longer_history_forecasts_as_a_whole_new_filter(
     changed = y.copy()
     changed.iloc[10] += 1.0
     assert fitted.refilter(changed)._earlier is None  # another past: filtered whole
+
+
+def test_the_settled_structure_keeps_the_chosen_harmonics_for_another_history() -> None:
+    y = hourly_counts(weeks=6)
+    fitted = HarmonicSpec(periods=(24.0, 168.0)).fit(y)
+    settled = fitted.settled_structure()
+    assert settled.periods == (24.0, 168.0) and settled.harmonics == fitted.terms.harmonics
+    again = settled.fit(y.iloc[:-100])
+    assert again.terms == fitted.terms

@@ -6,7 +6,7 @@ from __future__ import annotations
 import math
 import warnings
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -137,6 +137,14 @@ class HarmonicFitted:
         if continues(self.y, y):
             out._earlier = self
         return out
+
+    def settled_structure(self) -> HarmonicSpec:
+        """The same periods with the harmonics this fit chose, for another history: what a
+        backtest scores is then what the whole-series fit delivers (the error model is chosen
+        again, by the same rule)."""
+        return replace(
+            self.specification, periods=self.terms.periods, harmonics=self.terms.harmonics
+        )
 
     def describe(self) -> Description:
         """Label with periods, harmonics and error orders; coefficients by name; AIC/AICc/BIC."""
