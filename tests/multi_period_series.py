@@ -66,6 +66,7 @@ def direct_mstl(values: np.ndarray, periods: list[int]) -> Any:
             "robust": False,
             "inner_iter": 2,
             "outer_iter": 0,
+            "seasonal_deg": 0,
             "seasonal_jump": 6,
             "trend_jump": 5,
             "low_pass_jump": 3,

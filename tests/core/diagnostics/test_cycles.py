@@ -86,6 +86,9 @@ def test_auto_considers_mstl_and_harmonic_regression_for_several_periods() -> No
     profile = profile_series(y, 24, report)
     families = [data["family"] for data, _ in candidate_rules(profile)]
     assert "mstl" in families and families.count("harmonic_regression") == 2
+    # Counts: MSTL on the log scale, harmonic regression on both scales.
+    mstl = next(data for data, _ in candidate_rules(profile) if data["family"] == "mstl")
+    assert mstl.get("transform") == "log"
     # Beside them, the models of fewer periods go: STL at 24 alone, and ETS and the
     # SES/Holt/damped average fitted without a period (24 is long); the benchmarks stay.
     assert not {"stl", "ets", "combination"} & set(families)
