@@ -7,6 +7,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
+from service.core.data.periods import period_text
 from service.core.selection.guard import BENCHMARK_GUARD, RANDOM_WALK_GUARD, benchmark_name
 
 
@@ -19,6 +20,9 @@ def _kind(profile: Any) -> str:
         return "Intermittent series"
     if profile.random_walk:
         return "Random-walk-like series (hard to forecast beyond its last value)"
+    several = tuple(getattr(profile, "seasonal_periods", ()))
+    if len(several) > 1:
+        return f"Seasonal series with cycles of {' and '.join(map(period_text, several))} steps"
     if profile.seasonal:
         return "Seasonal series"
     return "Non-seasonal series"

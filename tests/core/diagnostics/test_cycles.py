@@ -3,6 +3,8 @@ candidate periods from the data, outliers on the MSTL remainder, findings naming
 
 from __future__ import annotations
 
+from types import SimpleNamespace
+
 import numpy as np
 import pytest
 from pandas.tseries.frequencies import to_offset
@@ -11,6 +13,7 @@ from service.core.data.periods import cycle_name
 from service.core.diagnostics.report import diagnose
 from service.core.diagnostics.seasonality import fundamental
 from service.core.selection.candidates import candidate_rules, profile_series
+from service.core.selection.summary import auto_summary
 from tests.multi_period_series import daily_calls, direct_mstl, hourly_counts
 
 
@@ -103,3 +106,18 @@ def test_one_long_period_keeps_the_models_without_a_period_beside_mstl() -> None
     profile = profile_series(y, 168, diagnose(y, 168))
     families = [data["family"] for data, _ in candidate_rules(profile)]
     assert "mstl" in families and {"stl", "ets", "combination"} <= set(families)
+
+
+def test_the_forecast_summary_names_every_period_that_matters() -> None:
+    y = hourly_counts(weeks=6)
+    profile = profile_series(y, 24, diagnose(y, 24, periods=(24.0, 168.0)))
+    selection = SimpleNamespace(
+        profile=profile,
+        benchmark="seasonal naive, period 24",
+        skill_over_naive=0.5,
+        rule="combination",
+        calibration=None,
+    )
+    assert auto_summary(selection).startswith(
+        "Seasonal series with cycles of 24 and 168 steps; the forecast beat seasonal naive"
+    )
