@@ -7,6 +7,7 @@ the estimates (tests/reference/README.md, trap 1); the fitted model is in ``fitt
 
 from __future__ import annotations
 
+import math
 import time
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -29,6 +30,10 @@ from service.core.models.base import (
 from service.core.models.library_warnings import unique_warnings
 
 FINAL_MAXITER = 500
+SECOND_START_ORDER = 4
+"""Final fits with p + q at least this also start from zero ARMA coefficients (the project's
+dense likelihood) or the state-space model's own start, and keep the higher likelihood: from
+the CSS start alone such fits stopped in a local optimum (issue 13)."""
 CONSTANTS = ("auto", "none", "mean", "drift")
 _DIFFERENCES = {"mean": 0, "drift": 1}
 """The total differencing d + D that each named constant stands for."""
@@ -207,29 +212,41 @@ def _final_fit(
     start: Estimate | None,
     tight: bool = True,
 ) -> Estimate:
-    """The one exact fit: warm-started, full iteration budget, tight tolerance when ``tight``.
+    """The final exact fit: warm-started, full iteration budget, tight tolerance when ``tight``;
+    with p + q >= SECOND_START_ORDER also from a second start, the higher likelihood kept.
 
     Without ``tight`` (the quick search) a converged exact search estimate is kept as it is:
     polishing it to the tight tolerance bought negligible likelihood (RESULTS.md).
     """
+    second = orders.p + orders.q >= SECOND_START_ORDER
     if not tight and start is not None and start.method == "exact" and start.converged:
-        return start
+        if not second:
+            return start
     x = design_matrix(orders, exog, 0, values.size)
     w = difference(values, orders.d, orders.D, orders.m)
     xd = None if x is None else difference(x, orders.d, orders.D, orders.m)
     if start is None:
         start = css_estimate(w, xd, orders, names)
-    try:
-        final = exact_estimate(
-            w, xd, orders, names, start=start, maxiter=FINAL_MAXITER, tight=tight
-        )
-    except ArithmeticError as exc:
+    found: list[Estimate] = []
+    skip_first = not tight and start.method == "exact" and start.converged
+    starts = ([] if skip_first else [start]) + ([None] if second else [])
+    failure: ArithmeticError | None = None
+    for begin in starts:
+        try:
+            found.append(
+                exact_estimate(
+                    w, xd, orders, names, start=begin, maxiter=FINAL_MAXITER, tight=tight
+                )
+            )
+        except ArithmeticError as exc:
+            failure = failure or exc
+    found += [start] if start.method == "exact" else []
+    if not found:
         raise FitError(
-            f"{orders.label} could not be fitted by maximum likelihood: {exc}", field="model.order"
-        ) from exc
-    if start.method == "exact" and start.loglik > final.loglik:
-        return start
-    return final
+            f"{orders.label} could not be fitted by maximum likelihood: {failure}",
+            field="model.order",
+        ) from failure
+    return max(found, key=lambda e: e.loglik if math.isfinite(e.loglik) else -math.inf)
 
 
 def _estimate_warnings(estimate: Estimate) -> list[FitWarning]:
