@@ -16,11 +16,20 @@ from service.core.checks import check_positive_int
 from service.core.data.filling import check_series, fill_gaps
 from service.core.diagnostics.random_walk import RandomWalkVerdict
 from service.core.diagnostics.seasonality import Decomposition, decompose, seasonal_strength
-from service.core.diagnostics.stationarity import HypothesisTest, adf_test, applicability, kpss_test
+from service.core.diagnostics.stationarity import (
+    Bandwidth,
+    HypothesisTest,
+    adf_test,
+    applicability,
+    kpss_test,
+)
 from service.core.diagnostics.unit_root import UnitRootDecision, integration_order
 
 SEASONAL_THRESHOLD = 0.64
 MAX_REGULAR = 2
+DIFFERENCING_BANDWIDTH: Bandwidth = "short"
+"""The KPSS bandwidth of the d search, chosen on the development data (tests/benchmarks/
+RESULTS.md)."""
 REGULAR_RULE = (
     "d is the number of successive KPSS (level) tests at 5 % that reject stationarity, each "
     "on the previous difference and after any seasonal difference, at most 2 (Hyndman & "
@@ -119,7 +128,7 @@ def orders_from(
         if blocked is not None:
             notes = (*notes, f"d search stopped at {name}: {blocked.reason}")
             break
-        test = kpss_test(current, "c")
+        test = kpss_test(current, "c", DIFFERENCING_BANDWIDTH)
         if isinstance(test, NotApplicable):
             notes = (*notes, f"d search stopped at {name}: {test.reason}")
             break
@@ -142,7 +151,7 @@ def orders_from(
         seasonal_period=seasonal_period,
         steps=tuple(steps),
         adf_after=adf_test(current, "c"),
-        kpss_after=kpss_test(current, "c"),
+        kpss_after=kpss_test(current, "c", DIFFERENCING_BANDWIDTH),
         notes=notes,
     )
 

@@ -23,6 +23,8 @@ from statsmodels.tsa.stattools import kpss
 from service.core.applicability import NotApplicable
 
 Regression = Literal["c", "ct"]
+Bandwidth = Literal["short", "data"]
+"""The KPSS long-run variance bandwidth: trunc(3 sqrt(n) / 13), or statsmodels' data-driven one."""
 
 LEVEL = 0.05
 """Significance level of every test decision in the diagnostics."""
@@ -236,8 +238,12 @@ def kpss_lags(n: int) -> int:
     return int(3.0 * math.sqrt(n) / 13.0)
 
 
-def kpss_test(x: np.ndarray, regression: Regression) -> HypothesisTest | NotApplicable:
-    """KPSS (1992) test of level or trend stationarity by statsmodels' ``kpss`` at our bandwidth.
+def kpss_test(
+    x: np.ndarray, regression: Regression, bandwidth: Bandwidth = "short"
+) -> HypothesisTest | NotApplicable:
+    """KPSS (1992) test of level or trend stationarity by statsmodels' ``kpss``, at the short
+    bandwidth trunc(3 sqrt(n) / 13) or (``"data"``) statsmodels' data-driven one (Hobijn,
+    Franses & Ooms 1998).
 
     Past the ends of the published table statsmodels clips the p-value and warns; the p-value
     is then reported as a bound (tests/reference/README.md, trap 7) and the warning dropped.
@@ -246,7 +252,7 @@ def kpss_test(x: np.ndarray, regression: Regression) -> HypothesisTest | NotAppl
     if reason is not None:
         return reason
     n = x.size
-    lags = min(kpss_lags(n), n - 1)
+    lags: int | str = min(kpss_lags(n), n - 1) if bandwidth == "short" else "auto"
     with warnings.catch_warnings(), np.errstate(divide="ignore", invalid="ignore"):
         warnings.simplefilter("ignore", InterpolationWarning)
         result = kpss(x, regression, nlags=lags, result_object=True)
