@@ -1,5 +1,6 @@
-"""The ETS search: rank the admissible models by AICc on cheap fits, then fit the winner
-exactly (estimated initial states started from the search solution)."""
+"""The ETS search: rank the admissible models by AICc on cheap fits, then fit the finalists
+exactly (estimated initial states started from the search solution) and keep the lowest
+exact AICc."""
 
 from __future__ import annotations
 
@@ -26,7 +27,11 @@ if TYPE_CHECKING:
 SEARCH_MAXITER = 300
 """Optimiser iterations for a candidate's cheap fit."""
 EXACT_MAXITER = 1000
-"""Optimiser iterations for the winner's exact fit."""
+"""Optimiser iterations for the finalists' exact fits."""
+FINALISTS = 3
+FINALIST_AICC = 4.0
+"""The models within this many AICc of the best cheap fit (at most FINALISTS of them) are fitted
+exactly and ranked again on those fits: heuristic initial states misorder close candidates."""
 
 
 @dataclass(frozen=True)
@@ -81,9 +86,12 @@ def search_ets(
         reasons = "; ".join(f"{c.label}: {c.failure}" for c in tried)
         raise FitError(f"no ETS model could be fitted to this series ({reasons})", field="model")
     scored.sort(key=lambda item: item[0])
-    _, chosen, rough = scored[0]
-    earlier = warm[1] if warm is not None and warm[0] == chosen else None
-    fitted = _exact_fit(spec, chosen, y, values, seasonal_period, rough, earlier)
+    finalists = [item for item in scored[:FINALISTS] if item[0] <= scored[0][0] + FINALIST_AICC]
+    fits = []
+    for _, chosen, rough in finalists:
+        earlier = warm[1] if warm is not None and warm[0] == chosen else None
+        fits.append(_exact_fit(spec, chosen, y, values, seasonal_period, rough, earlier))
+    fitted = min(fits, key=_exact_aicc)
     fitted.warnings[:0] = notes if not spec.is_complete() else []
     fitted.fit_seconds = time.perf_counter() - start
     ranking = sorted(tried, key=lambda c: (c.aicc is None, c.aicc or 0.0))
@@ -281,3 +289,12 @@ def _exact_fit(
     # The exact fit's own results serve this history: no re-smoothing for the first forecast.
     fitted._cached = kept
     return fitted
+
+
+def _exact_aicc(fitted: EtsFitted) -> float:
+    """A finalist's AICc on its exact fit (infinite when it cannot be computed)."""
+    try:
+        value = fitted.information_criteria().get("aicc", math.inf)
+    except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+        return math.inf
+    return value if math.isfinite(value) else math.inf

@@ -209,3 +209,23 @@ def test_quick_search_is_a_catalogued_choice_and_fits() -> None:
     with pytest.raises(SpecificationError) as caught:
         ArimaSpec(search="fast")
     assert caught.value.problems[0].field == "model.search"
+
+
+def test_higher_orders_keep_the_better_of_two_starts(monkeypatch) -> None:  # type: ignore[no-untyped-def]
+    """With p + q >= 4 the final fit also starts from zero coefficients: its likelihood is
+    never below the single start's."""
+    from service.core.models.arima import family
+    from service.core.models.arima.orders import ArimaOrders
+
+    rng = np.random.default_rng(3)
+    e = rng.normal(size=260)
+    x = np.zeros_like(e)
+    for t in range(2, e.size):
+        x[t] = 0.5 * x[t - 1] - 0.3 * x[t - 2] + e[t] + 0.4 * e[t - 1] + 0.2 * e[t - 2]
+    orders = ArimaOrders(2, 0, 2, 0, 0, 0, 1, False)
+    single = family.SECOND_START_ORDER
+    monkeypatch.setattr(family, "SECOND_START_ORDER", 99)
+    one = family._final_fit(x[60:], None, (), orders, None)
+    monkeypatch.setattr(family, "SECOND_START_ORDER", single)
+    two = family._final_fit(x[60:], None, (), orders, None)
+    assert two.loglik >= one.loglik - 1e-9

@@ -169,3 +169,22 @@ def test_the_settled_model_refitted_from_its_estimates_matches_a_cold_fit() -> N
         cold.information_criteria()["log_likelihood"], abs=0.5
     )
     assert_allclose(warm.forecast(12, [0.8]).point, cold.forecast(12, [0.8]).point, rtol=5e-3)
+
+
+def test_the_finalists_are_ranked_on_exact_fits(monkeypatch) -> None:  # type: ignore[no-untyped-def]
+    """The search keeps the lowest exact AICc among its finalists: never above the exact fit
+    of the cheap fits' winner alone."""
+    from service.core.models.ets import search as ets_search
+
+    top = ets_search.FINALISTS
+    for seed in range(4):
+        rng = np.random.default_rng(seed)
+        t = np.arange(48)
+        values = 50 + 0.3 * t + 5 * np.sin(2 * np.pi * t / 12) + rng.normal(0, 2, t.size)
+        y = pd.Series(values, index=pd.date_range("2015-01-01", periods=t.size, freq="MS"))
+        found = {}
+        for finalists in (1, top):
+            monkeypatch.setattr(ets_search, "FINALISTS", finalists)
+            fitted = search_ets(y, 12, EtsSpec()).best
+            found[finalists] = fitted.information_criteria()["aicc"]
+        assert found[top] <= found[1] + 1e-9
