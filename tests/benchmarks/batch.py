@@ -90,11 +90,11 @@ def long_table(items: list[dict[str, Any]]) -> pd.DataFrame:
     return pd.concat(frames, ignore_index=True)
 
 
-def measured(raw: dict[str, Any], index: int, settings: Settings) -> tuple[int, float]:
-    """The batch job, plus the CPU seconds it took in whichever process ran it."""
+def measured(raw: dict[str, Any], index: int, settings: Settings) -> tuple[int, float, int]:
+    """The batch job, plus the CPU seconds it took and the process that ran it."""
     started = time.process_time()
     found = answer_entry(raw, index, settings)
-    return found["status"], time.process_time() - started
+    return found["status"], time.process_time() - started, os.getpid()
 
 
 def warm_up(workers: int, scheduler: str | None) -> list[int]:
@@ -220,10 +220,14 @@ def measure(
     jobs = ((raw, i, settings) for i, raw in enumerate(items))
     failed, cpu = 0, 0.0
     begin, own = time.perf_counter(), time.process_time()
-    for status, seconds in fan_out(measured, jobs, workers=workers, scheduler=scheduler):
+    ran: set[int] = set()
+    for status, seconds, pid in fan_out(measured, jobs, workers=workers, scheduler=scheduler):
         failed += status != 200
         cpu += seconds
+        ran.add(pid)
     end, own = time.perf_counter(), time.process_time() - own
+    if not ran <= set(pids):  # the memory samples would be of idle processes
+        raise SystemExit(f"{name}: the series ran in {sorted(ran)}, not the started {pids}")
     sampler.stop()
     parent = (
         ""
