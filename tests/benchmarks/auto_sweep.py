@@ -11,16 +11,18 @@ reused between rounds. The sweep is what a user would write with statsmodels alo
 season combinations (no multiplicative trend, no additive error with a multiplicative season),
 m = 12, the lowest AICc kept. One BLAS thread, as in the pool's workers. The rounds alternate
 auto and sweep, so load from other jobs falls on both; the load average is printed beside the
-figures. "auto, one lent core" is the same job when the pool lends it an idle worker's core
-(runtime/spread.py): it only gains on a machine with a free core. After the rounds, auto's
-stages (diagnostics, then select's own laps) are the medians of a few direct ``diagnose`` +
-``select`` calls on the same series.
+figures, and CPU seconds beside the wall time (on a loaded machine the CPU ratio of the serial
+runs is the steadier estimate of the idle wall ratio). "auto, one lent core" is the same job
+when the pool lends it an idle worker's core (runtime/spread.py): it only gains on a machine
+with a free core. After the rounds, auto's stages (diagnostics, then select's own laps) are
+the medians of a few direct ``diagnose`` + ``select`` calls on the same series.
 """
 
 from __future__ import annotations
 
 import argparse
 import os
+import resource
 import time
 import warnings
 from typing import Any
@@ -63,6 +65,13 @@ def sweep(y: pd.Series) -> tuple[float, str]:
         if result.aicc < best[0]:
             best = (float(result.aicc), f"{error} {trend} {damped} {season}")
     return time.perf_counter() - start, best[1]
+
+
+def cpu_seconds() -> float:
+    """CPU seconds of this process and of its reaped children (a lent core's helpers)."""
+    own = resource.getrusage(resource.RUSAGE_SELF)
+    children = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return own.ru_utime + own.ru_stime + children.ru_utime + children.ru_stime
 
 
 def auto_task(salt: float) -> Any:
@@ -120,25 +129,32 @@ def main() -> None:
     auto_seconds(auto_task(-1.0))  # first calls in the process: outside the timing
     auto_seconds(auto_task(-1.0), helpers=1)
     sweep(y)
-    times: dict[str, list[float]] = {"auto": [], "auto, one lent core": [], "sweep": []}
+    runs: dict[str, Any] = {
+        "auto": lambda i: auto_seconds(auto_task(1.0 + i))[1],
+        "auto, one lent core": lambda i: auto_seconds(auto_task(1.0 + i), helpers=1)[1],
+        "sweep": lambda i: sweep(y)[1],
+    }
+    times: dict[str, list[float]] = {name: [] for name in runs}
+    cpu: dict[str, list[float]] = {name: [] for name in runs}
     labels = {}
     for i in range(args.rounds):
-        task = auto_task(1.0 + i)
-        seconds, labels["auto"] = auto_seconds(task)
-        times["auto"].append(seconds)
-        seconds, labels["auto, one lent core"] = auto_seconds(task, helpers=1)
-        times["auto, one lent core"].append(seconds)
-        seconds, labels["sweep"] = sweep(y)
-        times["sweep"].append(seconds)
+        for name, run in runs.items():
+            start, used = time.perf_counter(), cpu_seconds()
+            labels[name] = run(i)
+            times[name].append(time.perf_counter() - start)
+            cpu[name].append(cpu_seconds() - used)
     print(f"after the rounds: {load_text()}; {args.rounds} alternated rounds, one BLAS thread")
     sweep_median = float(np.median(times["sweep"]))
+    sweep_cpu = float(np.median(cpu["sweep"]))
     for name, values in times.items():
         median = float(np.median(values))
         what = "full ETS sweep by AICc (15 fits)" if name == "sweep" else name
         line = f"{what:34s} median {median:.3f} s (min {min(values):.3f}, max {max(values):.3f})"
+        line += f", CPU {np.median(cpu[name]):.3f} s"
         if name != "sweep":
             ratios = [a / s for a, s in zip(values, times["sweep"], strict=True)]
             line += f"; / sweep: {median / sweep_median:.2f} (per-round {np.median(ratios):.2f})"
+            line += f", CPU / sweep CPU {np.median(cpu[name]) / sweep_cpu:.2f}"
         print(f"{line}; {'AICc winner' if name == 'sweep' else 'delivered'} {labels[name]}")
     print("targets: auto <= 0.5 s on an idle machine and <= 0.3 x the sweep")
     laps = stages(y)
