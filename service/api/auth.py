@@ -17,7 +17,7 @@ from typing import Any
 from fastapi import FastAPI, Request
 from starlette.types import ASGIApp, Receive, Scope, Send
 
-from service.api.problems import problem_response
+from service.api.problems import PROBLEM_MEDIA_TYPE, problem_response
 from service.config import Settings
 
 _HEX_DIGEST = re.compile(r"^[0-9a-f]{64}$")
@@ -189,7 +189,7 @@ def _with_security(app: FastAPI, ring: KeyRing) -> Callable[[], dict[str, Any]]:
                 continue
             for operation in operations.values():
                 operation["security"] = [{SCHEME_NAME: []}]
-                content = {"application/problem+json": {"schema": problem}} if has_problem else {}
+                content = {PROBLEM_MEDIA_TYPE: {"schema": problem}} if has_problem else {}
                 operation.setdefault("responses", {})["401"] = {
                     "description": "Missing or unaccepted API key",
                     "content": content,

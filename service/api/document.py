@@ -10,6 +10,7 @@ from typing import Any
 from fastapi import FastAPI
 
 from service.api.media import describe_representations
+from service.api.problems import PROBLEM_MEDIA_TYPE
 from service.api.schemas.specification import add_specification_schemas
 from service.config import Settings
 
@@ -58,9 +59,6 @@ def install_limits(app: FastAPI, settings: Settings) -> None:
     app.openapi = openapi  # type: ignore[method-assign]
 
 
-PROBLEM = "application/problem+json"
-
-
 def problem_schemas(document: dict[str, Any]) -> dict[str, Any]:
     """Every problem answer described under the media type it is sent with: FastAPI files a
     response model under application/json, and a problem+json entry is left without one."""
@@ -69,11 +67,11 @@ def problem_schemas(document: dict[str, Any]) -> dict[str, Any]:
         for operation in operations.values():
             for response in operation.get("responses", {}).values():
                 content = response.get("content", {})
-                if PROBLEM not in content:
+                if PROBLEM_MEDIA_TYPE not in content:
                     continue
                 if content.get("application/json", {}).get("schema") == ref:
                     del content["application/json"]
-                content[PROBLEM] = {**content[PROBLEM], "schema": ref}
+                content[PROBLEM_MEDIA_TYPE] = {**content[PROBLEM_MEDIA_TYPE], "schema": ref}
     return document
 
 

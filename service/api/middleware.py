@@ -12,7 +12,7 @@ from typing import Any
 from starlette.requests import Request
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
-from service.api.problems import instance
+from service.api.problems import PROBLEM_MEDIA_TYPE, instance
 
 _SAFE_ID = re.compile(r"^[A-Za-z0-9._:\-]{1,128}$")
 _TITLES = {
@@ -274,7 +274,7 @@ async def refuse(
         body["request_id"] = rid
     payload = json.dumps(body).encode()
     headers = [
-        (b"content-type", b"application/problem+json"),
+        (b"content-type", PROBLEM_MEDIA_TYPE.encode()),
         (b"content-length", str(len(payload)).encode()),
         (b"connection", b"close"),
         *(headers or []),

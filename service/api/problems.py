@@ -18,8 +18,8 @@ from service.runtime.pool import BudgetExceeded, PoolBusy, PoolClosed, WorkerCra
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 log = logging.getLogger("windvane.errors")
-# Problems echo at most this much of any caller-supplied text (a 300 kB timestamp was echoed
-# twice in full); a field path is short unless an unknown key is long.
+# Problems echo at most this much of any caller-supplied text (a long input never comes back
+# in full); a field path is short unless an unknown key is long.
 DETAIL_CHARACTERS = 300
 FIELD_CHARACTERS = 120
 
@@ -44,7 +44,7 @@ PROBLEM_RESPONSES: dict[int | str, dict[str, Any]] = {
     status: {
         "model": Problem,
         "description": description,
-        "content": {"application/problem+json": {}},
+        "content": {PROBLEM_MEDIA_TYPE: {}},
     }
     for status, description in (
         (400, "Malformed JSON"),

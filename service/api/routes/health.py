@@ -10,7 +10,7 @@ from fastapi.responses import JSONResponse, PlainTextResponse, Response
 
 from service.api.auth import bearer_token
 from service.api.dependencies import CacheDep, PoolDep, TelemetryDep
-from service.api.problems import problem_response
+from service.api.problems import PROBLEM_MEDIA_TYPE, problem_response
 from service.api.schemas.health import Liveness, Readiness
 
 router = APIRouter(tags=["operations"])
@@ -57,7 +57,7 @@ READY_EXAMPLE = {
     response_model=Readiness,
     responses={
         200: {"content": {"application/json": {"example": READY_EXAMPLE}}},
-        503: {"description": "Not ready", "content": {"application/problem+json": {}}},
+        503: {"description": "Not ready", "content": {PROBLEM_MEDIA_TYPE: {}}},
     },
 )
 async def readyz(request: Request, pool: PoolDep, cache: CacheDep) -> Any:
