@@ -38,9 +38,10 @@ Rules (the table DEVELOPERS.md carries; n = observations, m = seasonal period):
                                  ets then runs with m = 1
       and periods that matter  + mstl with ets base (on the log scale when positive) and
         are several or one       harmonic regression (also on the log scale when positive);
-        is above 24              when the periods are several, stl is left out beside them,
-                                 and with a long first period the models fitted with m = 1
-                                 (ets, the SES/Holt/damped combination)
+        is above 24              when the periods are several and the history holds five
+                                 cycles of the longest, stl is left out beside them, and with
+                                 a long first period the models fitted with m = 1 (ets, the
+                                 SES/Holt/damped combination)
 
 A family that is not (yet) in the registry is skipped and listed in ``skipped``. The
 figures behind each rule are in tests/benchmarks/RESULTS.md.
@@ -73,6 +74,9 @@ SHORT_POINTS = 30
 SHORT_SEASONS = 3
 DAMPED_LOG_PERIOD = 4
 """Up to this seasonal period the log-scale ETS candidate has a damped trend."""
+SUPERSEDE_CYCLES = 5
+"""Cycles of the longest period from which the models of fewer periods give way: two before a
+backtest's first origin plus three origins a cycle apart (a week ahead of hourly data)."""
 TRANSFORM_KEY = "transform"
 """A rule's dict may name a transform: the specification is then fitted on that scale."""
 
@@ -320,8 +324,11 @@ def _superseded(
     and, when that period is long, the models fitted without any (period 1). On hourly counts
     with daily and weekly cycles these forecast Monday at Sunday night's level, and their share
     of the combination cost more than the members they joined gained; with one long period
-    (co2 weekly, 52) the models without a period still helped (tests/benchmarks/RESULTS.md)."""
-    if len(several[0][0]["periods"]) < 2:
+    (co2 weekly, 52) the models without a period still helped (tests/benchmarks/RESULTS.md).
+    Only with SUPERSEDE_CYCLES cycles of the longest period: with fewer, MSTL and harmonic
+    regression may not fit before the backtest's first origin, and the rest must stand in."""
+    periods = several[0][0]["periods"]
+    if len(periods) < 2 or profile.observations < SUPERSEDE_CYCLES * max(periods):
         return False
     family = data.get("family")
     return family == "stl" or (profile.long_period and family in ("ets", "combination"))

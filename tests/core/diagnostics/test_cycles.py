@@ -121,3 +121,12 @@ def test_the_forecast_summary_names_every_period_that_matters() -> None:
     assert auto_summary(selection).startswith(
         "Seasonal series with cycles of 24 and 168 steps; the forecast beat seasonal naive"
     )
+
+
+def test_with_few_weekly_cycles_the_models_of_fewer_periods_stay() -> None:
+    # Three weeks: MSTL and harmonic regression may not fit before the backtest's first
+    # origin, so STL and the models without a period stay beside them.
+    y = hourly_counts(weeks=3)
+    profile = profile_series(y, 24, diagnose(y, 24, periods=(24.0, 168.0)))
+    families = [data["family"] for data, _ in candidate_rules(profile)]
+    assert "mstl" in families and {"stl", "ets", "combination"} <= set(families)
