@@ -301,8 +301,10 @@ def run(
     failed = 0
     with tqdm(total=len(todo), unit="series", disable=not progress, file=sys.stderr) as bar:
         try:
+            # No more processes than series: each one costs seconds of imports to start.
+            used = min(workers, len(todo))
             for result in fan_out(
-                answer_entry, items, workers=workers, scheduler=scheduler, on_error=lost
+                answer_entry, items, workers=used, scheduler=scheduler, on_error=lost
             ):
                 outputs.append(result, options.coverage)
                 failed += result["status"] != 200

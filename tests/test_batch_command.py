@@ -209,3 +209,23 @@ def test_the_batch_benchmark_runs_two_local_workers_end_to_end() -> None:
     assert "local 2 loky workers: start-up" in done.stdout
     assert "(2 worker(s)); 4 series in" in done.stdout and "0 failed" in done.stdout
     assert "projected for --series 2000 on an idle machine" in done.stdout
+
+
+def test_no_more_worker_processes_start_than_there_are_series_to_run(
+    table: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    asked: list[int] = []
+
+    def recorded(*args: Any, workers: int = 1, **kwargs: Any) -> Any:
+        asked.append(workers)
+        return fan_out(*args, workers=1, **kwargs)  # in this process: the test is what is asked
+
+    from service.runtime.fanout import fan_out
+
+    monkeypatch.setattr(batch, "fan_out", recorded)
+    options = batch.Options(4, (0.8,), {"family": "naive"}, None,
+                            batch.Columns("store", "month", "sales"))  # fmt: skip
+    outputs = batch.Outputs(tmp_path / "out.csv", tmp_path / "out.summary.csv")
+    assert batch.run(table, outputs, options, Settings(), workers=16).ran == 4
+    assert batch.run(table, outputs, options, Settings(), workers=16).ran == 1  # broken, again
+    assert asked == [4, 1]
