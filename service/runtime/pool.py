@@ -18,6 +18,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any, TypeVar
 
+from service.runtime.pool_errors import BudgetExceeded, PoolBusy, PoolClosed, WorkerCrashed
 from service.runtime.spread import cores_idle, with_helpers
 from service.runtime.workers import (
     READY,
@@ -41,34 +42,6 @@ __all__ = [
 
 T = TypeVar("T")
 RECENT_JOBS = 32
-
-
-class PoolBusy(RuntimeError):
-    """The admission queue is full; the caller should retry later."""
-
-    def __init__(self, retry_after: int) -> None:
-        super().__init__("all workers are busy and the queue is full")
-        self.retry_after = retry_after
-
-
-class BudgetExceeded(RuntimeError):
-    """A job ran past its time budget; its worker was killed and replaced."""
-
-    def __init__(self, budget_seconds: float) -> None:
-        super().__init__(f"the work took longer than its budget of {budget_seconds:g} s")
-        self.budget_seconds = budget_seconds
-
-
-class WorkerCrashed(RuntimeError):
-    """The worker running a job died (killed, out of memory, a crash in native code)."""
-
-    def __init__(self, exitcode: int | None) -> None:
-        super().__init__(f"the worker process running this job died (exit code {exitcode})")
-        self.exitcode = exitcode
-
-
-class PoolClosed(RuntimeError):
-    """The pool was shut down while the job waited."""
 
 
 @dataclass(frozen=True)
