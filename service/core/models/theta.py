@@ -15,6 +15,7 @@ from typing import ClassVar
 import numpy as np
 import pandas as pd
 from scipy import optimize
+from statsmodels.tsa.seasonal import seasonal_decompose
 
 from service.core.checks import complete_values
 from service.core.data.grid import future_index
@@ -129,23 +130,10 @@ def theta_path(level: float, alpha: float, slope: float, n: int, horizon: int) -
 
 
 def seasonal_indices(values: np.ndarray, period: int, kind: str) -> tuple[float, ...]:
-    """Classical decomposition: centred moving-average ratios (multiplicative, mean 1) or
-    differences (additive, mean 0), averaged per season."""
-    if kind == MULTIPLICATIVE:
-        return multiplicative_indices(values, period)
-    weights = _centred_weights(period)
-    trend = np.convolve(values, weights, mode="valid")
-    offset = (weights.size - 1) // 2
-    differences = values[offset : offset + trend.size] - trend
-    positions = (np.arange(trend.size) + offset) % period
-    means = np.array([differences[positions == s].mean() for s in range(period)])
-    return tuple(float(v) for v in means - means.mean())
-
-
-def _centred_weights(period: int) -> np.ndarray:
-    if period % 2 == 0:
-        return np.r_[0.5, np.ones(period - 1), 0.5] / period
-    return np.ones(period) / period
+    """Classical decomposition by statsmodels: centred moving-average ratios (multiplicative,
+    mean 1) or differences (additive, mean 0), averaged per season; one cycle from position 0."""
+    parts = seasonal_decompose(values, model=kind, period=period)
+    return tuple(float(v) for v in np.asarray(parts.seasonal)[:period])
 
 
 def deseasoned(values: np.ndarray, indices: tuple[float, ...], kind: str, start: int) -> np.ndarray:
@@ -158,18 +146,6 @@ def reseasoned(values: np.ndarray, indices: tuple[float, ...], kind: str, start:
     """The season put back on adjusted ``values`` starting at season position ``start``."""
     season = _cycle(indices, start, values.size)
     return values + season if kind == ADDITIVE else values * season
-
-
-def multiplicative_indices(values: np.ndarray, period: int) -> tuple[float, ...]:
-    """Classical decomposition: centred moving-average ratios, averaged per season, mean 1."""
-    weights = _centred_weights(period)
-    trend = np.convolve(values, weights, mode="valid")
-    offset = (weights.size - 1) // 2
-    ratios = values[offset : offset + trend.size] / trend
-    positions = (np.arange(trend.size) + offset) % period
-    means = np.array([ratios[positions == s].mean() for s in range(period)])
-    means = means / means.mean()
-    return tuple(float(v) for v in means)
 
 
 def _cycle(indices: tuple[float, ...], start: int, count: int) -> np.ndarray:

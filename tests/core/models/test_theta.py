@@ -12,8 +12,8 @@ from service.core.diagnostics.autocorrelation import seasonal_lag_stands_out
 from service.core.errors import FitError
 from service.core.models.theta import (
     ThetaSpec,
-    multiplicative_indices,
     ols_slope,
+    seasonal_indices,
     ses_alpha,
     ses_levels,
 )
@@ -69,7 +69,7 @@ def test_seasonality_test_and_indices() -> None:
     assert seasonal_lag_stands_out(y, 12)
     rng = np.random.default_rng(1)
     assert not seasonal_lag_stands_out(100 + rng.normal(size=72), 12)
-    indices = multiplicative_indices(y, 12)
+    indices = seasonal_indices(y, 12, "multiplicative")
     assert_allclose(np.mean(indices), 1.0, rtol=1e-12)
     assert indices[3] > 1.1 and indices[9] < 0.9  # the peak and trough of the sine
 
