@@ -14,7 +14,7 @@ from service.core.data.frequency import frequency_name
 from service.core.errors import FitError
 from service.core.evaluation.calibration import Calibration
 from service.core.evaluation.records import BacktestReport, ModelBacktest, RankEntry, Scores
-from service.core.models.base import Description, FitWarning, Forecast, as_dict
+from service.core.models.base import Description, FitWarning, Forecast, ResidualChecks, as_dict
 from service.core.selection.outcome import Selection
 from service.runtime.jobs import ForecastAnswer
 
@@ -72,6 +72,17 @@ def model_body(description: Description) -> dict[str, Any]:
     body["information_criteria"] = {
         k: v for k, v in body["information_criteria"].items() if v is not None
     }
+    body["residual_diagnostics"] = residual_checks_body(description.residual_diagnostics)
+    return body
+
+
+def residual_checks_body(checks: ResidualChecks) -> dict[str, Any]:
+    """The residual checks: ``ljung_box`` always (null when not run), the rest when given."""
+    body = {"ljung_box": plain(checks.ljung_box)}
+    for f in dataclasses.fields(checks):
+        value = getattr(checks, f.name)
+        if f.name != "ljung_box" and value is not None:
+            body[f.name] = plain(value)
     return body
 
 

@@ -15,6 +15,7 @@ from typing import Any, ClassVar, Protocol, runtime_checkable
 import numpy as np
 import pandas as pd
 
+from service.core.diagnostics.autocorrelation import LjungBox
 from service.core.models.intervals import Interval
 
 
@@ -36,6 +37,22 @@ class Forecast:
 
 
 @dataclass(frozen=True)
+class ResidualChecks:
+    """The residual Ljung-Box test (or why it was not run) and notes on how intervals are made.
+
+    Fields left None are not part of the answer, except ``ljung_box``, always reported."""
+
+    ljung_box: LjungBox | None
+    reason: str | None = None
+    members: tuple[str, ...] | None = None
+    """A combination's member labels."""
+    interval_method: str | None = None
+    initial_states: str | None = None
+    scale: str | None = None
+    """``"transformed"`` when the checks ran on a transformed scale."""
+
+
+@dataclass(frozen=True)
 class Description:
     """What a fitted model is: its label, estimated parameters and fit statistics."""
 
@@ -45,7 +62,7 @@ class Description:
     parameters: dict[str, float]
     information_criteria: dict[str, float]
     residual_variance: float | None
-    residual_diagnostics: dict[str, Any]
+    residual_diagnostics: ResidualChecks
     observations: int
     fit_seconds: float
 

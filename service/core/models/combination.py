@@ -9,7 +9,7 @@ of any mixture). Weights are relative: they are normalised to sum to one.
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, ClassVar
 
 import numpy as np
@@ -190,11 +190,11 @@ class CombinationFitted:
             parameters=params,
             information_criteria={},
             residual_variance=float(np.mean(resid**2)) if resid.size else None,
-            residual_diagnostics={
-                **ljung_box_summary(resid, self.seasonal_period),
-                "members": [d.label for d in described],
-                "interval_method": "weighted average of the members' bounds",
-            },
+            residual_diagnostics=replace(
+                ljung_box_summary(resid, self.seasonal_period),
+                members=tuple(d.label for d in described),
+                interval_method="weighted average of the members' bounds",
+            ),
             observations=len(self.y),
             fit_seconds=self.fit_seconds,
         )

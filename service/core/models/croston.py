@@ -177,10 +177,10 @@ class CrostonFitted:
             },
             information_criteria={},
             residual_variance=float(np.mean(resid**2)) if resid.size else None,
-            residual_diagnostics={
-                **ljung_box_summary(resid, self.seasonal_period),
-                "interval_method": "empirical quantiles of one-step errors, floored at zero",
-            },
+            residual_diagnostics=replace(
+                ljung_box_summary(resid, self.seasonal_period),
+                interval_method="empirical quantiles of one-step errors, floored at zero",
+            ),
             observations=len(self.y),
             fit_seconds=self.fit_seconds,
         )

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import time
 from collections.abc import Sequence
-from dataclasses import asdict, dataclass, field
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -17,7 +17,7 @@ import pandas as pd
 
 from service.core.data.grid import future_index
 from service.core.diagnostics.autocorrelation import ljung_box, primary_ljung_box_lag, sample_acf
-from service.core.models.base import Description, FitWarning, Forecast
+from service.core.models.base import Description, FitWarning, Forecast, ResidualChecks
 from service.core.models.intervals import normal_intervals
 
 
@@ -121,15 +121,15 @@ def last_observed(values: np.ndarray) -> float:
 
 def ljung_box_summary(
     residuals: np.ndarray, seasonal_period: int, model_dof: int = 0
-) -> dict[str, Any]:
+) -> ResidualChecks:
     """Ljung-Box (1978) Q of the residuals at the diagnostics' decision lag (10, or 2m when
     seasonal, at most n/5), with degrees of freedom reduced by the fitted parameters."""
     n = residuals.size
     if n < 4 or not np.any(residuals - residuals.mean()):
-        return {"ljung_box": None, "reason": "too few or constant residuals"}
+        return ResidualChecks(None, reason="too few or constant residuals")
     lag = primary_ljung_box_lag(n, seasonal_period)
     box = ljung_box(sample_acf(residuals, lag), n, lag, model_dof)
-    return {"ljung_box": asdict(box)}
+    return ResidualChecks(box)
 
 
 def timed() -> float:

@@ -248,10 +248,10 @@ class ThetaFitted:
             parameters=params,
             information_criteria={},
             residual_variance=sigma**2,
-            residual_diagnostics={
-                **ljung_box_summary(resid[np.isfinite(resid)], self.seasonal_period, 1),
-                "interval_method": "analytic, IMA(1,1) variance",
-            },
+            residual_diagnostics=replace(
+                ljung_box_summary(resid[np.isfinite(resid)], self.seasonal_period, 1),
+                interval_method="analytic, IMA(1,1) variance",
+            ),
             observations=len(self.y),
             fit_seconds=self.fit_seconds,
         )

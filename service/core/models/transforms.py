@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, ClassVar, cast
 
 import numpy as np
@@ -248,7 +248,7 @@ class TransformedFitted:
             parameters={**d.parameters, "box_cox_power": self.lam},
             information_criteria=d.information_criteria,
             residual_variance=d.residual_variance,
-            residual_diagnostics={**d.residual_diagnostics, "scale": "transformed"},
+            residual_diagnostics=replace(d.residual_diagnostics, scale="transformed"),
             observations=d.observations,
             fit_seconds=d.fit_seconds,
         )

@@ -42,7 +42,7 @@ def test_describe_lists_member_labels() -> None:
         {"family": "combination", "members": [{"family": "naive"}, {"family": "theta"}]}
     )
     d = spec.fit(series(), 12).describe()
-    assert d.residual_diagnostics["members"] == ["naive", "theta"]
+    assert d.residual_diagnostics.members == ("naive", "theta")
     assert d.label == "combination of 2 models"
     assert "members[1].alpha" in d.parameters
 

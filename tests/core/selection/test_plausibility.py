@@ -77,6 +77,6 @@ def test_a_member_whose_final_forecast_explodes_is_left_out_and_the_choice_made_
     failed = [label for label, why in out.selection.failures if "from the whole series" in why]
     assert len(failed) == 1
     described = out.fitted.describe()
-    members = described.residual_diagnostics.get("members", [described.label])
+    members = described.residual_diagnostics.members or (described.label,)
     assert out.selection.chosen == described.label
     assert failed[0] not in members

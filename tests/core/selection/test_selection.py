@@ -228,7 +228,7 @@ def test_transformed_candidates_keep_their_roles_and_resolved_orders() -> None:
         for spec in (NaiveSpec(), SeasonalNaiveSpec(), DriftSpec(), EtsSpec(), ArimaSpec())
     ]
     result = select(y, 12, 6, candidates=logged)
-    labels = result.fitted.describe().residual_diagnostics.get("members", [])
+    labels = result.fitted.describe().residual_diagnostics.members or ()
     # Benchmarks on the log scale are still benchmarks: never members of the combination.
     assert result.selection.rule == "combination"
     assert not any(label.startswith(("naive", "seasonal naive", "drift")) for label in labels)

@@ -182,9 +182,11 @@ class EtsFitted:
         names += [f"initial_season_{i + 1}" for i in range(len(self.initial) - len(names))]
         params.update(zip(names, self.initial, strict=True))
         innovations = np.asarray(result.resid, dtype=float)
-        diagnostics = ljung_box_summary(innovations, self.seasonal_period, len(self.smoothing))
-        diagnostics["interval_method"] = self.interval_method
-        diagnostics["initial_states"] = self.initialization
+        diagnostics = replace(
+            ljung_box_summary(innovations, self.seasonal_period, len(self.smoothing)),
+            interval_method=self.interval_method,
+            initial_states=self.initialization,
+        )
         return Description(
             family="ets",
             label=self.label,

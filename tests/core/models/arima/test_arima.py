@@ -94,8 +94,8 @@ def test_describe_reports_criteria_and_ljung_box_with_model_dof() -> None:
     d = ArimaSpec(order=(1, 1, 1)).fit(monthly(), 1).describe()
     assert set(d.information_criteria) >= {"aic", "aicc", "bic"}
     assert d.information_criteria["aicc"] > d.information_criteria["aic"]
-    lb = d.residual_diagnostics["ljung_box"]
-    assert lb["degrees_of_freedom"] == lb["lag"] - 2
+    lb = d.residual_diagnostics.ljung_box
+    assert lb is not None and lb.degrees_of_freedom == lb.lag - 2
 
 
 def regressor_case() -> tuple[pd.Series, pd.DataFrame]:

@@ -106,7 +106,7 @@ def test_simulated_intervals_are_seeded_and_ordered() -> None:
     assert_allclose(first.intervals[1].upper, again.intervals[1].upper, rtol=0, atol=0)
     wide, narrow = first.intervals[1], first.intervals[0]
     assert np.all(wide.lower <= narrow.lower) and np.all(narrow.upper <= wide.upper)
-    assert fitted.describe().residual_diagnostics["interval_method"] == "simulated"
+    assert fitted.describe().residual_diagnostics.interval_method == "simulated"
 
 
 def test_pickle_is_small_and_drops_statsmodels_results() -> None:
