@@ -16,6 +16,7 @@ from statsmodels.tsa.statespace.sarimax import SARIMAX
 from service.core.checks import check_coverage, check_positive_int
 from service.core.data.grid import future_index
 from service.core.errors import FitError, SeriesError
+from service.core.models.arima.orders import information_criteria
 from service.core.models.base import Description, FitWarning, Forecast, as_dict
 from service.core.models.harmonic.errors import ErrorModel
 from service.core.models.harmonic.terms import FourierTerms
@@ -156,10 +157,10 @@ class HarmonicFitted:
         n = int(np.isfinite(self.y.to_numpy(dtype=float)).sum())
         k = len(self._beta()) + e.p + e.q + 1
         loglik = float(self._results().llf)
-        aic = -2 * loglik + 2 * k
-        criteria = {"log_likelihood": loglik, "aic": aic, "bic": -2 * loglik + k * math.log(n)}
-        if n - k - 1 > 0:
-            criteria["aicc"] = aic + 2 * k * (k + 1) / (n - k - 1)
+        aic, small_sample, bic = information_criteria(loglik, k, n)
+        criteria = {"log_likelihood": loglik, "aic": aic, "bic": bic}
+        if math.isfinite(small_sample):
+            criteria["aicc"] = small_sample
         resid = self.residuals().to_numpy()
         resid = resid[np.isfinite(resid)]
         return Description(

@@ -6,6 +6,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from statsmodels.tools import eval_measures
 
 from service.core.data.periods import period_text
 
@@ -54,11 +55,12 @@ class FourierTerms:
 
 
 def aicc(rss: float, n: int, k: int) -> float:
-    """AICc of a Gaussian regression with k coefficients plus the variance."""
-    k += 1
-    if rss <= 0 or n - k - 1 <= 0:
+    """AICc (statsmodels') of a Gaussian regression with k coefficients plus the variance,
+    from its concentrated log-likelihood."""
+    if rss <= 0:
         return math.inf
-    return n * math.log(rss / n) + 2 * k + 2 * k * (k + 1) / (n - k - 1)
+    loglik = -0.5 * n * (math.log(2.0 * math.pi * rss / n) + 1.0)
+    return float(eval_measures.aicc(loglik, n, k + 1))
 
 
 def choose_harmonics(
