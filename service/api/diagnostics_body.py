@@ -7,7 +7,7 @@ import dataclasses
 from typing import Any
 
 from service.api.render import plain, warnings_body
-from service.core.applicability import NotApplicable, plain_float
+from service.core.applicability import NotApplicable, plain_float, plain_floats
 from service.core.diagnostics import symmetric_test
 from service.core.diagnostics.autocorrelation import BAND_NOTE, Correlogram
 from service.core.diagnostics.cycles import MATTERS, SeveralPeriods
@@ -15,7 +15,7 @@ from service.core.diagnostics.differencing import SEASONAL_RULE, DifferencingOrd
 from service.core.diagnostics.differencing import label as difference_label
 from service.core.diagnostics.random_walk import RULE as RANDOM_WALK_RULE
 from service.core.diagnostics.random_walk import RandomWalkEvidence, RandomWalkVerdict
-from service.core.diagnostics.seasonality import OUTLIER_RULE, Outliers
+from service.core.diagnostics.seasonality import OUTLIER_RULE, Components, Outliers
 from service.core.diagnostics.sections import Diagnostics, Seasonality
 from service.core.diagnostics.stationarity import VERDICT_RULE, HypothesisTest, Stationarity
 from service.core.diagnostics.unit_root import PROCEDURE, UnitRootDecision
@@ -192,8 +192,20 @@ def _seasonality(s: Seasonality | NotApplicable) -> dict[str, Any]:
         ),
         "seasonal_period_from_frequency": s.seasonal_period,
         "candidate_periods": s.candidates,
-        "components": s.components,
+        "components": None if s.components is None else _components(s.components),
         "several_periods": None if s.several is None else plain(_several(s.several)),
+    }
+
+
+def _components(c: Components) -> dict[str, Any]:
+    """Timestamps with trend, seasonal (None if not applicable) and remainder, for plotting."""
+    d = c.decomposition
+    return {
+        "method": d.method,
+        "timestamps": [t.isoformat() for t in c.index],
+        "trend": plain_floats(d.trend),
+        "seasonal": None if d.seasonal is None else plain_floats(d.seasonal),
+        "remainder": plain_floats(d.remainder),
     }
 
 

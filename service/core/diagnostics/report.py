@@ -34,9 +34,9 @@ from service.core.diagnostics.differencing import (
 from service.core.diagnostics.findings import findings
 from service.core.diagnostics.random_walk import RandomWalkVerdict, judge, seasonal_check
 from service.core.diagnostics.seasonality import (
+    Components,
     Decomposition,
     candidate_periods,
-    components_dict,
     decompose,
     outliers,
     seasonal_strength,
@@ -166,7 +166,7 @@ def _seasonality(
         ),
         candidates=tuple(candidate_periods(detrended, acf, white_noise_band(x.size))),
         settings=decomposition.settings,
-        components=components_dict(decomposition, index) if include_components else None,
+        components=Components(decomposition, index) if include_components else None,
     )
 
 

@@ -20,7 +20,7 @@ from scipy import signal
 from statsmodels.nonparametric.smoothers_lowess import lowess
 from statsmodels.tsa.seasonal import STL
 
-from service.core.applicability import NotApplicable, plain_floats
+from service.core.applicability import NotApplicable
 
 SEASONAL_WINDOW = 13
 """STL seasonal smoother span in cycles (odd, >= 7 as Cleveland et al. 1990 advise)."""
@@ -232,12 +232,9 @@ def outliers(
     return Outliers(int(flagged.size), 3.0 * spread, points)
 
 
-def components_dict(d: Decomposition, index: pd.DatetimeIndex) -> dict[str, Any]:
-    """Timestamps with trend, seasonal (None if not applicable) and remainder, for plotting."""
-    return {
-        "method": d.method,
-        "timestamps": [t.isoformat() for t in index],
-        "trend": plain_floats(d.trend),
-        "seasonal": None if d.seasonal is None else plain_floats(d.seasonal),
-        "remainder": plain_floats(d.remainder),
-    }
+@dataclass(frozen=True)
+class Components:
+    """A decomposition with the series' timestamps: what a plot of its parts needs."""
+
+    decomposition: Decomposition
+    index: pd.DatetimeIndex

@@ -12,7 +12,7 @@ from service.core.diagnostics.autocorrelation import Correlogram
 from service.core.diagnostics.cycles import MATTERS, SeveralPeriods
 from service.core.diagnostics.differencing import DifferencingOrders
 from service.core.diagnostics.random_walk import RandomWalkVerdict
-from service.core.diagnostics.seasonality import CandidatePeriod, Outliers
+from service.core.diagnostics.seasonality import CandidatePeriod, Components, Outliers
 from service.core.diagnostics.stationarity import Stationarity
 
 
@@ -43,7 +43,7 @@ class Seasonality:
     seasonal_strength: float | NotApplicable
     candidates: tuple[CandidatePeriod, ...]
     settings: dict[str, Any]
-    components: dict[str, Any] | None
+    components: Components | None
     several: SeveralPeriods | None = None
     """With two or more seasonal periods: their MSTL strengths (``diagnostics.cycles``)."""
 
