@@ -60,9 +60,9 @@ def test_the_specification_schema_lists_each_familys_parameters() -> None:
     schema = json.loads(schema_text())["components"]["schemas"]
     branches = {b["title"]: b for b in schema["Specification"]["oneOf"]}
     for entry in catalogue():
-        branch = branches[entry["family"]]
-        names = {p["name"] for p in entry["parameters"]}
-        assert set(branch["properties"]) == {"family", *names}, entry["family"]
+        branch = branches[entry.family]
+        names = {p.name for p in entry.parameters}
+        assert set(branch["properties"]) == {"family", *names}, entry.family
         assert branch["additionalProperties"] is False
     answered = {b["title"]: b for b in schema["FittedSpecification"]["oneOf"]}
     assert all("transform" in b["properties"] for b in answered.values())

@@ -67,34 +67,27 @@ def parameters_of(cls: type[Any]) -> list[ParameterInfo]:
     return out
 
 
-def catalogue() -> list[dict[str, Any]]:
+@dataclasses.dataclass(frozen=True)
+class FamilyEntry:
+    """One family of the catalogue: its summary, hyperparameters and constraints."""
+
+    family: str
+    summary: str
+    parameters: tuple[ParameterInfo, ...]
+    constraints: tuple[str, ...]
+
+
+def catalogue() -> tuple[FamilyEntry, ...]:
     """Every family with its summary, parameters, defaults and constraints (GET /v1/models)."""
-    entries = []
-    for name, cls in FAMILIES.items():
-        params = []
-        for p in parameters_of(cls):
-            item: dict[str, Any] = {
-                "name": p.name,
-                "kind": p.kind,
-                "default": p.default,
-                "description": p.description,
-            }
-            if p.allowed is not None:
-                item["allowed"] = list(p.allowed)
-            if p.minimum is not None:
-                item["minimum"] = p.minimum
-            if p.maximum is not None:
-                item["maximum"] = p.maximum
-            params.append(item)
-        entries.append(
-            {
-                "family": name,
-                "summary": cls.summary,
-                "parameters": params,
-                "constraints": list(getattr(cls, "constraints", ())),
-            }
+    return tuple(
+        FamilyEntry(
+            name,
+            cls.summary,
+            tuple(parameters_of(cls)),
+            tuple(getattr(cls, "constraints", ())),
         )
-    return entries
+        for name, cls in FAMILIES.items()
+    )
 
 
 def specification_from_dict(data: Any, field: str = "model") -> Specification:
