@@ -27,6 +27,8 @@ NUMERICAL_LIBRARIES = ("numpy", "pandas", "scipy", "statsmodels")
 
 # One bit pattern for every NaN, so a missing value hashes the same whatever produced it.
 _CANONICAL_NAN = np.float64(np.nan)
+# Items of a long list encoded per json.dumps call (see canonical_json).
+_CHUNK = 2_048
 
 
 @dataclass(frozen=True)
@@ -115,10 +117,34 @@ def timestamp_bytes(index: pd.DatetimeIndex) -> bytes:
 
 
 def canonical_json(value: Any) -> bytes:
-    """Compact JSON with sorted keys; tuples become lists and floats keep their repr."""
-    return json.dumps(
-        _plain(value), sort_keys=True, separators=(",", ":"), allow_nan=False
-    ).encode()
+    """Compact JSON with sorted keys; tuples become lists and floats keep their repr.
+
+    Long lists are encoded ``_CHUNK`` items per call, to the same bytes: one ``json.dumps``
+    of 100,000 values held the GIL for a fifth of a second, stalling the event loop even
+    when called from a thread."""
+    return _encoded(_plain(value)).encode()
+
+
+def _encoded(value: Any) -> str:
+    if isinstance(value, dict):
+        items = sorted(value.items())
+        return "{" + ",".join(_dumps(k) + ":" + _encoded(v) for k, v in items) + "}"
+    if isinstance(value, list) and len(value) > _CHUNK:
+        parts = (_encoded_items(value[i : i + _CHUNK]) for i in range(0, len(value), _CHUNK))
+        return "[" + ",".join(parts) + "]"
+    return _dumps(value)
+
+
+def _encoded_items(items: list[Any]) -> str:
+    return (
+        ",".join(_encoded(v) for v in items)
+        if any(isinstance(v, (dict, list)) for v in items)
+        else _dumps(items)[1:-1]
+    )
+
+
+def _dumps(value: Any) -> str:
+    return json.dumps(value, sort_keys=True, separators=(",", ":"), allow_nan=False)
 
 
 def _plain(value: Any) -> Any:

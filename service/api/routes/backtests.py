@@ -8,6 +8,7 @@ from typing import Annotated, Any
 from fastapi import APIRouter, Body
 
 from service.api import examples, render
+from service.api.decoding import DecodingRoute
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.problems import PROBLEM_RESPONSES
 from service.api.schemas.backtests import BacktestRequest, BacktestResponse
@@ -15,7 +16,7 @@ from service.api.tasks import backtest_task
 from service.runtime import jobs
 from service.runtime.keys import data_key
 
-router = APIRouter(prefix="/v1", tags=["backtests"])
+router = APIRouter(prefix="/v1", tags=["backtests"], route_class=DecodingRoute)
 
 
 @router.post(

@@ -31,6 +31,7 @@ from service.api.batch_items import (
     outcome,
     problem,
 )
+from service.api.decoding import decode_batch
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.media import NDJSON
 from service.api.problems import PROBLEM_RESPONSES
@@ -153,7 +154,7 @@ async def create_batch(request: Request, pool: PoolDep, settings: SettingsDep) -
 def _items_of(raw: bytes, settings: Settings) -> list[Any]:
     """The raw items of a batch body; a body that is not a batch at all is refused whole."""
     try:
-        parsed = json.loads(raw)
+        parsed = decode_batch(raw)  # item by item: the loop runs between items
     except (ValueError, RecursionError) as exc:
         where = f"{getattr(exc, 'msg', 'invalid JSON')} at byte {getattr(exc, 'pos', 0)}"
         error = {"type": "json_invalid", "loc": ("body",), "msg": where, "ctx": {"error": where}}

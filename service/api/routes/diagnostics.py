@@ -8,6 +8,7 @@ from typing import Annotated, Any
 from fastapi import APIRouter, Body
 
 from service.api import examples
+from service.api.decoding import DecodingRoute
 from service.api.dependencies import PoolDep, SettingsDep
 from service.api.diagnostics_body import diagnostics_body
 from service.api.problems import PROBLEM_RESPONSES
@@ -16,7 +17,7 @@ from service.api.tasks import diagnostics_task
 from service.runtime import jobs
 from service.runtime.keys import data_key
 
-router = APIRouter(prefix="/v1", tags=["diagnostics"])
+router = APIRouter(prefix="/v1", tags=["diagnostics"], route_class=DecodingRoute)
 
 
 @router.post(
