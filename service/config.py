@@ -109,8 +109,9 @@ class Settings(BaseSettings):
     )
     library_versions: bool = Field(
         True,
-        description="Name the exact numerical library versions in `provenance` (turn off in "
-        "hardened deployments; the cache keys still include them).",
+        description="Name the exact Python and numerical library versions in `provenance` "
+        "and in /metrics' build info (turn off in hardened deployments; the cache keys still "
+        "include them).",
     )
     max_header_bytes: int = Field(
         16_384,

@@ -70,7 +70,7 @@ def _report_failed_start(task: asyncio.Task[int]) -> None:
 def create_app(settings: Settings | None = None) -> FastAPI:
     """A new app with its own settings, pool and routes; nothing is built at import time."""
     settings = settings or Settings()
-    telemetry = Telemetry()
+    telemetry = Telemetry(library_versions=settings.library_versions)
 
     @asynccontextmanager
     async def lifespan(app: FastAPI) -> AsyncIterator[None]:

@@ -94,22 +94,36 @@ def _skip(text: str, i: int) -> int:
 
 
 class DecodingRequest(Request):
-    """A request whose JSON body is decoded by ``decode``."""
+    """A request whose body was read already and whose JSON is decoded by ``decode``."""
+
+    def __init__(self, request: Request, body: bytes) -> None:
+        super().__init__(request.scope, request.receive)
+        self._read = body
+        self._decoded: Any = None
+        self._done = False
+
+    async def body(self) -> bytes:
+        """The body read by the route (see ``DecodingRoute``)."""
+        return self._read
 
     async def json(self) -> Any:
-        """The decoded body, cached like Starlette's own."""
-        if not hasattr(self, "_json"):
-            self._json = decode(await self.body())
-        return self._json
+        """The decoded body, decoded once."""
+        if not self._done:
+            self._decoded = decode(self._read)
+            self._done = True
+        return self._decoded
 
 
 class DecodingRoute(APIRoute):
-    """An API route whose handler sees a ``DecodingRequest``."""
+    """An API route whose handler sees a ``DecodingRequest``.
+
+    The body is read through the request the exception handlers get, so a 400's handler
+    that looks at the body finds it rather than waiting for one already consumed."""
 
     def get_route_handler(self) -> Callable[[Request], Coroutine[Any, Any, Response]]:
         handler = super().get_route_handler()
 
         async def decoding(request: Request) -> Response:
-            return await handler(DecodingRequest(request.scope, request.receive))
+            return await handler(DecodingRequest(request, await request.body()))
 
         return decoding

@@ -92,7 +92,7 @@ def prepare_multiprocess(directory: Path) -> None:
 class Telemetry:
     """The service's metrics on one registry, with small methods for each thing recorded."""
 
-    def __init__(self) -> None:
+    def __init__(self, library_versions: bool = True) -> None:
         self.registry = CollectorRegistry(auto_describe=True)
         self.multiprocess = multiprocess_directory() is not None
         r = self.registry
@@ -165,10 +165,14 @@ class Telemetry:
             registry=r,
         )
         versions = runtime_versions()
+        if not library_versions:
+            # A hardened deployment names only its own version (WINDVANE_LIBRARY_VERSIONS).
+            versions = {"windvane": versions["windvane"]}
         # A gauge of value 1 rather than an Info metric: Info has no multiprocess mode.
         build = Gauge(
             "windvane_build_info",
-            "Service and numerical-library versions; the value is always 1.",
+            "Service version and, unless hidden by the settings, the Python and "
+            "numerical-library versions; the value is always 1.",
             list(versions),
             registry=r,
             multiprocess_mode="livemax",
