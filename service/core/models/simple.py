@@ -17,7 +17,13 @@ import pandas as pd
 
 from service.core.data.grid import future_index
 from service.core.diagnostics.autocorrelation import ljung_box, primary_ljung_box_lag, sample_acf
-from service.core.models.base import Description, FitWarning, Forecast, ResidualChecks
+from service.core.models.base import (
+    Description,
+    FitWarning,
+    Forecast,
+    ResidualChecks,
+    as_dict,
+)
 from service.core.models.intervals import normal_intervals
 
 
@@ -88,7 +94,7 @@ class SimpleFitted:
         return Description(
             family=self.specification.family,
             label=self.label,
-            specification=_spec_dict(self.specification),
+            specification=as_dict(self.specification),
             parameters={**self.parameters, "sigma": self.sigma},
             information_criteria={},
             residual_variance=self.sigma**2,
@@ -96,12 +102,6 @@ class SimpleFitted:
             observations=int(np.isfinite(self.y.to_numpy(dtype=float)).sum()),
             fit_seconds=self.fit_seconds,
         )
-
-
-def _spec_dict(spec: Any) -> dict[str, Any]:
-    from service.core.models.base import as_dict
-
-    return as_dict(spec)
 
 
 def residual_sigma(residuals: np.ndarray, n_parameters: int) -> float:
