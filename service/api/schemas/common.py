@@ -15,7 +15,7 @@ from pydantic import (
     model_serializer,
 )
 
-from service.core.data.periods import MAX_PERIODS
+from service.core.data.periods import MAX_PERIOD, MAX_PERIODS
 from service.core.data.series import VALUE_MAGNITUDE
 from service.core.data.timestamps import TIMESTAMP_CHARACTERS
 
@@ -88,11 +88,12 @@ SeasonalPeriods = Annotated[
                 {
                     "type": "number",
                     "minimum": 1,
+                    "maximum": MAX_PERIOD,
                     "description": "1 (no season), or at least 2",
                 },
                 {
                     "type": "array",
-                    "items": {"type": "number", "minimum": 2},
+                    "items": {"type": "number", "minimum": 2, "maximum": MAX_PERIOD},
                     "minItems": 1,
                     "maxItems": MAX_PERIODS,
                 },

@@ -33,6 +33,8 @@ from service.core.data.frequency import step_of
 from service.core.errors import FieldProblem, SeriesError
 
 MAX_PERIODS = 5
+# The longest period: the largest series any setting accepts (twice it overflowed a float).
+MAX_PERIOD = 10_000_000
 PERIODS_BY_STEP: tuple[dict[str, Any], ...] = (
     {"step": "hourly", "periods": [24, 168], "cycles": "day, week"},
     {"step": "half-hourly", "periods": [48, 336], "cycles": "day, week"},
@@ -71,6 +73,8 @@ def check_periods(value: Any, field: str) -> tuple[float, ...]:
         else:
             if value < 1:
                 raise SeriesError("seasonal_period must be >= 1", field=field)
+            if value > MAX_PERIOD:
+                raise SeriesError(f"seasonal_period must be at most {MAX_PERIOD}", field=field)
             return () if value == 1 else (float(value),)
     elif isinstance(value, Sequence) and not isinstance(value, (str, bytes)):
         items = value
@@ -91,6 +95,8 @@ def check_periods(value: Any, field: str) -> tuple[float, ...]:
             problems.append(FieldProblem(where, "must be a finite number"))
         elif v < 2:
             problems.append(FieldProblem(where, f"must be at least 2 (steps per cycle); got {v}"))
+        elif v > MAX_PERIOD:
+            problems.append(FieldProblem(where, f"must be at most {MAX_PERIOD}; got {v:g}"))
         elif float(v) in out:
             problems.append(FieldProblem(where, f"repeats the period {period_text(float(v))}"))
         else:
