@@ -103,11 +103,16 @@ def _rows(body: bytes) -> list[tuple[int, list[str]]]:
         text = body.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
         raise CsvProblem(f"the CSV body is not UTF-8 (byte {exc.start})", "body") from None
-    return [
-        (line, row)
-        for line, row in enumerate(csv.reader(io.StringIO(text)), start=1)
-        if any(cell.strip() for cell in row)
-    ]
+    # newline="": a lone carriage return ends a row instead of being an error inside a cell.
+    rows = csv.reader(io.StringIO(text, newline=""))
+    try:
+        return [
+            (line, row) for line, row in enumerate(rows, start=1) if any(c.strip() for c in row)
+        ]
+    except csv.Error as exc:  # a cell past the module's size limit, a stray NUL, ...
+        raise CsvProblem(
+            f"the CSV body cannot be read: {exc}", f"csv.line[{rows.line_num}]"
+        ) from None
 
 
 def _is_number(text: str) -> bool:

@@ -122,3 +122,27 @@ def test_a_period_that_doubles_past_the_float_range_names_the_field(limited: Tes
             limited.post("/v1/forecasts", json=body),
             case(body, status=422, field=field),
         )
+
+
+ROWS = "".join(f"2024-01-{d:02d},{10 + d % 7}\n" for d in range(1, 29))
+CSV_BODIES = {
+    "lone-carriage-returns": "timestamp,value\r" + ROWS.replace("\n", "\r"),
+    "carriage-return-inside-a-cell": "\u00f9\r\u00d9p,\U000f4dbb\x11\u00f2",
+    "windows-line-ends": "timestamp,value\r\n" + ROWS.replace("\n", "\r\n"),
+    "a-cell-of-200-kilobytes": "timestamp,value\n" + "2024-01-01," + "9" * 200_000 + "\n",
+    "a-nul-byte": "timestamp,value\n2024-01-01,1\x00\n" + ROWS,
+    "an-unbalanced-quote": 'timestamp,value\n"2024-01-01,1\n' + ROWS,
+    "a-number-past-float64": "timestamp,value\n" + ROWS + "2024-01-29,1e400\n",
+    "semicolons": ROWS.replace(",", ";"),
+    "only-a-header": "timestamp,value\n",
+    "fullwidth-digits": ROWS.replace("1", "\uff11"),
+}
+
+
+@pytest.mark.parametrize("name", list(CSV_BODIES))
+@pytest.mark.parametrize("path", ["/v1/forecasts?horizon=3&model=naive", "/v1/diagnostics"])
+def test_a_hostile_csv_body_gets_a_clean_answer(limited: TestClient, name: str, path: str) -> None:
+    response = limited.post(
+        path, content=CSV_BODIES[name].encode(), headers={"content-type": "text/csv"}
+    )
+    check(response, Case(b"", path=path))
