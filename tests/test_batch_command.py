@@ -14,6 +14,7 @@ import pytest
 from service import batch, demo
 from service.cli import main
 from service.config import Settings
+from service.runtime.fanout import WORKER_SETTINGS
 
 
 def long_table(count: int, points: int = 48, seed: int = 11) -> pd.DataFrame:
@@ -114,7 +115,9 @@ def test_an_interrupted_run_resumes_from_its_journal(table: Path, tmp_path: Path
 def cluster() -> Iterator[str]:
     """A Dask LocalCluster of two single-threaded worker processes, for this module."""
     distributed = pytest.importorskip("distributed")
-    with distributed.LocalCluster(
+    import dask
+
+    with dask.config.set(WORKER_SETTINGS), distributed.LocalCluster(
         n_workers=2,
         threads_per_worker=1,
         processes=True,
@@ -149,6 +152,12 @@ def test_a_dask_cluster_gives_exactly_the_local_answers(
     assert run(source, remote) == 0
     assert "this run: 1 series forecast, 3 already done" in capsys.readouterr().out
     assert remote.read_text() == before
+    # The workers got WORKER_SETTINGS through their nannies: no profiles piling up.
+    import distributed
+
+    with distributed.Client(cluster) as client:
+        held = client.run(lambda dask_worker: len(dask_worker.profile_history))
+    assert held and set(held.values()) == {0}, held
 
 
 def test_run_failures_are_one_line_with_a_status(

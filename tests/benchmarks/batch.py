@@ -37,7 +37,7 @@ import pandas as pd
 
 from service.api.batch_items import answer_entry
 from service.config import Settings
-from service.runtime.fanout import CONNECT_SECONDS, fan_out, local_pool
+from service.runtime.fanout import CONNECT_SECONDS, WORKER_SETTINGS, fan_out, local_pool
 
 HORIZON = 12
 CONFIGURATIONS = ("local1", "local2", "cluster", "stream")
@@ -249,11 +249,13 @@ def measure(
 
 @contextmanager
 def cluster(workers: int) -> Iterator[tuple[str, float]]:
-    """A LocalCluster of single-threaded worker processes: its address, seconds to start."""
+    """A LocalCluster of single-threaded worker processes, set up as the batch job's workers
+    should be (WORKER_SETTINGS): its address, seconds to start."""
+    import dask
     from distributed import LocalCluster
 
     started = time.perf_counter()
-    with LocalCluster(
+    with dask.config.set(WORKER_SETTINGS), LocalCluster(
         n_workers=workers,
         threads_per_worker=1,
         processes=True,

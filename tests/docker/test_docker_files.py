@@ -20,6 +20,7 @@ from prometheus_client.parser import text_string_to_metric_families
 
 from service.api.app import create_app
 from service.config import Settings
+from service.runtime.fanout import WORKER_SETTINGS
 from service.runtime.telemetry import Telemetry
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -517,3 +518,17 @@ def test_the_readme_starts_the_batch_profile_by_existing_service_names(
     assert named and set(named) <= set(compose["services"]), named
     port = option(compose["services"]["batch-scheduler"]["command"], "--port")
     assert f"--scheduler tcp://127.0.0.1:{port}" in readme
+
+
+def test_compose_batch_workers_run_with_the_batch_jobs_dask_settings(
+    compose: dict[str, Any],
+) -> None:
+    """Each of WORKER_SETTINGS as the DASK_ variable that dask reads into it."""
+    import dask.config
+
+    env = compose["services"]["batch-worker"]["environment"]
+    for key, value in WORKER_SETTINGS.items():
+        name = "DASK_" + key.upper().replace(".", "__").replace("-", "_")
+        assert name in env, name
+        read = dask.config.collect_env({name: env[name]})
+        assert dask.config.get(key, config=read) == value, name
