@@ -117,13 +117,16 @@ def cluster() -> Iterator[str]:
     distributed = pytest.importorskip("distributed")
     import dask
 
-    with dask.config.set(WORKER_SETTINGS), distributed.LocalCluster(
-        n_workers=2,
-        threads_per_worker=1,
-        processes=True,
-        dashboard_address=":0",  # a free port: 8787 may be taken on a shared machine
-        host="127.0.0.1",
-    ) as local:
+    with (
+        dask.config.set(WORKER_SETTINGS),
+        distributed.LocalCluster(
+            n_workers=2,
+            threads_per_worker=1,
+            processes=True,
+            dashboard_address=":0",  # a free port: 8787 may be taken on a shared machine
+            host="127.0.0.1",
+        ) as local,
+    ):
         yield str(local.scheduler_address)
 
 

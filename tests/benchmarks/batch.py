@@ -255,13 +255,16 @@ def cluster(workers: int) -> Iterator[tuple[str, float]]:
     from distributed import LocalCluster
 
     started = time.perf_counter()
-    with dask.config.set(WORKER_SETTINGS), LocalCluster(
-        n_workers=workers,
-        threads_per_worker=1,
-        processes=True,
-        dashboard_address=":0",
-        host="127.0.0.1",
-    ) as local:
+    with (
+        dask.config.set(WORKER_SETTINGS),
+        LocalCluster(
+            n_workers=workers,
+            threads_per_worker=1,
+            processes=True,
+            dashboard_address=":0",
+            host="127.0.0.1",
+        ) as local,
+    ):
         yield str(local.scheduler_address), time.perf_counter() - started
 
 
