@@ -3,7 +3,9 @@
 Each specification is fitted ONCE on the data before the first origin; its parameters are then
 held fixed and re-filtered (``fitted.refilter``) forward through the later origins (DESIGN,
 'Backtests must not peek'). Origins end at the last point: the last window covers the final
-``horizon`` points and earlier origins lie ``step`` points apart.
+``horizon`` points and earlier origins lie ``step`` points apart. ETS, ARIMA, their transforms and
+combinations forecast from all the later origins in one pass over the series
+(``models.base.origin_forecasts``: the same numbers as one re-filter per origin).
 """
 
 from __future__ import annotations
@@ -30,7 +32,13 @@ from service.core.evaluation.scoring import (
     check_metric,
     mase_scale,
 )
-from service.core.models.base import FitWarning, Specification, as_dict
+from service.core.models.base import (
+    FitWarning,
+    Forecast,
+    Specification,
+    as_dict,
+    origin_forecasts,
+)
 from service.core.models.library_warnings import captured, unique_warnings
 
 T = TypeVar("T")
@@ -79,9 +87,15 @@ def evaluate(task: Task) -> ModelBacktest:
             fit_seconds = time.perf_counter() - start
             label = fitted.describe().label
             start = time.perf_counter()
-            for origin in plan.origins:
-                current = fitted if origin == fit_end else fitted.refilter(y.iloc[:origin])
-                forecasts.append(_one_origin(current, y, origin, plan.horizon, task))
+            # The later origins re-filter the estimates; a family may forecast from all of
+            # them in one pass over the series (the same numbers: base.origin_forecasts).
+            at: dict[int, Forecast] = {}
+            if fit_end in plan.origins:
+                at[fit_end] = fitted.forecast(plan.horizon, task.coverage)
+            later = [origin for origin in plan.origins if origin != fit_end]
+            moved = origin_forecasts(fitted, y, later, plan.horizon, task.coverage)
+            at.update(zip(later, moved, strict=True))
+            forecasts.extend(_one_origin(at[o], y, o, plan.horizon, task) for o in plan.origins)
             refilter_seconds = time.perf_counter() - start
         caught.extend(fitted.warnings)
     except (ValueError, ArithmeticError, LookupError, RuntimeError, TypeError) as exc:
@@ -150,8 +164,9 @@ def resolved_specification(fitted: Any) -> Any:
     return spec
 
 
-def _one_origin(fitted: Any, y: pd.Series, origin: int, horizon: int, task: Task) -> OriginForecast:
-    fc = fitted.forecast(horizon, task.coverage)
+def _one_origin(
+    fc: Forecast, y: pd.Series, origin: int, horizon: int, task: Task
+) -> OriginForecast:
     history = y.to_numpy(dtype=float)[:origin]
     return OriginForecast(
         origin=y.index[origin],

@@ -10,7 +10,7 @@ from __future__ import annotations
 import dataclasses
 from collections.abc import Sequence
 from dataclasses import dataclass, field
-from typing import Any, ClassVar, Protocol, runtime_checkable
+from typing import Any, ClassVar, Protocol, cast, runtime_checkable
 
 import numpy as np
 import pandas as pd
@@ -157,6 +157,18 @@ def _jsonable(value: Any) -> Any:
     if isinstance(value, tuple):
         return [_jsonable(v) for v in value]
     return value
+
+
+def origin_forecasts(
+    fitted: Fitted, y: pd.Series, origins: Sequence[int], horizon: int, coverage: Sequence[float]
+) -> list[Forecast]:
+    """Forecasts from several origins of ``y`` with ``fitted``'s parameters held fixed:
+    ``fitted.refilter(y.iloc[:o]).forecast(horizon, coverage)`` for each origin ``o``, or the
+    family's own ``origin_forecasts``, which gives the same from fewer passes over ``y``."""
+    own = getattr(fitted, "origin_forecasts", None)
+    if callable(own) and origins:
+        return cast(list[Forecast], own(y, origins, horizon, coverage))
+    return [fitted.refilter(y.iloc[:origin]).forecast(horizon, coverage) for origin in origins]
 
 
 def residuals_from(y: pd.Series, fitted: pd.Series) -> pd.Series:

@@ -22,6 +22,7 @@ from service.core.models.base import (
     FitWarning,
     Forecast,
     as_dict,
+    origin_forecasts,
     parameter,
 )
 from service.core.models.intervals import Interval
@@ -137,8 +138,18 @@ class CombinationFitted:
 
     def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast:
         """Weighted mean of the points; weighted mean of the bounds per coverage level."""
+        return self._combined([m.forecast(horizon, coverage) for m in self.members], coverage)
+
+    def origin_forecasts(
+        self, y: pd.Series, origins: Sequence[int], horizon: int, coverage: Sequence[float]
+    ) -> list[Forecast]:
+        """``refilter(y.iloc[:o]).forecast(horizon, coverage)`` for every origin ``o``, each
+        member forecasting from all the origins at once."""
+        parts = [origin_forecasts(m, y, origins, horizon, coverage) for m in self.members]
+        return [self._combined([p[k] for p in parts], coverage) for k in range(len(origins))]
+
+    def _combined(self, parts: Sequence[Forecast], coverage: Sequence[float]) -> Forecast:
         w = self.specification.normalised_weights()
-        parts = [m.forecast(horizon, coverage) for m in self.members]
         point = w @ np.array([p.point for p in parts])
         intervals = tuple(
             Interval(

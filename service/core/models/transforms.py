@@ -27,6 +27,7 @@ from service.core.models.base import (
     FitWarning,
     Forecast,
     as_dict,
+    origin_forecasts,
     residuals_from,
 )
 from service.core.models.intervals import Interval, normal_quantile
@@ -193,9 +194,26 @@ class TransformedFitted:
 
     def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast:
         """Back-transformed quantiles; point = bias-adjusted mean or median (see module)."""
+        return self._back(self.inner.forecast(horizon, _asked(coverage)), coverage)
+
+    def origin_forecasts(
+        self, y: pd.Series, origins: Sequence[int], horizon: int, coverage: Sequence[float]
+    ) -> list[Forecast]:
+        """``refilter(y.iloc[:o]).forecast(horizon, coverage)`` for every origin ``o``: the
+        transform works point by point, so the inner model forecasts from the transformed
+        longest history (``origin_forecasts``, one pass where the inner family has it)."""
+        longest = self.refilter(y.iloc[: max(origins)])
+        inner = origin_forecasts(self.inner, longest.inner_y(), origins, horizon, _asked(coverage))
+        return [self._back(f, coverage) for f in inner]
+
+    def inner_y(self) -> pd.Series:
+        """The transformed history the inner model was fitted or re-filtered on."""
+        values = self.y.to_numpy(dtype=float)
+        return pd.Series(boxcox(values, self.lam), index=self.y.index, name=self.y.name)
+
+    def _back(self, inner: Forecast, coverage: Sequence[float]) -> Forecast:
+        """An inner forecast (with the variance level among its intervals) on the data scale."""
         levels = tuple(coverage)
-        asked = levels if _VARIANCE_LEVEL in levels else (*levels, _VARIANCE_LEVEL)
-        inner = self.inner.forecast(horizon, asked)
         by_level = {i.coverage: i for i in inner.intervals}
         w = inner.point
         point = inverse_boxcox(w, self.lam)
@@ -252,6 +270,12 @@ class TransformedFitted:
             observations=d.observations,
             fit_seconds=d.fit_seconds,
         )
+
+
+def _asked(coverage: Sequence[float]) -> tuple[float, ...]:
+    """The levels asked of the inner model: the requested ones and the variance level."""
+    levels = tuple(coverage)
+    return levels if _VARIANCE_LEVEL in levels else (*levels, _VARIANCE_LEVEL)
 
 
 def as_transform_dict(fitted: TransformedFitted) -> dict[str, Any]:

@@ -100,6 +100,48 @@ class ArimaFitted:
             raise FitError(f"{self.orders.label} gave a non-finite forecast", field="model")
         return Forecast(future_index(self.y.index, h), point, normal_intervals(point, sd, levels))
 
+    def origin_forecasts(
+        self, y: pd.Series, origins: Sequence[int], horizon: int, coverage: Sequence[float]
+    ) -> list[Forecast]:
+        """``refilter(y.iloc[:o]).forecast(horizon, coverage)`` for every origin ``o`` from one
+        filter over ``y``: the filter only looks back, so its predicted state and covariance at
+        ``o`` are those a filter over ``y.iloc[:o]`` ends with, and the forecast runs the
+        prediction step from them (what statsmodels' forecast filter does on missing data;
+        equal to 1e-9, tests/core/models/arima). Models with regressors go origin by origin."""
+        h = check_positive_int(horizon, "horizon")
+        levels = check_coverage(coverage)
+        if self.regressors is not None:
+            return [self.refilter(y.iloc[:o]).forecast(h, levels) for o in origins]
+        for origin in origins:
+            check_series(y.iloc[:origin])
+            check_size(self.orders, origin, 0)
+        filtered = self.refilter(y.iloc[: max(origins)])._model_results().filter_results
+        design = filtered.design[:, :, 0]
+        transition = filtered.transition[:, :, 0]
+        shock = filtered.selection[:, :, 0] @ filtered.state_cov[:, :, 0]
+        shock = shock @ filtered.selection[:, :, 0].T
+        noise = filtered.obs_cov[0, 0, 0]
+        drift = filtered.state_intercept[:, 0]
+        out = []
+        for origin in origins:
+            state = filtered.predicted_state[:, origin]
+            cov = filtered.predicted_state_cov[:, :, origin]
+            point, variance = np.empty(h), np.empty(h)
+            # The constant's columns at the forecast steps, as forecast() passes them.
+            x = design_matrix(self.orders, None, origin, h)
+            intercepts = np.zeros(h) if x is None else np.dot(x, self.estimate.values[: x.shape[1]])
+            for step in range(h):
+                point[step] = (design @ state)[0] + intercepts[step]
+                variance[step] = (design @ cov @ design.T)[0, 0] + noise
+                state = transition @ state + drift
+                cov = transition @ cov @ transition.T + shock
+            sd = np.sqrt(variance)
+            if not (np.all(np.isfinite(point)) and np.all(np.isfinite(sd))):
+                raise FitError(f"{self.orders.label} gave a non-finite forecast", field="model")
+            index = future_index(y.index[:origin], h)
+            out.append(Forecast(index, point, normal_intervals(point, sd, levels)))
+        return out
+
     def fitted_values(self) -> pd.Series:
         """One-step predictions; NaN over the first d + mD steps (absorbed by the diffuse start)."""
         values = np.asarray(self._model_results().fittedvalues, dtype=float).copy()

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import copy
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING, Any
@@ -115,27 +116,60 @@ class EtsFitted:
 
     def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast:
         """Point forecasts and intervals (analytic or seeded simulation, see interval_method)."""
-        result = self.results()
-        n = len(self.y)
+        return self._forecast_at(self.results(), len(self.y), horizon, coverage)
+
+    def origin_forecasts(
+        self, y: pd.Series, origins: Sequence[int], horizon: int, coverage: Sequence[float]
+    ) -> list[Forecast]:
+        """``refilter(y.iloc[:o]).forecast(horizon, coverage)`` for every origin ``o``, from
+        one smoothing pass over the longest of these histories: the recursion only looks
+        back, so its states at ``o - 1`` are those of a pass over ``y.iloc[:o]``, bit for bit,
+        and so are the residuals that scale the intervals (tests compare with refilter)."""
+        for origin in origins:
+            checked_values(y.iloc[:origin])
+        longest = self.refilter(y.iloc[: max(origins)])
+        result = longest.results()
+        return [longest._forecast_at(result, origin, horizon, coverage) for origin in origins]
+
+    def _forecast_at(
+        self, result: ETSResults, origin: int, horizon: int, coverage: Sequence[float]
+    ) -> Forecast:
+        """The forecast from the first ``origin`` points of ``result``'s history (all of it, or
+        a prefix: what a smoothing of that prefix alone would give)."""
+        raw = getattr(result, "_results", result)
+        resid = raw.resid[:origin]
         with captured(self.warnings, self.label):
-            point = np.asarray(result.forecast(horizon), dtype=float)
+            # What ETSResults.forecast runs on a history of ``origin`` points.
+            zeros = np.zeros((horizon, 1))
+            point = np.asarray(
+                raw.simulate(horizon, anchor=origin - 1, random_errors=zeros), dtype=float
+            )
             if self.interval_method == "analytic":
-                prediction = result.get_prediction(start=n, end=n + horizon - 1, method="exact")
-                sd = np.sqrt(np.asarray(prediction.forecast_variance, dtype=float))
-                intervals = normal_intervals(point, sd, coverage)
+                # What get_prediction(method="exact") computes beyond that history: the mean
+                # squared residual times the class's relative variance at steps 1..h.
+                steps = np.ones(horizon)
+                steps[:] = range(1, horizon + 1)
+                mse = np.sum(resid**2) / origin
+                variance = mse * raw._relative_forecast_variance(steps)
+                intervals = normal_intervals(point, np.sqrt(np.asarray(variance)), coverage)
             else:
-                intervals = self._simulated(result, horizon, coverage)
+                view = raw
+                if origin != raw.nobs:
+                    # The simulation's error scale is the prefix's mean squared residual.
+                    view = copy.copy(raw)
+                    view.scale = np.mean(resid**2)
+                intervals = self._simulated(view, origin, horizon, coverage)
         if not np.all(np.isfinite(point)):
             raise FitError(f"{self.label} produced non-finite forecasts", field="model")
-        return Forecast(future_index(self.y.index, horizon), point, intervals)
+        return Forecast(future_index(self.y.index[:origin], horizon), point, intervals)
 
     def _simulated(
-        self, result: ETSResults, horizon: int, coverage: Sequence[float]
+        self, result: ETSResults, origin: int, horizon: int, coverage: Sequence[float]
     ) -> tuple[Interval, ...]:
         paths = np.asarray(
             result.simulate(
                 horizon,
-                anchor="end",
+                anchor=origin - 1,
                 repetitions=self.simulation_paths,
                 rng=np.random.default_rng(SIMULATION_SEED),
             ),
