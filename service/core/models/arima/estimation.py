@@ -30,6 +30,10 @@ from service.core.models.library_warnings import captured
 
 CSS_EVALUATIONS = 30
 """Residual evaluations per coefficient a CSS fit may use: more than converged fits need."""
+CSS_SOLVER = "trf"
+"""scipy's trust-region least squares for the CSS fits. Its Levenberg-Marquardt ("lm",
+MINPACK) took different steps from identical inputs in different processes (scipy 1.17.1),
+so the ARIMA orders chosen depended on the process (tests/benchmarks/RESULTS.md)."""
 
 
 def css_estimate(
@@ -70,7 +74,7 @@ def css_estimate(
         # reach it wander with a non-invertible MA (figures in tests/benchmarks/RESULTS.md).
         with np.errstate(all="ignore"):
             solution = optimize.least_squares(
-                residuals, x0, jac=jacobian, method="lm", max_nfev=CSS_EVALUATIONS * x0.size
+                residuals, x0, jac=jacobian, method=CSS_SOLVER, max_nfev=CSS_EVALUATIONS * x0.size
             )
         x, iterations, converged = solution.x, int(solution.nfev), bool(solution.success)
     else:
