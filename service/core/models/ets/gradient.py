@@ -103,9 +103,13 @@ def minimise(
     bounds: Sequence[tuple[float | None, float | None]],
     maxiter: int,
     callback: Callable[[np.ndarray], Any] | None = None,
+    scaled: bool = False,
 ) -> tuple[np.ndarray, dict[str, Any]]:
     """L-BFGS-B as statsmodels' ``_fit_lbfgs`` calls it with ``approx_grad``; the estimates and
-    statsmodels' ``mle_retvals``."""
+    statsmodels' ``mle_retvals``. ``scaled`` measures every unbounded parameter (ETS: the
+    initial states) in units of its start's magnitude (at least 1) while optimising."""
+    if scaled:
+        return _scaled_minimise(objective, start, args, bounds, maxiter, callback)
     lower = np.array([-np.inf if lo is None else float(lo) for lo, _ in bounds])
     upper = np.array([np.inf if hi is None else float(hi) for _, hi in bounds])
     evaluations = _Evaluations(objective, args)
@@ -140,6 +144,36 @@ def minimise(
         "iterations": info["nit"],
     }
     return x, retvals
+
+
+def _scaled_minimise(
+    objective: Objective,
+    start: np.ndarray,
+    args: tuple[Any, ...],
+    bounds: Sequence[tuple[float | None, float | None]],
+    maxiter: int,
+    callback: Callable[[np.ndarray], Any] | None,
+) -> tuple[np.ndarray, dict[str, Any]]:
+    """``minimise`` over z = x / scale: the initial states of a series in the hundreds and
+    smoothing parameters below one make an ill-scaled problem, on which L-BFGS-B spent most
+    of its iterations learning the scales; in these units the same fits need about a third
+    fewer likelihood evaluations and end at the same or a higher likelihood (RESULTS.md)."""
+    start = np.asarray(start, dtype=float)
+    free = np.array([_unbounded(lo) and _unbounded(hi) for lo, hi in bounds], dtype=bool)
+    scale = np.where(free, np.maximum(1.0, np.abs(start)), 1.0)
+
+    def in_units(z: np.ndarray, *extra: Any) -> float:
+        return objective(z * scale, *extra)
+
+    def seen(z: np.ndarray) -> Any:
+        return None if callback is None else callback(z * scale)
+
+    z, retvals = minimise(in_units, start / scale, args, bounds, maxiter, seen)
+    return z * scale, retvals
+
+
+def _unbounded(limit: float | None) -> bool:
+    return limit is None or not np.isfinite(limit)
 
 
 class ForwardDifferenceFit(StateSpaceMLEModel):  # type: ignore[misc]
@@ -188,7 +222,10 @@ class ForwardDifferenceFit(StateSpaceMLEModel):  # type: ignore[misc]
             # statsmodels' LikelihoodModel.fit minimises exactly this.
             return -self.loglike(params, *args) / nobs
 
-        x, retvals = minimise(objective, start_params, fargs, kwargs["bounds"], maxiter, callback)
+        scaled = bool(getattr(self, "scaled_states", False))
+        x, retvals = minimise(
+            objective, start_params, fargs, kwargs["bounds"], maxiter, callback, scaled
+        )
         if not retvals["converged"]:
             # statsmodels' own warning, which the fits' warning capture turns into data.
             warnings.warn(

@@ -45,6 +45,10 @@ class LeanEtsModel(ETSModel, ForwardDifferenceFit):  # type: ignore[misc]
     per evaluation. Complex parameters (complex-step derivatives) take the original path.
     """
 
+    scaled_states = False
+    """Optimise the initial states in units of their starts (gradient.py): set by the family's
+    exact fits; off, a fit is bit-identical to statsmodels' own."""
+
     @property
     def _res_classes(self) -> dict[str, tuple[type[Any], type[Any]]]:
         return {"fit": (_LeanResults, ETSResultsWrapper)}

@@ -244,6 +244,7 @@ def _exact_fit(
             with captured(caught, ets_label(chosen)):
                 # A RangeIndex series, as in results(): statsmodels' prediction needs an index.
                 model = LeanEtsModel(pd.Series(values), **model_kwargs(chosen, period))
+                model.scaled_states = True
                 start = np.asarray(model.start_params, dtype=float).copy()
                 if warm is not None and len(warm) == start.size:
                     start = np.asarray(warm, dtype=float)
