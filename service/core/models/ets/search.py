@@ -117,6 +117,8 @@ def _direct_fit(
             start = None
             if start_at is not None and len(start_at) == len(model.start_params):
                 start = np.asarray(start_at, dtype=float)
+                # Earlier estimates of the same model, from the search's scaled fits.
+                model.scaled_states = True
             result = model.fit(start_params=start, disp=False, maxiter=EXACT_MAXITER)
             check = np.asarray(result.forecast(max(2 * period, 12)), dtype=float)
     except (ValueError, np.linalg.LinAlgError, OverflowError, ZeroDivisionError):
