@@ -55,6 +55,8 @@ def forward_gradient(
 ) -> Callable[..., np.ndarray]:
     """scipy's 2-point ``approx_derivative`` with an absolute step, written out."""
 
+    bounded = not np.all((lower == -np.inf) & (upper == np.inf))
+
     def gradient(x0: np.ndarray, *args: Any) -> np.ndarray:
         if evaluations.last_x is not None and np.array_equal(x0, evaluations.last_x):
             f0 = evaluations.last_f
@@ -64,7 +66,7 @@ def forward_gradient(
         h = np.where(
             ((x0 + STEP) - x0) == 0, RELATIVE_STEP * sign * np.maximum(1.0, np.abs(x0)), STEP
         )
-        if not np.all((lower == -np.inf) & (upper == np.inf)):
+        if bounded:
             h = _within_bounds(x0, h, lower, upper)
         out = np.empty(x0.size)
         for i in range(x0.size):
@@ -82,11 +84,15 @@ def _within_bounds(
     x0: np.ndarray, h: np.ndarray, lower: np.ndarray, upper: np.ndarray
 ) -> np.ndarray:
     """scipy's one-sided step adjustment: flip a step that leaves the box, or shorten it."""
+    x = x0 + h
+    violated = (x < lower) | (x > upper)
+    if not violated.any():
+        # Every step stays inside (a step longer than both distances to the bounds would
+        # leave them): nothing to adjust, as in scipy.
+        return h
     adjusted = h.copy()
     below = x0 - lower
     above = upper - x0
-    x = x0 + h
-    violated = (x < lower) | (x > upper)
     fitting = np.abs(h) <= np.maximum(below, above)
     adjusted[violated & fitting] *= -1
     forward = (above >= below) & ~fitting

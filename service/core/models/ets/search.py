@@ -7,12 +7,13 @@ from __future__ import annotations
 import math
 import time
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
 from statsmodels.tools.eval_measures import aicc
 from statsmodels.tsa.exponential_smoothing.ets import ETSResults
+from statsmodels.tsa.exponential_smoothing.initialization import _initialization_heuristic
 
 from service.core.errors import FitError
 from service.core.models.base import FitWarning
@@ -72,9 +73,10 @@ def search_ets(
     notes: list[FitWarning] = []
     tried: list[EtsCandidate] = []
     scored: list[tuple[float, EtsSpec, _Estimate]] = []
+    starts: dict[tuple[str | None, str | None], tuple[Any, Any, Any]] = {}
     for candidate in spec.candidates(values, seasonal_period):
         label = ets_label(candidate)
-        estimate = _search_fit(candidate, values, seasonal_period)
+        estimate = _search_fit(candidate, values, seasonal_period, starts)
         problem = estimate.failure or _implausible(estimate, values)
         if problem is not None:
             tried.append(EtsCandidate(label, candidate, None, problem))
@@ -164,16 +166,48 @@ class _Estimate:
     forecast_check: np.ndarray | None = None
 
 
-def _search_fit(spec: EtsSpec, values: np.ndarray, period: int) -> _Estimate:
-    """A cheap fit with heuristic initial states (estimated ones when the data are too short)."""
+def _search_fit(
+    spec: EtsSpec,
+    values: np.ndarray,
+    period: int,
+    starts: dict[tuple[str | None, str | None], tuple[Any, Any, Any]] | None = None,
+) -> _Estimate:
+    """A cheap fit with heuristic initial states (estimated ones when the data are too short).
+
+    ``starts`` keeps statsmodels' heuristic initial states per trend and season type across
+    the search's candidates (they differ only in the error and the damping): the same values
+    given as known states make the same model, bit for bit, without decomposing the series
+    again for every candidate."""
     k = n_parameters(spec, period)
     if values.size - k - 1 <= 0:
         return _failed(f"too few observations ({values.size}) for {k} parameters")
     method = "heuristic" if values.size >= max(10, 2 * period) else "estimated"
     caught: list[FitWarning] = []
+    kwargs = model_kwargs(spec, period)
     try:
         with captured(caught, ets_label(spec)):
-            model = LeanEtsModel(values, initialization_method=method, **model_kwargs(spec, period))
+            if method == "heuristic" and starts is not None:
+                key = (kwargs["trend"], kwargs["seasonal"])
+                if key not in starts:
+                    starts[key] = _initialization_heuristic(
+                        values,
+                        trend=kwargs["trend"],
+                        seasonal=kwargs["seasonal"],
+                        seasonal_periods=period if kwargs["seasonal"] else 1,
+                    )
+                level, trend, season = starts[key]
+                model = LeanEtsModel(
+                    values,
+                    initialization_method="known",
+                    initial_level=level,
+                    initial_trend=trend,
+                    initial_seasonal=np.array(season, dtype=float)
+                    if kwargs["seasonal"]
+                    else season,
+                    **kwargs,
+                )
+            else:
+                model = LeanEtsModel(values, initialization_method=method, **kwargs)
             result = model.fit(disp=False, maxiter=SEARCH_MAXITER)
             check = np.asarray(result.forecast(max(2 * period, 12)), dtype=float)
     except (ValueError, np.linalg.LinAlgError, OverflowError, ZeroDivisionError) as exc:

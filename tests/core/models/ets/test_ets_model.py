@@ -95,3 +95,26 @@ def test_finalists_exact_fits_run_scaled_and_explicit_fits_do_not(monkeypatch) -
         seen.clear()
         EtsSpec(error="add", season="add").fit(y, 12)
     assert True in seen
+
+
+def test_shared_heuristic_starts_give_bit_identical_search_fits() -> None:
+    """The search computes the heuristic initial states once per trend and season type and
+    gives them as known states: every candidate's cheap fit is the one statsmodels' heuristic
+    initialisation makes."""
+    from service.core.models.ets import search
+    from service.core.models.ets.family import EtsSpec
+
+    for values, period in (
+        (positive_seasonal().to_numpy(), 12),
+        (positive_seasonal(60, 8).to_numpy(), 4),
+    ):
+        starts: dict = {}  # type: ignore[type-arg]
+        for candidate in EtsSpec().candidates(values, period):
+            with warnings.catch_warnings(), np.errstate(all="ignore"):
+                warnings.simplefilter("ignore")
+                alone = search._search_fit(candidate, values, period)
+                shared = search._search_fit(candidate, values, period, starts)
+            assert alone.failure == shared.failure
+            assert alone.llf == shared.llf or (np.isnan(alone.llf) and np.isnan(shared.llf))
+            assert alone.smoothing == shared.smoothing and alone.initial == shared.initial
+        assert 0 < len(starts) < len(EtsSpec().candidates(values, period))
