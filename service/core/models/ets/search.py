@@ -1,6 +1,6 @@
 """The ETS search: rank the admissible models by AICc on cheap fits, then fit the finalists
-exactly (estimated initial states started from the search solution) and keep the lowest
-exact AICc."""
+exactly (estimated initial states started from the search solution, optimised in units of
+their starts: gradient.py) and keep the lowest exact AICc."""
 
 from __future__ import annotations
 
@@ -107,10 +107,11 @@ def _direct_fit(
     period: int,
     start_at: tuple[float, ...] | None = None,
 ) -> EtsFitted | None:
-    """A fully specified model: one exact fit from statsmodels' own start (or ``start_at``,
-    earlier estimates of the same model), as a direct call would make; None (so the two-stage
-    path runs) when it fails, does not converge or forecasts implausibly. On 20 seeded
-    seasonal series the two-stage path found the same likelihood (tests/benchmarks/RESULTS.md)."""
+    """A fully specified model: one exact fit from statsmodels' own start, as a direct call
+    would make (or from ``start_at``, earlier estimates of the same model, in scaled units);
+    None (so the two-stage path runs) when it fails, does not converge or forecasts
+    implausibly. On 20 seeded seasonal series the two-stage path found the same likelihood
+    (tests/benchmarks/RESULTS.md)."""
     caught: list[FitWarning] = []
     label = ets_label(spec)
     try:
