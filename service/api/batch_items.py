@@ -185,12 +185,10 @@ def computed(checked: CheckedEntry, cache: Cache, settings: Settings) -> dict[st
     else:
         fitted_key = fit_key_for(task)
         stored = cache.load_fitted(fitted_key)
-        if stored.hit and isinstance(stored.value, jobs.FittedBundle):
-            body = render.forecast_answer(jobs.forecast_from(stored.value, task))
-        else:
-            answer, bundle = jobs.fit_and_forecast(task)
-            body = render.forecast_answer(answer)  # an overflowing forecast is refused first
-            cache.save_fitted(fitted_key, bundle)
+        answer, fresh = jobs.forecast_stored(stored.value if stored.hit else None, task)
+        body = render.forecast_answer(answer)  # an overflowing forecast is refused first
+        if fresh is not None:
+            cache.save_fitted(fitted_key, fresh)
     provenance = {"data_hash": data_key(series.y).label, **caching.provenance_fields(shown)}
     finished = caching.stored_response(body, provenance, len(series.y))
     if cache.enabled:

@@ -5,13 +5,14 @@ series parsing), in an in-process LRU and on disk, so that HTTP processes, repli
 the directory and restarts reuse them. Layer 2 holds fitted models (specification and
 parameters, designed to pickle small) keyed by data, specification and fit options, so a new
 horizon or coverage needs no refit. The disk side (sealing, eviction, claims, retrying a
-failed write) is ``runtime/disk.py``; a pickle is loaded only after its seal verifies.
+failed write) is ``runtime/disk.py``. A fitted model is stored and returned as the pickle a
+pool worker made; only a worker loads it (``jobs.forecast_stored``), and only after its seal
+verified here, so the server never imports a family's implementation to keep one.
 """
 
 from __future__ import annotations
 
 import logging
-import pickle
 import threading
 from collections import OrderedDict
 from collections.abc import Callable
@@ -127,11 +128,11 @@ class ResponseCache(Generic[V]):
         return self._bytes
 
 
-def _unpickled(opened: Opened) -> Any:
-    """The fitted model of a checked entry (never called on one that failed its seal)."""
+def _pickled(opened: Opened) -> bytes:
+    """The pickled fitted model of a checked entry (never called on one that failed its seal)."""
     if opened.kind != "pickle":
         raise BadEntry("not a fitted model")
-    return pickle.loads(opened.payload)
+    return opened.payload
 
 
 class Cache:
@@ -178,22 +179,17 @@ class Cache:
             return False
         return self.disk.write(key, "json", value.head + value.tail, value.meta())
 
-    def load_fitted(self, key: Key) -> Lookup[Any]:
-        """A fitted model from disk, unpickled only once its seal verifies (blocking)."""
-        return self._load(key, _unpickled)
+    def load_fitted(self, key: Key) -> Lookup[bytes]:
+        """A pickled fitted model from disk, returned only once its seal verifies (blocking)."""
+        return self._load(key, _pickled)
 
     def claim(self, key: Key) -> Claim:
         """Claim the computing of ``key`` across processes (blocking: off the event loop)."""
         return self.disk.claim(key) if self.disk is not None else Claim(True)
 
-    def save_fitted(self, key: Key, value: Any) -> bool:
-        """Persist a fitted model, sealed (blocking: call it off the event loop)."""
+    def save_fitted(self, key: Key, payload: bytes) -> bool:
+        """Persist a pickled fitted model, sealed (blocking: call it off the event loop)."""
         if self.disk is None:
-            return False
-        try:
-            payload = pickle.dumps(value, protocol=pickle.HIGHEST_PROTOCOL)
-        except Exception as exc:  # an object that will not pickle is skipped, not fatal
-            log.warning("not caching a fitted model that cannot be stored: %s", exc)
             return False
         return self.disk.write(key, "pickle", payload, {})
 

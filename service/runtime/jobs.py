@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import pickle
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -15,11 +16,6 @@ from service.core.diagnostics.sections import Diagnostics
 from service.core.errors import WindvaneError
 from service.core.evaluation.backtest import backtest as run_backtest
 from service.core.evaluation.records import BacktestReport
-
-# The families: the automatic selection looks them up in the registry only when a request
-# runs (candidate rules, refit), so without this import the first request of a process
-# would pay the statsmodels imports. The pool's fork server preloads this module.
-from service.core.models import registry as _registry  # noqa: F401
 from service.core.models.base import Description, Fitted, FitWarning, Forecast, Specification
 from service.core.models.library_warnings import captured
 from service.core.models.lower_bound import (
@@ -209,17 +205,36 @@ def forecast_from(bundle: FittedBundle, task: ForecastTask) -> ForecastAnswer:
     return _answer(task, fitted, result, found)
 
 
-def fit_and_forecast(task: ForecastTask) -> tuple[ForecastAnswer, FittedBundle]:
-    """Fit, then forecast; the bundle goes back to the server for the fit store."""
+def forecast_stored(
+    stored: bytes | None, task: ForecastTask
+) -> tuple[ForecastAnswer, bytes | None]:
+    """Forecast from the fit store's pickled bundle, or fit when there is none or it no longer
+    loads (a class changed since it was stored).
+
+    The second item is the pickled bundle to store, None when the stored one served or the
+    new one will not pickle. The bundle crosses to the server as bytes, so that the server
+    stores it without importing the family's implementation; the server hands in only an
+    entry whose seal it verified."""
+    if stored is not None:
+        try:
+            bundle = pickle.loads(stored)
+        except Exception:  # authentic but unusable: fitted again and stored again
+            bundle = None
+        if isinstance(bundle, FittedBundle):
+            return forecast_from(bundle, task), None
     bundle = fit_explicit(task)
-    return forecast_from(bundle, task), bundle
+    answer = forecast_from(bundle, task)
+    try:
+        return answer, pickle.dumps(bundle, protocol=pickle.HIGHEST_PROTOCOL)
+    except Exception:  # a model that will not pickle is answered, not stored
+        return answer, None
 
 
 def forecast(task: ForecastTask) -> ForecastAnswer:
     """Fit (or select) a model and forecast."""
     if task.specification is None:
         return _auto_forecast(task)
-    return fit_and_forecast(task)[0]
+    return forecast_from(fit_explicit(task), task)
 
 
 def with_transform(spec: Specification, transform: dict[str, Any] | None) -> Specification:

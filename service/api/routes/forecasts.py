@@ -59,16 +59,18 @@ async def _computed(
         # Model auto may spread its candidates over workers that are idle (runtime/spread.py).
         answer = await pool.run(jobs.forecast, task, spread=task.specification is None)
         return render.forecast_answer(answer), None
-    telemetry = get_telemetry(request)
     key = fit_key_for(task)
     stored = await asyncio.to_thread(cache.load_fitted, key)
-    telemetry.record_cache("fitted", stored.result)
-    if stored.hit and isinstance(stored.value, jobs.FittedBundle):
-        return render.forecast_answer(await pool.run(jobs.forecast_from, stored.value, task)), "hit"
-    answer, bundle = await pool.run(jobs.fit_and_forecast, task)
+    answer, fresh = await pool.run(jobs.forecast_stored, stored.value if stored.hit else None, task)
+    served = stored.hit and fresh is None
+    # An entry found that no longer loads in the worker counts as an error, as a damaged one.
+    get_telemetry(request).record_cache(
+        "fitted", "error" if stored.hit and not served else stored.result
+    )
     body = render.forecast_answer(answer)  # an overflowing forecast is refused before storing
-    await asyncio.to_thread(cache.save_fitted, key, bundle)
-    return body, "miss"
+    if fresh is not None:
+        await asyncio.to_thread(cache.save_fitted, key, fresh)
+    return body, "hit" if served else "miss"
 
 
 @router.post(

@@ -11,7 +11,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
 from service.core.applicability import NotApplicable
 
@@ -88,6 +87,8 @@ def seasonal_lag_stands_out(
     (Makridakis et al. 2020; the band is Bartlett's for an MA(m - 1) process)."""
     if period <= 1 or x.size <= period or not np.any(x != x[0]):
         return False
+    from scipy import stats
+
     r = sample_acf(x, period)
     band = stats.norm.ppf(0.5 + level / 2) * math.sqrt((1 + 2 * np.sum(r[:-1] ** 2)) / x.size)
     return bool(abs(r[-1]) > band)
@@ -132,6 +133,8 @@ def primary_ljung_box_lag(n: int, seasonal_period: int) -> int:
 
 def ljung_box(acf: np.ndarray, n: int, lag: int, fitted_parameters: int = 0) -> LjungBox:
     """Q = n(n+2) Σ r_k²/(n-k) for k <= lag, against χ² with lag - fitted_parameters df."""
+    from scipy import stats
+
     k = np.arange(1, lag + 1)
     statistic = float(n * (n + 2) * np.sum(acf[:lag] ** 2 / (n - k)))
     dof = max(1, lag - fitted_parameters)

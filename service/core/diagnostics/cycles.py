@@ -17,7 +17,6 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from statsmodels.tsa.seasonal import MSTL
 
 from service.core.data.periods import period_text
 from service.core.diagnostics.seasonality import stl_settings, strength
@@ -107,6 +106,8 @@ class MstlParts:
 def mstl_parts(values: np.ndarray, periods: Sequence[int]) -> MstlParts:
     """statsmodels' MSTL with cheap STL passes (two inner, none robust, loess jumps) and
     local-mean seasonal smoothing (MSTL_SEASONAL_DEGREE)."""
+    from statsmodels.tsa.seasonal import MSTL
+
     settings = stl_settings(min(periods))
     kwargs = {
         "robust": False,

@@ -7,7 +7,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import special
 
 from service.core.diagnostics.autocorrelation import sample_acf
 
@@ -67,6 +66,8 @@ def one_way_f(values: np.ndarray, groups: np.ndarray, k: int) -> tuple[float, fl
     """F statistic and p-value of a one-way analysis of variance over k groups (or None when
     a group has fewer than two values or nothing varies): what scipy's f_oneway gives, with
     bincount instead of one array per group."""
+    from scipy import special
+
     counts = np.bincount(groups, minlength=k).astype(float)
     if counts.min() < 2:
         return None
@@ -83,6 +84,8 @@ def one_way_f(values: np.ndarray, groups: np.ndarray, k: int) -> tuple[float, fl
 def mean_test(values: np.ndarray) -> tuple[float, float]:
     """t statistic and two-sided p-value of the mean against 0 (scipy's ttest_1samp, without
     its overhead of a few milliseconds)."""
+    from scipy import special
+
     n = values.size
     spread = float(np.std(values, ddof=1))
     if spread == 0.0:

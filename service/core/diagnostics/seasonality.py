@@ -16,9 +16,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import signal
-from statsmodels.nonparametric.smoothers_lowess import lowess
-from statsmodels.tsa.seasonal import STL
 
 from service.core.applicability import NotApplicable
 
@@ -104,6 +101,9 @@ def stl_settings(period: int) -> dict[str, int]:
 
 def decompose(x: np.ndarray, period: int) -> Decomposition | NotApplicable:
     """STL for seasonal series with two full seasons, a LOWESS trend otherwise."""
+    from statsmodels.nonparametric.smoothers_lowess import lowess
+    from statsmodels.tsa.seasonal import STL
+
     n = x.size
     reason = seasonal_reason(n, period)
     if reason is None:
@@ -155,6 +155,8 @@ def seasonal_strength(d: Decomposition) -> float | None:
 
 def candidate_periods(detrended: np.ndarray, acf: np.ndarray, band: float) -> list[CandidatePeriod]:
     """Up to three periodogram peaks (>= 5 % of the variance each) and the first ACF peak."""
+    from scipy import signal
+
     n = detrended.size
     frequencies, power = signal.periodogram(detrended, detrend="linear")
     total = float(power[1:].sum())

@@ -15,10 +15,6 @@ from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
-from scipy.linalg import solve_triangular
-from statsmodels.tools.sm_exceptions import InterpolationWarning
-from statsmodels.tsa.adfvalues import mackinnoncrit, mackinnonp
-from statsmodels.tsa.stattools import kpss
 
 from service.core.applicability import NotApplicable
 
@@ -111,6 +107,8 @@ def adf_critical_values(regression: Regression, observations: float) -> dict[str
 
     ``observations=math.inf`` gives the asymptotic values.
     """
+    from statsmodels.tsa.adfvalues import mackinnoncrit
+
     values = mackinnoncrit(N=1, regression=regression, nobs=observations)
     return {"1%": float(values[0]), "5%": float(values[1]), "10%": float(values[2])}
 
@@ -119,6 +117,8 @@ def adf_test(
     x: np.ndarray, regression: Regression, max_lag: int | None = None
 ) -> HypothesisTest | NotApplicable:
     """Augmented Dickey-Fuller test, lag order by AIC over 0..max_lag as adfuller does."""
+    from statsmodels.tsa.adfvalues import mackinnonp
+
     reason = applicability(x)
     if reason is not None:
         return reason
@@ -216,6 +216,8 @@ def _adf_statistic(
     x: np.ndarray, dx: np.ndarray, regression: Regression, lags: int
 ) -> tuple[float, int]:
     """The t-ratio of y_{t-1} in the ADF regression with ``lags`` lags, and its row count."""
+    from scipy.linalg import solve_triangular
+
     design, response = _adf_design(x, dx, regression, lags)
     rows, columns = design.shape
     width = columns + len(regression)
@@ -248,6 +250,9 @@ def kpss_test(
     Past the ends of the published table statsmodels clips the p-value and warns; the p-value
     is then reported as a bound (tests/reference/README.md, trap 7) and the warning dropped.
     """
+    from statsmodels.tools.sm_exceptions import InterpolationWarning
+    from statsmodels.tsa.stattools import kpss
+
     reason = applicability(x)
     if reason is not None:
         return reason

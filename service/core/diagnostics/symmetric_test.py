@@ -20,7 +20,6 @@ import math
 from typing import Literal
 
 import numpy as np
-from scipy.signal import lfilter
 
 Terms = Literal["c", "ct"]
 
@@ -161,6 +160,8 @@ def simulated_power_coefficient(index: int, terms: Terms, critical: float) -> fl
 
 def _ar1(shocks: np.ndarray, phi: float) -> np.ndarray:
     """Stationary AR(1) paths: the first value drawn from the stationary distribution."""
+    from scipy.signal import lfilter
+
     first = shocks[:, :1] / math.sqrt(1.0 - phi**2)
     rest, _ = lfilter([1.0], [1.0, -phi], shocks[:, 1:], axis=1, zi=phi * first)
     return np.concatenate([first, rest], axis=1)

@@ -7,7 +7,6 @@ from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
-from scipy import special
 
 
 @dataclass(frozen=True)
@@ -26,6 +25,8 @@ def normal_quantile(coverage: float) -> float:
     ``special.ndtri`` is what ``stats.norm.ppf`` computes (the same bits) without the
     distribution machinery, which cost more than the quantile; auto asks for it at every
     origin of every candidate."""
+    from scipy import special
+
     return float(special.ndtri(0.5 + coverage / 2.0))
 
 

@@ -15,7 +15,6 @@ from typing import Any, ClassVar
 
 import numpy as np
 import pandas as pd
-from statsmodels.tsa.seasonal import STL
 
 from service.core.checks import check_positive_int
 from service.core.data.filling import interpolate_gaps
@@ -137,6 +136,8 @@ class StlFitted:
 
 def _seasonal_component(y: pd.Series, m: int, robust: bool) -> tuple[pd.Series, list[FitWarning]]:
     """STL's seasonal component on the series (missing values interpolated for STL only)."""
+    from statsmodels.tsa.seasonal import STL
+
     if not isinstance(y, pd.Series):
         raise SeriesError("expected a pandas Series", field="series")
     if m < 2:

@@ -14,8 +14,6 @@ from typing import ClassVar
 
 import numpy as np
 import pandas as pd
-from scipy import optimize
-from statsmodels.tsa.seasonal import seasonal_decompose
 
 from service.core.checks import complete_values
 from service.core.data.grid import future_index
@@ -117,6 +115,8 @@ def _sse(alpha: float, values: np.ndarray) -> float:
 
 def ses_alpha(values: np.ndarray) -> float:
     """α in [1e-4, 1] minimising the one-step squared errors of SES."""
+    from scipy import optimize
+
     found = optimize.minimize_scalar(
         _sse, bounds=(1e-4, 1.0), args=(values,), method="bounded", options={"xatol": 1e-10}
     )
@@ -132,6 +132,8 @@ def theta_path(level: float, alpha: float, slope: float, n: int, horizon: int) -
 def seasonal_indices(values: np.ndarray, period: int, kind: str) -> tuple[float, ...]:
     """Classical decomposition by statsmodels: centred moving-average ratios (multiplicative,
     mean 1) or differences (additive, mean 0), averaged per season; one cycle from position 0."""
+    from statsmodels.tsa.seasonal import seasonal_decompose
+
     parts = seasonal_decompose(values, model=kind, period=period)
     return tuple(float(v) for v in np.asarray(parts.seasonal)[:period])
 

@@ -18,7 +18,6 @@ from typing import Any, ClassVar, cast
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from service.core.errors import FitError, SpecificationError
 from service.core.models.base import (
@@ -118,6 +117,8 @@ def inverse_boxcox(values: np.ndarray, lam: float) -> np.ndarray:
 
 def boxcox_lambda(values: np.ndarray) -> float:
     """λ by maximum likelihood for an i.i.d. normal model (scipy, method='mle': trap 5)."""
+    from scipy import stats
+
     return float(stats.boxcox_normmax(values, method="mle"))
 
 

@@ -11,7 +11,7 @@ import math
 import time
 from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import ClassVar
+from typing import TYPE_CHECKING, ClassVar
 
 import numpy as np
 import pandas as pd
@@ -19,15 +19,22 @@ import pandas as pd
 from service.core.checks import check_positive_int
 from service.core.data.regressors import aligned_history
 from service.core.errors import FitError, SpecificationError
-from service.core.models.arima.estimation import css_estimate, exact_estimate
-from service.core.models.arima.fitted import ArimaFitted, check_series, check_size
-from service.core.models.arima.orders import ArimaOrders, Estimate, design_matrix, difference
-from service.core.models.arima.search import EFFORTS, OrderSearchResult, search_orders
+from service.core.models.arima.orders import (
+    EFFORTS,
+    ArimaOrders,
+    Estimate,
+    design_matrix,
+    difference,
+)
 from service.core.models.base import (
     FitWarning,
     parameter,
 )
 from service.core.models.library_warnings import unique_warnings
+
+if TYPE_CHECKING:
+    from service.core.models.arima.fitted import ArimaFitted
+    from service.core.models.arima.search import OrderSearchResult
 
 FINAL_MAXITER = 500
 SECOND_START_ORDER = 4
@@ -109,6 +116,8 @@ class ArimaSpec:
         regressors: pd.DataFrame | None = None,
     ) -> ArimaFitted:
         """Fit on a regular series; ``regressors`` (same index as ``y``) enter as a regression."""
+        from service.core.models.arima.fitted import ArimaFitted, check_series, check_size
+
         start = time.perf_counter()
         check_series(y)
         m = check_positive_int(seasonal_period, "series.seasonal_period")
@@ -182,6 +191,8 @@ class ArimaSpec:
     def _search(
         self, values: np.ndarray, m: int, exog: np.ndarray | None, names: tuple[str, ...]
     ) -> OrderSearchResult:
+        from service.core.models.arima.search import search_orders
+
         order = tuple(self.order) if self.order is not None else None
         seasonal = tuple(self.seasonal_order) if self.seasonal_order is not None else None
         return search_orders(
@@ -218,6 +229,8 @@ def _final_fit(
     Without ``tight`` (the quick search) a converged exact search estimate is kept as it is:
     polishing it to the tight tolerance bought negligible likelihood (RESULTS.md).
     """
+    from service.core.models.arima.estimation import css_estimate, exact_estimate
+
     second = orders.p + orders.q >= SECOND_START_ORDER
     if not tight and start is not None and start.method == "exact" and start.converged:
         if not second:

@@ -8,10 +8,15 @@ from dataclasses import dataclass, replace
 from typing import Protocol
 
 import numpy as np
-from statsmodels.tools import eval_measures
 
 from service.core.models.base import FitWarning
 from service.core.models.labels import model_label
+
+EFFORTS: dict[str, str] = {
+    "thorough": "CSS-screened stepwise walk, then an exact walk around the exact winner",
+    "quick": "stepwise walk on CSS AICc, exact fits of the two best CSS orders only",
+}
+"""The order searches a specification may ask for (``model.search``), with what each does."""
 
 
 @dataclass(frozen=True)
@@ -166,6 +171,8 @@ def roots_outside_unit_circle(poly: np.ndarray, margin: float = 1e-3) -> bool:
 def information_criteria(loglik: float, k: int, n: int) -> tuple[float, float, float]:
     """AIC, AICc and BIC (statsmodels' definitions) with k estimated parameters (σ² included)
     on n observations; AICc is infinite when n <= k + 1."""
+    from statsmodels.tools import eval_measures
+
     small_sample = float(eval_measures.aicc(loglik, n, k)) if n - k - 1 > 0 else math.inf
     return (
         float(eval_measures.aic(loglik, n, k)),

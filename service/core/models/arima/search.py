@@ -22,7 +22,7 @@ from service.core.data.filling import interpolate_gaps
 from service.core.diagnostics.differencing import DifferencingOrders, orders_from
 from service.core.diagnostics.seasonality import decompose
 from service.core.errors import FitError, SpecificationError
-from service.core.models.arima.orders import ArimaOrders, Estimate, difference
+from service.core.models.arima.orders import EFFORTS, ArimaOrders, Estimate, difference
 from service.core.models.arima.walk import (
     Bounds,
     CandidateScore,
@@ -30,11 +30,6 @@ from service.core.models.arima.walk import (
     StepwiseWalk,
 )
 from service.core.models.base import FitWarning
-
-EFFORTS: dict[str, str] = {
-    "thorough": "CSS-screened stepwise walk, then an exact walk around the exact winner",
-    "quick": "stepwise walk on CSS AICc, exact fits of the two best CSS orders only",
-}
 
 
 @dataclass(frozen=True)

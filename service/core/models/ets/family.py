@@ -10,15 +10,16 @@ starting values of ETSModel sometimes reach on seasonal data.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any, ClassVar
+from typing import TYPE_CHECKING, Any, ClassVar
 
 import numpy as np
 import pandas as pd
 
 from service.core.errors import FitError, SpecificationError
 from service.core.models.base import as_dict, parameter
-from service.core.models.ets.fitted import EtsFitted
-from service.core.models.ets.search import search_ets
+
+if TYPE_CHECKING:
+    from service.core.models.ets.fitted import EtsFitted
 
 MAX_SEASONAL_PERIOD = 24
 """The longest season the ETS family takes (statsmodels' ETS estimates one state per season)."""
@@ -75,6 +76,8 @@ class EtsSpec:
 
     def fit(self, y: pd.Series, seasonal_period: int = 1) -> EtsFitted:
         """Fit this model (searching the components left out) and return the fitted winner."""
+        from service.core.models.ets.search import search_ets
+
         return search_ets(y, seasonal_period, self).best
 
     def candidates(self, y: np.ndarray, seasonal_period: int) -> list[EtsSpec]:
@@ -153,6 +156,8 @@ class EtsSettledSpec:
 
     def fit(self, y: pd.Series, seasonal_period: int = 1) -> EtsFitted:
         """One exact fit of ``model`` started at ``start``."""
+        from service.core.models.ets.search import search_ets
+
         return search_ets(y, seasonal_period, self.model, warm=(self.model, self.start)).best
 
     def json_form(self) -> dict[str, Any]:

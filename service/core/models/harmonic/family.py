@@ -22,7 +22,7 @@ from __future__ import annotations
 import math
 import time
 from dataclasses import dataclass
-from typing import ClassVar
+from typing import TYPE_CHECKING, ClassVar
 
 import numpy as np
 import pandas as pd
@@ -31,8 +31,6 @@ from service.core.checks import check_positive_int
 from service.core.data.periods import check_periods, period_text
 from service.core.errors import FitError
 from service.core.models.base import parameter
-from service.core.models.harmonic.errors import choose_errors, gls_coefficients
-from service.core.models.harmonic.fitted import HarmonicFitted, check_series
 from service.core.models.harmonic.terms import (
     MAX_HARMONICS,
     FourierTerms,
@@ -40,6 +38,9 @@ from service.core.models.harmonic.terms import (
     max_harmonics,
 )
 from service.core.models.mstl import periods_parameter
+
+if TYPE_CHECKING:
+    from service.core.models.harmonic.fitted import HarmonicFitted
 
 
 @dataclass(frozen=True)
@@ -70,6 +71,9 @@ class HarmonicSpec:
 
     def fit(self, y: pd.Series, seasonal_period: int = 1) -> HarmonicFitted:
         """Choose the harmonics and the error model, then estimate the coefficients by GLS."""
+        from service.core.models.harmonic.errors import choose_errors, gls_coefficients
+        from service.core.models.harmonic.fitted import HarmonicFitted, check_series
+
         start = time.perf_counter()
         check_series(y)
         periods = self._periods(seasonal_period)

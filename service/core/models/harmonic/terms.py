@@ -6,7 +6,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from statsmodels.tools import eval_measures
 
 from service.core.data.periods import period_text
 
@@ -57,6 +56,8 @@ class FourierTerms:
 def aicc(rss: float, n: int, k: int) -> float:
     """AICc (statsmodels') of a Gaussian regression with k coefficients plus the variance,
     from its concentrated log-likelihood."""
+    from statsmodels.tools import eval_measures
+
     if rss <= 0:
         return math.inf
     loglik = -0.5 * n * (math.log(2.0 * math.pi * rss / n) + 1.0)
