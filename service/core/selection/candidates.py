@@ -30,7 +30,8 @@ Rules (the table DEVELOPERS.md carries; n = observations, m = seasonal period):
       and fitted with m > 1    + theta (classical multiplicative seasonal adjustment)
       and not short            + arima (not for a long season, where STL + ETS and the
                                  non-seasonal models stand in; on the log scale when positive
-                                 and fitted with m > 1): by default search="quick" (stepwise
+                                 and fitted with m > 1, on both scales when positive and
+                                 fitted with m = 1): by default search="quick" (stepwise
                                  walk on CSS AICc, two exact fits); when thorough, the full
                                  stepwise AICc search
       and long period          + stl with ets base (and, when thorough, stl with arima
@@ -269,6 +270,11 @@ def candidate_rules(
             arima[TRANSFORM_KEY] = "log"
             note = " on the log scale (positive and seasonal)" + note
         out.append((arima, "ARIMA" + note))
+        if profile.positive and profile.model_period == 1:
+            # Without a season both scales: growth in proportion to the level (populations,
+            # prices, rates) is linear in logs, and its bounds stay positive.
+            logged_arima = {**arima, TRANSFORM_KEY: "log"}
+            out.append((logged_arima, "ARIMA on the log scale (positive)" + note))
     if profile.long_period:
         out.append(({"family": "stl", "base": {"family": "ets"}}, "long season: STL + ETS"))
         if thorough:

@@ -89,10 +89,23 @@ def test_positive_seasonal_series_get_arima_on_the_log_scale() -> None:
     assert logged[0].transform.kind == "log"
     form = as_dict(logged[0])
     assert form["family"] == "arima" and form["transform"]["kind"] == "log"
-    # Not positive, or not fitted with a season: ARIMA on the original scale.
-    for other in (profile(positive=False), profile(seasonal=False)):
+    # Not positive: ARIMA on the original scale only.
+    for other in (profile(positive=False), profile(positive=False, seasonal=False)):
         arimas = [s for s in candidates_for(other).specifications if family_of(s) == "arima"]
         assert [s.family for s in arimas] == ["arima"]
+
+
+def test_positive_series_fitted_without_a_season_get_arima_on_both_scales() -> None:
+    for p in (profile(seasonal=False), profile(seasonal_period=1, seasonal=False)):
+        specs = candidates_for(p, thorough=False).specifications
+        arimas = [s for s in specs if family_of(s) == "arima"]
+        assert [s.family for s in arimas] == ["arima", "transformed"]
+        assert arimas[1].transform.kind == "log" and arimas[1].base.search == "quick"
+        reasons = [r for _, r in candidate_rules(p) if "ARIMA" in r]
+        assert len(reasons) == 2 and "log scale" in reasons[1]
+    # Short series get no ARIMA on either scale.
+    short = candidates_for(profile(seasonal=False, observations=20)).specifications
+    assert not any(family_of(s) == "arima" for s in short)
 
 
 def test_positive_series_also_get_ets_with_additive_errors_on_the_log_scale() -> None:
