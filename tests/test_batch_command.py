@@ -197,6 +197,24 @@ def test_workers_sharing_a_cache_directory_reuse_each_others_answers(
     assert served.json()["point"] == first["forecast"]["point"]
 
 
+def test_a_batch_process_moves_its_libraries_out_of_the_collector_once(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    import gc
+
+    from service.api import batch_items
+
+    frozen: list[int] = []
+    monkeypatch.setattr(batch_items, "_SETTLED", [])  # as a fresh worker process would start
+    monkeypatch.setattr(gc, "freeze", lambda: frozen.append(len(gc.get_objects())))
+    body = demo.request_body("fuel", horizon=3) | {"model": {"family": "naive"}, "id": "fuel"}
+    broken = {"id": "broken", "series": {"values": []}, "horizon": 3}
+    assert batch_items.answer_entry(broken, 0, Settings(cache="off"))["status"] == 422
+    assert len(frozen) == 1 and frozen[0] > 10_000  # after the first item, even a failed one
+    assert batch_items.answer_entry(body, 1, Settings(cache="off"))["status"] == 200
+    assert len(frozen) == 1
+
+
 def test_the_benchmarks_memory_rule_tells_flat_from_growing() -> None:
     from tests.benchmarks.batch import memory_verdict
 
@@ -220,6 +238,8 @@ def test_the_batch_benchmark_runs_two_local_workers_end_to_end() -> None:
     assert done.returncode == 0, done.stderr[-2000:]
     assert "local 2 loky workers: start-up" in done.stdout
     assert "(2 worker(s)); 4 series in" in done.stdout and "0 failed" in done.stdout
+    assert done.stdout.count(" outside it; in a job ") == 2  # one line per worker
+    assert "other processes" in done.stdout and "cores seen" in done.stdout
     assert "projected for --series 2000 on an idle machine" in done.stdout
 
 

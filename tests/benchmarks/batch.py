@@ -5,6 +5,8 @@ of POST /v1/forecast-batches on a live server; printed as ratios with the load a
     python -m tests.benchmarks.batch                  # 40 series, every configuration
     python -m tests.benchmarks.batch --series 2000    # the issue's size
     python -m tests.benchmarks.batch --series 20 --only local1,local2
+    python -m tests.benchmarks.batch --series 60 --only local1,local2 --rounds 3   # A/B
+    python -m tests.benchmarks.batch --only coupling    # how much the cores slow each other
 
 Seeded 120-point monthly series, `auto`, horizon 12, cache off (every series is computed).
 Each configuration first starts its workers and imports the job's modules in all of them
@@ -12,7 +14,13 @@ at once (`warm_up`, timed as "start-up", with the LocalCluster's own start); "ru
 series from then on, so the 2/1 scaling compares the work and the start-up is a figure of
 its own (the end-to-end rates include it). Resident memory is sampled per worker every
 --sample-seconds by a thread of this process (psutil), and the rule is printed with the
-verdict. The CPU seconds per series project the duration of a larger run on an idle machine.
+verdict. Per worker it prints the CPU seconds per series inside the job and the process's
+CPU outside it (the pool's own work), the share of the run spent in a job, and, per
+configuration, the CPU other processes of the machine used meanwhile (/proc/stat), so a run
+on a busy machine says so. `--rounds` repeats local1 and local2 interleaved and prints the
+2/1 ratios per round; `coupling` measures a series' CPU alone and beside a plain loop on the
+other core, the part of the 2/1 loss no code of ours can remove. The CPU seconds per series
+project the duration of a larger run on an idle machine.
 """
 
 from __future__ import annotations
@@ -24,7 +32,6 @@ import os
 import statistics
 import sys
 import tempfile
-import threading
 import time
 from collections.abc import Iterator
 from contextlib import contextmanager
@@ -38,14 +45,12 @@ import pandas as pd
 from service.api.batch_items import answer_entry
 from service.config import Settings
 from service.runtime.fanout import CONNECT_SECONDS, WORKER_SETTINGS, fan_out, local_pool
+from tests.benchmarks.batch_probes import Job, Sampler, coupling, memory_verdict, worker_lines
+
+__all__ = ["main", "memory_verdict", "requests"]
 
 HORIZON = 12
-CONFIGURATIONS = ("local1", "local2", "cluster", "stream")
-# Memory rule: a worker is flat when the median resident size over the last quarter of the
-# run is at most FLAT_GROWTH times the median over its first quarter, once the first tenth
-# of the run (the first fits' allocations) is left out.
-FLAT_GROWTH = 1.10
-SETTLING_SHARE = 0.1
+CONFIGURATIONS = ("local1", "local2", "cluster", "stream", "coupling")
 # Every loky worker's warm-up call lasts at least this long, so no worker takes two of them
 # while another is still starting.
 WARM_HOLD_SECONDS = 0.5
@@ -90,11 +95,12 @@ def long_table(items: list[dict[str, Any]]) -> pd.DataFrame:
     return pd.concat(frames, ignore_index=True)
 
 
-def measured(raw: dict[str, Any], index: int, settings: Settings) -> tuple[int, float, int]:
-    """The batch job, plus the CPU seconds it took and the process that ran it."""
-    started = time.process_time()
+def measured(raw: dict[str, Any], index: int, settings: Settings) -> Job:
+    """The batch job, with the CPU seconds it took, the process that ran it and when."""
+    start, started = time.monotonic(), time.process_time()
     found = answer_entry(raw, index, settings)
-    return found["status"], time.process_time() - started, os.getpid()
+    cpu = time.process_time() - started
+    return Job(found["status"], cpu, os.getpid(), start, time.monotonic())
 
 
 def warm_up(workers: int, scheduler: str | None) -> list[int]:
@@ -130,55 +136,6 @@ def imported(hold: float) -> int:
     return os.getpid()
 
 
-class Sampler(threading.Thread):
-    """Resident bytes of each worker process every ``every`` seconds, with the time."""
-
-    def __init__(self, pids: list[int], every: float) -> None:
-        import psutil
-
-        super().__init__(daemon=True)
-        self.processes = {pid: psutil.Process(pid) for pid in pids}
-        self.every = every
-        self.samples: dict[int, list[tuple[float, int]]] = {pid: [] for pid in pids}
-        self.halt = threading.Event()
-
-    def sample(self) -> None:
-        now = time.perf_counter()
-        for pid, process in self.processes.items():
-            try:
-                self.samples[pid].append((now, int(process.memory_info().rss)))
-            except Exception:  # a worker gone: its series say so
-                continue
-
-    def run(self) -> None:
-        self.sample()
-        while not self.halt.wait(self.every):
-            self.sample()
-
-    def stop(self) -> None:
-        self.halt.set()
-        self.join()
-        self.sample()
-
-
-def memory_verdict(samples: dict[int, list[tuple[float, int]]], start: float, end: float) -> str:
-    """Per worker: first -> last quarter medians after the settling tenth, and the verdict."""
-    settled = start + SETTLING_SHARE * (end - start)
-    quarter = (end - settled) / 4
-    parts, flat = [], True
-    for found in samples.values():
-        first = [b for t, b in found if settled <= t <= settled + quarter]
-        last = [b for t, b in found if t >= end - quarter]
-        if len(first) < 2 or len(last) < 2:
-            return f"too few samples ({len(found)} per worker) to tell; sample more often"
-        a, b = statistics.median(first), statistics.median(last)
-        peak = max(x for _, x in found)
-        flat = flat and b <= FLAT_GROWTH * a
-        parts.append(f"{a / 1e6:.0f} -> {b / 1e6:.0f} MB ({b / a:.2f}x, peak {peak / 1e6:.0f})")
-    verdict = "flat" if flat else "GROWING"
-    return f"{'; '.join(parts)}: {verdict} (rule: last/first quarter <= {FLAT_GROWTH:.2f})"
-
-
 @dataclass
 class Measured:
     """One configuration's figures."""
@@ -191,6 +148,7 @@ class Measured:
     series: int
     failed: int
     memory: str = field(default="")
+    others: float = field(default=0.0)
 
     @property
     def rate(self) -> float:
@@ -218,17 +176,15 @@ def measure(
     sampler = Sampler(pids, every)
     sampler.start()
     jobs = ((raw, i, settings) for i, raw in enumerate(items))
-    failed, cpu = 0, 0.0
-    begin, own = time.perf_counter(), time.process_time()
-    ran: set[int] = set()
-    for status, seconds, pid in fan_out(measured, jobs, workers=workers, scheduler=scheduler):
-        failed += status != 200
-        cpu += seconds
-        ran.add(pid)
-    end, own = time.perf_counter(), time.process_time() - own
+    begin, own, at_start = time.monotonic(), time.process_time(), load()
+    done: list[Job] = list(fan_out(measured, jobs, workers=workers, scheduler=scheduler))
+    end, own = time.monotonic(), time.process_time() - own
+    ran = {job.pid for job in done}
     if not ran <= set(pids):  # the memory samples would be of idle processes
         raise SystemExit(f"{name}: the series ran in {sorted(ran)}, not the started {pids}")
     sampler.stop()
+    cpu = sum(job.cpu for job in done)
+    failed = sum(job.status != 200 for job in done)
     parent = (
         ""
         if pids == [os.getpid()]
@@ -236,11 +192,14 @@ def measure(
     )
     found = Measured(name, len(pids), startup, end - begin, cpu, len(items), failed)
     found.memory = memory_verdict(sampler.samples, begin, end)
+    found.others = sampler.others
+    per_worker = "\n".join(worker_lines(done, sampler, begin, end))
     print(
         f"{name}: start-up {startup:.1f} s ({len(pids)} worker(s)); {len(items)} series in "
         f"{found.seconds:.1f} s = {found.rate:.2f} series/s ({found.end_to_end:.2f} with the "
         f"start-up), CPU {cpu / len(items):.3f} s and wall {found.seconds / len(items):.3f} s "
-        f"per series, {failed} failed{parent}; load {load()}\n"
+        f"per series, {failed} failed{parent}; load {at_start} -> {load()}, other processes "
+        f"{found.others:.2f} cores on average\n{per_worker}\n"
         f"  memory per worker: {found.memory}",
         flush=True,
     )
@@ -323,6 +282,28 @@ def projection(found: dict[str, Measured], count: int, stream_lines: int) -> str
     return f"{', '.join(parts)}; total about {total / 60:.0f} min"
 
 
+LOCAL_NAMES = {"local1": "local 1 worker (this process)", "local2": "local 2 loky workers"}
+
+
+def scaling(ones: list[Measured], twos: list[Measured], cores: int | None) -> str:
+    """The 2/1 ratios: series per second, and the CPU per series that explains them, per
+    interleaved round and their median."""
+    pairs = list(zip(ones, twos, strict=True))
+    rates = [two.rate / one.rate for one, two in pairs]
+    cpus = [(two.cpu / two.series) / (one.cpu / one.series) for one, two in pairs]
+    rounds = ""
+    if len(rates) > 1:
+        rounds = " (rounds: " + ", ".join(f"{r:.2f}" for r in rates) + ")"
+    two, one = twos[len(twos) // 2], ones[len(ones) // 2]
+    return (
+        f"scaling 2/1 local workers: {statistics.median(rates):.2f} over the run{rounds}, "
+        f"{two.end_to_end / one.end_to_end:.2f} with the start-ups (target >= 1.7 where two "
+        f"cores are free; cores seen {cores}; load {load()}); CPU per series with 2 workers "
+        f"{statistics.median(cpus):.3f}x the 1-worker figure, so at most "
+        f"{2 / statistics.median(cpus):.2f} from the CPU alone, the rest idle workers"
+    )
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(
         description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter
@@ -339,6 +320,12 @@ def main() -> None:
         "--stream-lines", type=int, default=20, help="lines read before closing (0: all)"
     )
     parser.add_argument("--sample-seconds", type=float, default=1.0)
+    parser.add_argument(
+        "--rounds", type=int, default=1, help="local1 and local2 run this often, interleaved"
+    )
+    parser.add_argument(
+        "--coupling-series", type=int, default=4, help="series per block of the coupling probe"
+    )
     parser.add_argument("--project", type=int, default=2000, help="series to project for")
     parser.add_argument("--write-csv", default=None, help="write the series as a long CSV, stop")
     args = parser.parse_args()
@@ -353,19 +340,20 @@ def main() -> None:
     print(f"{args.series} series x {args.points} points, auto, horizon {HORIZON}; cores seen "
           f"{cores}; load average {load()}; {time.strftime('%H:%M:%S')}", flush=True)  # fmt: skip
     found: dict[str, Measured] = {}
-    if "local1" in chosen:
-        found["local1"] = measure("local 1 worker (this process)", items, args.sample_seconds, 1)
-    if "local2" in chosen:
-        found["local2"] = measure("local 2 loky workers", items, args.sample_seconds, 2)
+    local = [c for c in ("local1", "local2") if c in chosen]
+    runs: dict[str, list[Measured]] = {c: [] for c in local}
+    for round_ in range(args.rounds):  # interleaved, the order turned every round
+        for name in local if round_ % 2 == 0 else local[::-1]:
+            workers = 1 if name == "local1" else 2
+            runs[name].append(measure(LOCAL_NAMES[name], items, args.sample_seconds, workers))
+    for name, measured_runs in runs.items():
+        found[name] = measured_runs[len(measured_runs) // 2]
     if "cluster" in chosen:
         with cluster(2) as (address, seconds):
             found["cluster"] = measure("LocalCluster 2 workers", items, args.sample_seconds,
                                        2, address, seconds)  # fmt: skip
     if "local1" in found and "local2" in found:
-        one, two = found["local1"], found["local2"]
-        print(f"scaling 2/1 local workers: {two.rate / one.rate:.2f} over the run, "
-              f"{two.end_to_end / one.end_to_end:.2f} with the start-ups (target >= 1.7 where "
-              f"two cores are free; cores seen {cores}; load {load()})")  # fmt: skip
+        print(scaling(runs["local1"], runs["local2"], cores))
     if "local2" in found and "cluster" in found:
         ratio = found["cluster"].rate / found["local2"].rate
         print(f"LocalCluster / local, per worker: {ratio:.2f} (target within 0.8-1.2)")
@@ -375,6 +363,11 @@ def main() -> None:
         print(f"NDJSON over HTTP, {len(stream)} series posted, 2 pool workers: first line "
               f"{first:.2f} s (target < 5 s), line {read} at {last:.1f} s; "
               f"load {load()}")  # fmt: skip
+    if "coupling" in chosen:
+        settings, first = Settings(cache="off"), items[0]
+        imported(0.0)
+        print(coupling(lambda: answer_entry(first, 0, settings), max(3, args.rounds),
+                       args.coupling_series) + f"; load {load()}", flush=True)  # fmt: skip
     if found:
         print(f"projected for --series {args.project} on an idle machine: "
               f"{projection(found, args.project, args.stream_lines)}")  # fmt: skip
