@@ -77,3 +77,12 @@ def future_index(index: pd.DatetimeIndex, horizon: int) -> pd.DatetimeIndex:
     # By array arithmetic where it can, as regular_grid: equal to date_range, and a backtest
     # asks for one at every origin of every candidate.
     return regular_grid(index[-1] + freq, horizon, freq)
+
+
+def index_after(index: pd.DatetimeIndex, origin: int, horizon: int) -> pd.DatetimeIndex:
+    """``future_index(index[:origin], horizon)``: the index's own stamps where it has them (an
+    index with a frequency lies on that grid), continued by ``future_index`` past its end. A
+    backtest asks for one at every origin of every candidate."""
+    if index.freq is not None and origin + horizon <= len(index):
+        return index[origin : origin + horizon]
+    return future_index(index[:origin], horizon)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import pandas as pd
 import pytest
 
-from service.core.data.grid import regular_grid
+from service.core.data.grid import future_index, index_after, regular_grid
 
 CASES = [
     ("MS", "2010-01-01"),
@@ -56,3 +56,14 @@ def test_a_first_date_off_the_grid_rolls_as_date_range_does() -> None:
     first = pd.Timestamp("2010-01-15")
     offset = pd.tseries.frequencies.to_offset("MS")
     assert regular_grid(first, 5, offset).equals(pd.date_range(first, periods=5, freq=offset))
+
+
+@pytest.mark.parametrize("freq", ["MS", "D", "h", "W-SUN", "QS", "ME", "30min", "YE"])
+def test_index_after_equals_future_index_of_the_prefix(freq: str) -> None:
+    index = pd.date_range("2020-01-01", periods=60, freq=freq, tz="UTC" if freq == "h" else None)
+    for origin in (10, 40, 55, 60):
+        for horizon in (1, 5, 12):
+            expected = future_index(index[:origin], horizon)
+            got = index_after(index, origin, horizon)
+            assert got.equals(expected)
+            assert got.freq == expected.freq

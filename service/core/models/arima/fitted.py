@@ -18,7 +18,7 @@ import pandas as pd
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 
 from service.core.checks import check_coverage, check_positive_int
-from service.core.data.grid import future_index
+from service.core.data.grid import future_index, index_after
 from service.core.data.regressors import aligned_future, aligned_history
 from service.core.errors import FitError, SeriesError
 from service.core.models.arima.orders import ArimaOrders, Estimate, design_matrix
@@ -138,7 +138,7 @@ class ArimaFitted:
             sd = np.sqrt(variance)
             if not (np.all(np.isfinite(point)) and np.all(np.isfinite(sd))):
                 raise FitError(f"{self.orders.label} gave a non-finite forecast", field="model")
-            index = future_index(y.index[:origin], h)
+            index = index_after(y.index, origin, h)
             out.append(Forecast(index, point, normal_intervals(point, sd, levels)))
         return out
 

@@ -13,7 +13,7 @@ from statsmodels.tools.eval_measures import aic, aicc, bic
 from statsmodels.tsa.exponential_smoothing.ets import ETSResults
 
 from service.core.checks import complete_values
-from service.core.data.grid import future_index
+from service.core.data.grid import index_after
 from service.core.errors import FitError
 from service.core.models.base import (
     Description,
@@ -116,7 +116,7 @@ class EtsFitted:
 
     def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast:
         """Point forecasts and intervals (analytic or seeded simulation, see interval_method)."""
-        return self._forecast_at(self.results(), len(self.y), horizon, coverage)
+        return self._forecast_at(self.results(), len(self.y), horizon, coverage, self.y.index)
 
     def origin_forecasts(
         self, y: pd.Series, origins: Sequence[int], horizon: int, coverage: Sequence[float]
@@ -129,13 +129,21 @@ class EtsFitted:
             checked_values(y.iloc[:origin])
         longest = self.refilter(y.iloc[: max(origins)])
         result = longest.results()
-        return [longest._forecast_at(result, origin, horizon, coverage) for origin in origins]
+        return [
+            longest._forecast_at(result, origin, horizon, coverage, y.index) for origin in origins
+        ]
 
     def _forecast_at(
-        self, result: ETSResults, origin: int, horizon: int, coverage: Sequence[float]
+        self,
+        result: ETSResults,
+        origin: int,
+        horizon: int,
+        coverage: Sequence[float],
+        dates: pd.DatetimeIndex,
     ) -> Forecast:
         """The forecast from the first ``origin`` points of ``result``'s history (all of it, or
-        a prefix: what a smoothing of that prefix alone would give)."""
+        a prefix: what a smoothing of that prefix alone would give), dated after
+        ``dates[:origin]``."""
         raw = getattr(result, "_results", result)
         resid = raw.resid[:origin]
         with captured(self.warnings, self.label):
@@ -161,7 +169,7 @@ class EtsFitted:
                 intervals = self._simulated(view, origin, horizon, coverage)
         if not np.all(np.isfinite(point)):
             raise FitError(f"{self.label} produced non-finite forecasts", field="model")
-        return Forecast(future_index(self.y.index[:origin], horizon), point, intervals)
+        return Forecast(index_after(dates, origin, horizon), point, intervals)
 
     def _simulated(
         self, result: ETSResults, origin: int, horizon: int, coverage: Sequence[float]
