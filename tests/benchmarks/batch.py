@@ -103,35 +103,38 @@ def measured(raw: dict[str, Any], index: int, settings: Settings) -> Job:
     return Job(found["status"], cpu, os.getpid(), start, time.monotonic())
 
 
-def warm_up(workers: int, scheduler: str | None) -> list[int]:
-    """Start the worker processes and import this module (the whole statistics stack) in
-    every one at once; their process ids (this process's own for one local worker)."""
+def warm_up(workers: int, scheduler: str | None, sample: dict[str, Any]) -> list[int]:
+    """Start the worker processes, import this module (the whole statistics stack) and answer
+    ``sample`` once in every one at once (the first fit's lazy imports and the collector's
+    settling are start-up too); their process ids (this process's own for one local worker)."""
     if scheduler:
         from distributed import Client
 
         with Client(scheduler, timeout=CONNECT_SECONDS) as client:
-            return sorted(int(pid) for pid in client.run(imported, 0.0).values())
+            return sorted(int(pid) for pid in client.run(imported, 0.0, sample).values())
     if workers <= 1:
-        return [imported(0.0)]
+        return [imported(0.0, sample)]
     from joblib import Parallel, delayed
 
     seen: set[int] = set()
     for _ in range(3):  # one call per worker; a worker that took two left another cold
         with local_pool(workers):
             seen.update(Parallel(batch_size=1)(
-                delayed(imported)(WARM_HOLD_SECONDS) for _ in range(workers)))  # fmt: skip
+                delayed(imported)(WARM_HOLD_SECONDS, sample) for _ in range(workers)))  # fmt: skip
         if len(seen) >= workers:
             break
     return sorted(seen)
 
 
-def imported(hold: float) -> int:
-    """In a worker: BLAS pinned, the batch job's modules imported."""
+def imported(hold: float, sample: dict[str, Any] | None = None) -> int:
+    """In a worker: BLAS pinned, the batch job's modules imported, ``sample`` answered."""
     from service.runtime.workers import pin_threads
 
     started = time.perf_counter()
     pin_threads()
     importlib.import_module(answer_entry.__module__)
+    if sample is not None:
+        answer_entry(sample, 0, Settings(cache="off"))
     time.sleep(max(0.0, hold - (time.perf_counter() - started)))
     return os.getpid()
 
@@ -171,7 +174,7 @@ def measure(
     seconds of start-up already spent (the LocalCluster's)."""
     settings = Settings(cache="off")
     started = time.perf_counter()
-    pids = warm_up(workers, scheduler)
+    pids = warm_up(workers, scheduler, items[0])
     startup = before + time.perf_counter() - started
     sampler = Sampler(pids, every)
     sampler.start()
@@ -300,7 +303,8 @@ def scaling(ones: list[Measured], twos: list[Measured], cores: int | None) -> st
         f"{two.end_to_end / one.end_to_end:.2f} with the start-ups (target >= 1.7 where two "
         f"cores are free; cores seen {cores}; load {load()}); CPU per series with 2 workers "
         f"{statistics.median(cpus):.3f}x the 1-worker figure, so at most "
-        f"{2 / statistics.median(cpus):.2f} from the CPU alone, the rest idle workers"
+        f"{2 / statistics.median(cpus):.2f} from the CPU alone, the rest time the workers "
+        f"waited for a core or for work"
     )
 
 
@@ -365,7 +369,7 @@ def main() -> None:
               f"load {load()}")  # fmt: skip
     if "coupling" in chosen:
         settings, first = Settings(cache="off"), items[0]
-        imported(0.0)
+        imported(0.0, first)
         print(coupling(lambda: answer_entry(first, 0, settings), max(3, args.rounds),
                        args.coupling_series) + f"; load {load()}", flush=True)  # fmt: skip
     if found:

@@ -46,6 +46,18 @@ def process_cpu(processes: Iterable[Any]) -> dict[int, float]:
     return found
 
 
+def scheduling(process: Any) -> tuple[int, int]:
+    """Times the kernel took the process off its core for another (involuntary switches) and
+    moved it to the other core (migrations, Linux /proc/PID/sched); (0, 0) if unknown."""
+    try:
+        switched = int(process.num_ctx_switches().involuntary)
+        with open(f"/proc/{process.pid}/sched", encoding="ascii") as stream:
+            moved = next(int(x.split(":")[1]) for x in stream if "nr_migrations" in x)
+    except Exception:  # gone, or not Linux
+        return 0, 0
+    return switched, moved
+
+
 class Sampler(threading.Thread):
     """Resident bytes of each worker process every ``every`` seconds; CPU of the workers, of
     this process with all its descendants (the benchmark's own processes) and of the machine
@@ -62,6 +74,7 @@ class Sampler(threading.Thread):
         self.samples: dict[int, list[tuple[float, int]]] = {pid: [] for pid in pids}
         self.halt = threading.Event()
         self.cpu_before = process_cpu(self.ours.values())
+        self.scheduled = {pid: scheduling(p) for pid, p in self.processes.items()}
         self.machine_before = machine_busy()
         self.wall_before = time.monotonic()
         self.cpu_after: dict[int, float] = {}
@@ -85,6 +98,9 @@ class Sampler(threading.Thread):
         self.join()
         self.sample()
         self.cpu_after = process_cpu(self.ours.values())
+        for pid, process in self.processes.items():
+            now, before = scheduling(process), self.scheduled[pid]
+            self.scheduled[pid] = (now[0] - before[0], now[1] - before[1])
         ours = sum(self.cpu_after[p] - self.cpu_before.get(p, 0.0) for p in self.cpu_after)
         wall = time.monotonic() - self.wall_before
         self.others = max(0.0, machine_busy() - self.machine_before - ours) / wall
@@ -128,16 +144,19 @@ class Job:
 
 def worker_lines(jobs: list[Job], sampler: Sampler, begin: float, end: float) -> list[str]:
     """Per worker: series, CPU-s per series inside the jobs, the process's CPU outside them
-    (receiving, sending, the pool's own checks), and the share of the run spent in a job."""
+    (receiving, sending, the pool's own checks), the share of the run spent in a job, and how
+    often per series the kernel preempted it or moved it to the other core."""
     lines = []
     for pid in sorted({job.pid for job in jobs}):
         mine = [job for job in jobs if job.pid == pid]
         inside = sum(job.cpu for job in mine)
         busy = sum(job.end - job.start for job in mine) / (end - begin)
         outside = (sampler.worker_cpu(pid) - inside) / len(mine)
+        switched, moved = (x / len(mine) for x in sampler.scheduled.get(pid, (0, 0)))
         lines.append(
             f"  worker {pid}: {len(mine)} series, CPU {inside / len(mine):.3f} s per series in "
-            f"the job, {outside * 1000:.1f} ms outside it; in a job {busy:.1%} of the run"
+            f"the job, {outside * 1000:.1f} ms outside it; in a job {busy:.1%} of the run; per "
+            f"series {switched:.0f} preemptions, {moved:.1f} moves to the other core"
         )
     return lines
 
@@ -196,6 +215,6 @@ def coupling(unit: Callable[[], None], rounds: int, count: int) -> str:
     return (
         f"coupling: CPU {a:.3f} s per series alone, {b:.3f} beside a plain loop on the other "
         f"core ({b / a:.2f}x; {rounds} interleaved rounds of {count}; other processes "
-        f"{statistics.mean(others):.2f} cores on average): 2/1 scaling at most "
-        f"{2 * a / b:.2f} on this machine"
+        f"{statistics.mean(others):.2f} cores on average, so a figure of the machine only near "
+        f"0): 2/1 scaling at most {2 * a / b:.2f} for any code"
     )
