@@ -414,50 +414,6 @@ def hit_rounds(quick: bool) -> None:
     )
 
 
-def startup_timeline() -> None:
-    """`windvane serve` from nothing: seconds to an open port, /healthz 200, /readyz 200."""
-    from tests.live_server import serve_command
-
-    directory = Path(tempfile.mkdtemp(prefix="windvane-start-"))
-    port = free_port()
-    env = {
-        **os.environ,
-        "WINDVANE_PORT": str(port),
-        "WINDVANE_CACHE_DIR": str(directory / "cache"),
-        "WINDVANE_LOG_LEVEL": "warning",
-    }
-    started = time.perf_counter()
-    process = subprocess.Popen(serve_command(), env=env, cwd=directory, stdout=subprocess.DEVNULL)
-    marks: dict[str, float] = {}
-    base = f"http://127.0.0.1:{port}"
-    try:
-        while "ready" not in marks and time.perf_counter() - started < 120:
-            if "port" not in marks:
-                with socket.socket() as probe:
-                    if probe.connect_ex(("127.0.0.1", port)) == 0:
-                        marks["port"] = time.perf_counter() - started
-            else:
-                try:
-                    if "healthz" not in marks:
-                        if httpx.get(f"{base}/healthz", timeout=5).status_code == 200:
-                            marks["healthz"] = time.perf_counter() - started
-                    elif httpx.get(f"{base}/readyz", timeout=5).status_code == 200:
-                        marks["ready"] = time.perf_counter() - started
-                        marks["cpu"] = cpu_seconds(process.pid)
-                except httpx.HTTPError:
-                    pass
-            time.sleep(0.01)
-    finally:
-        process.terminate()
-        process.wait(timeout=30)
-    print(
-        f"\nstart-up of `windvane serve` (2 pool workers): open port {marks.get('port', -1):.2f} s"
-        f" (target < 2), /healthz 200 {marks.get('healthz', -1):.2f} s, /readyz 200 "
-        f"{marks.get('ready', -1):.2f} s (target <= 10), having used {marks.get('cpu', -1):.2f} "
-        f"CPU-s (server, fork server and workers); {load_text()}"
-    )
-
-
 def batch_seconds(base: str, count: int, salt: float) -> float:
     """Seconds for one batch of ``count`` distinct explicit ETS forecasts (nothing cached)."""
     requests = [body(n=144, salt=salt + i) for i in range(count)]
@@ -590,7 +546,9 @@ def main() -> None:
         "servers started with --loop uvloop --http httptools --no-access-log"
     )
     if only in (None, "startup"):
-        startup_timeline()
+        from tests.benchmarks.startup import run
+
+        run(rounds=1)
     if only in (None, "hit"):
         hit_rounds(args.quick)
     if only in (None, "scaling"):

@@ -6,7 +6,8 @@ starts `windvane serve` (default settings: 2 pool workers) in a fresh directory 
 checkout's code first on PYTHONPATH, times from ``Popen`` to the first accepted connection,
 the first /healthz 200 and the first /readyz 200, reads the CPU seconds used to get there
 (server, fork server and workers, from /proc), then sends, one at a time, four distinct
-explicit ETS forecasts and four distinct automatic ones. With two workers the first two of
+explicit ETS forecasts and four distinct automatic ones, with the wall time of each and the
+CPU seconds the server and its pool spent on it. With two workers the first two of
 each kind land on workers that have not run that kind yet (the pool hands out its idle
 workers in turn); the last two are the warm figure. It also reports the server process's
 resident memory and whether statsmodels or scipy are mapped in it (/proc/PID/maps).
@@ -45,11 +46,15 @@ def server_libraries(pid: int) -> tuple[float, str]:
     return rss / 1024, ", ".join(loaded) or "neither"
 
 
-def timed_post(client: httpx.Client, base: str, payload: dict[str, object]) -> float:
+def timed_post(
+    client: httpx.Client, base: str, payload: dict[str, object], pid: int
+) -> tuple[float, float]:
+    """Wall seconds of one request, and the CPU seconds the server and its pool spent on it."""
+    cpu = cpu_seconds(pid)
     started = time.perf_counter()
     r = client.post(f"{base}/v1/forecasts", json=payload)
     r.raise_for_status()
-    return time.perf_counter() - started
+    return time.perf_counter() - started, cpu_seconds(pid) - cpu
 
 
 def one_round(code: Path, salt: float) -> dict[str, object]:
@@ -92,7 +97,9 @@ def one_round(code: Path, salt: float) -> dict[str, object]:
                 "auto": [auto_body(salt=salt + i) for i in range(REQUESTS)],
             }
             for kind in KINDS:
-                out[kind] = [timed_post(client, base, p) for p in payloads[kind]]
+                timed = [timed_post(client, base, p, process.pid) for p in payloads[kind]]
+                out[kind] = [wall for wall, _ in timed]
+                out[f"{kind} cpu"] = [cpu for _, cpu in timed]
         out["rss_after"], out["libraries_after"] = server_libraries(process.pid)
     finally:
         process.terminate()
@@ -106,8 +113,10 @@ def summary(name: str, rounds: list[dict[str, object]]) -> str:
     def med(key: str) -> float:
         return median(float(r[key]) for r in rounds)  # type: ignore[arg-type]
 
-    def med_at(kind: str, picks: slice) -> float:
-        return median(median(r[kind][picks]) for r in rounds)  # type: ignore[index]
+    def med_at(kind: str, picks: slice) -> str:
+        wall = median(median(r[kind][picks]) for r in rounds)  # type: ignore[index]
+        cpu = median(median(r[f"{kind} cpu"][picks]) for r in rounds)  # type: ignore[index]
+        return f"{wall:.3f} s (CPU {cpu:.3f} s)"
 
     parts = [
         f"{name}: open port {med('port'):.2f} s, /healthz {med('healthz'):.2f} s, "
@@ -115,8 +124,8 @@ def summary(name: str, rounds: list[dict[str, object]]) -> str:
     ]
     for kind in KINDS:
         parts.append(
-            f"  {kind}: first two (fresh workers) {med_at(kind, slice(0, 2)):.3f} s, "
-            f"last two (warm) {med_at(kind, slice(2, None)):.3f} s"
+            f"  {kind}: first two (fresh workers) {med_at(kind, slice(0, 2))}, "
+            f"last two (warm) {med_at(kind, slice(2, None))}"
         )
     parts.append(
         f"  server process: {med('rss_ready'):.0f} MB at ready "
@@ -126,29 +135,40 @@ def summary(name: str, rounds: list[dict[str, object]]) -> str:
     return "\n".join(parts)
 
 
-def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__)
-    parser.add_argument("--rounds", type=int, default=3, help="rounds per checkout")
-    parser.add_argument("--against", type=Path, help="another checkout, alternated with this")
-    args = parser.parse_args()
+def times(found: dict[str, object], kind: str) -> str:
+    """One round's wall seconds of each request of a kind, and the CPU seconds."""
+    wall = " ".join(f"{t:.3f}" for t in found[kind])  # type: ignore[attr-defined]
+    cpu = " ".join(f"{t:.3f}" for t in found[f"{kind} cpu"])  # type: ignore[attr-defined]
+    return f"{wall} s (CPU {cpu})"
+
+
+def run(rounds: int, against: Path | None = None) -> None:
+    """``rounds`` rounds of this checkout, alternated with ``against`` when given; medians."""
     codes = {"this checkout": ROOT}
-    if args.against is not None:
-        codes[f"--against {args.against}"] = args.against.resolve()
+    if against is not None:
+        codes[f"--against {against}"] = against.resolve()
     results: dict[str, list[dict[str, object]]] = {name: [] for name in codes}
     print(load_text())
-    for i in range(args.rounds):
+    for i in range(rounds):
         for name, code in codes.items():
             found = one_round(code, salt=100.0 * i + 1.0)
             results[name].append(found)
             print(
                 f"round {i + 1} {name}: port {found['port']:.2f} s, ready {found['ready']:.2f} s, "
-                f"explicit {' '.join(f'{t:.3f}' for t in found['explicit'])} s, "  # type: ignore[attr-defined]
-                f"auto {' '.join(f'{t:.3f}' for t in found['auto'])} s; {load_text()}",  # type: ignore[attr-defined]
+                f"explicit {times(found, 'explicit')}, auto {times(found, 'auto')}; {load_text()}",
                 flush=True,
             )
-    for name, rounds in results.items():
-        print(summary(name, rounds))
+    for name, found_rounds in results.items():
+        print(summary(name, found_rounds))
     print(load_text())
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__)
+    parser.add_argument("--rounds", type=int, default=3, help="rounds per checkout")
+    parser.add_argument("--against", type=Path, help="another checkout, alternated with this")
+    args = parser.parse_args()
+    run(args.rounds, args.against)
 
 
 if __name__ == "__main__":
