@@ -32,6 +32,8 @@ from service.core.models.base import (
 )
 from service.core.models.library_warnings import unique_warnings
 
+# The implementation (statsmodels) loads in fit: the HTTP server imports this module for the
+# catalogue and the specifications only (DEVELOPERS.md, after the layout).
 if TYPE_CHECKING:
     from service.core.models.arima.fitted import ArimaFitted
     from service.core.models.arima.search import OrderSearchResult

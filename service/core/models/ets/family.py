@@ -18,6 +18,8 @@ import pandas as pd
 from service.core.errors import FitError, SpecificationError
 from service.core.models.base import as_dict, parameter
 
+# The implementation (statsmodels) loads in fit: the HTTP server imports this module for the
+# catalogue and the specifications only (DEVELOPERS.md, after the layout).
 if TYPE_CHECKING:
     from service.core.models.ets.fitted import EtsFitted
 

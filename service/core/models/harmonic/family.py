@@ -39,6 +39,8 @@ from service.core.models.harmonic.terms import (
 )
 from service.core.models.mstl import periods_parameter
 
+# The implementation (statsmodels) loads in fit: the HTTP server imports this module for the
+# catalogue and the specifications only (DEVELOPERS.md, after the layout).
 if TYPE_CHECKING:
     from service.core.models.harmonic.fitted import HarmonicFitted
 
