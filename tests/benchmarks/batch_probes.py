@@ -8,12 +8,14 @@ prints these figures beside every configuration.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import statistics
 import threading
 import time
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
 # Memory rule: a worker is flat when the median resident size over the last quarter of the
@@ -47,13 +49,19 @@ def process_cpu(processes: Iterable[Any]) -> dict[int, float]:
 
 
 def scheduling(process: Any) -> tuple[int, int]:
-    """Times the kernel took the process off its core for another (involuntary switches) and
-    moved it to the other core (migrations, Linux /proc/PID/sched); (0, 0) if unknown."""
+    """Times the kernel took the process's threads off their core for another (involuntary
+    switches) and moved them to the other core (migrations), summed over the threads alive
+    (Linux /proc/PID/task/*: a Dask worker runs the job in a thread of its own); (0, 0) if
+    unknown."""
+    switched = moved = 0
     try:
-        switched = int(process.num_ctx_switches().involuntary)
-        with open(f"/proc/{process.pid}/sched", encoding="ascii") as stream:
-            moved = next(int(x.split(":")[1]) for x in stream if "nr_migrations" in x)
-    except Exception:  # gone, or not Linux
+        for task in Path(f"/proc/{process.pid}/task").iterdir():
+            with contextlib.suppress(OSError, StopIteration, ValueError):
+                status = (task / "status").read_text(encoding="ascii").splitlines()
+                sched = (task / "sched").read_text(encoding="ascii").splitlines()
+                switched += next(int(x.split()[1]) for x in status if x.startswith("nonvol"))
+                moved += next(int(x.split(":")[1]) for x in sched if "nr_migrations" in x)
+    except OSError:  # gone, or not Linux
         return 0, 0
     return switched, moved
 
