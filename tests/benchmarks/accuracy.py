@@ -6,10 +6,11 @@ Run: python -m tests.benchmarks.accuracy [--panel issue|more|extra|all] [--cuts 
 Every series of tests/benchmarks/accuracy_series.py (three panels of open series and seeded
 synthetic ones), at one or more holdout cuts (cut K ends every series K·h/2 points earlier;
 a series with fewer than 3h points left is skipped); names restrict the series. Methods in
-the same run: auto (diagnostics + select, as POST /v1/forecasts runs it), naive, seasonal
-naive, Theta, ETS by AICc, damped-trend ETS (additive trend, damped, the rest by AICc), the
-M4 SES/Holt/damped combination on classically deseasonalised data, and seasonal ARIMA by the
-stepwise AICc search (period 1 for seasons of 24 and more, as auto does).
+the same run: auto (diagnostics + select, as POST /v1/forecasts runs it with the default
+seasonal periods of the series' step, several where the history holds two cycles of each),
+naive, seasonal naive, Theta, ETS by AICc, damped-trend ETS (additive trend, damped, the rest
+by AICc), the M4 SES/Holt/damped combination on classically deseasonalised data, and seasonal
+ARIMA by the stepwise AICc search (period 1 for seasons of 24 and more, as auto does).
 
 Reported by frequency group and overall, per cut and over all cuts: mean and median MASE of
 every method; for auto the ratio of its mean MASE to the best benchmark's, the geometric mean
@@ -39,6 +40,7 @@ import numpy as np
 import pandas as pd
 from threadpoolctl import threadpool_limits
 
+from service.core.data.periods import default_periods, whole_period
 from service.core.diagnostics.report import diagnose
 from service.core.evaluation.scoring import coverage, mase, mase_scale, msis
 from service.core.models.arima.family import ArimaSpec
@@ -61,8 +63,13 @@ Method = Callable[[pd.Series, int, int], Forecast]
 
 
 def auto(y: pd.Series, m: int, h: int) -> Forecast:
-    """What POST /v1/forecasts does with model "auto" (stage seconds kept in STAGES)."""
-    chosen = select(y, m, h, LEVELS, diagnostics=diagnose(y, m))
+    """What POST /v1/forecasts does with model "auto" and the default seasonal periods (the
+    step's, each kept with two full cycles of history: hourly [24, 168], daily [7, 365.25]);
+    ``m`` (the benchmarks' period) is not passed on. Stage seconds are kept in STAGES."""
+    periods = default_periods(y.index.freq, len(y))
+    period = whole_period(periods)
+    report = diagnose(y, period, periods=periods)
+    chosen = select(y, period, h, LEVELS, diagnostics=report)
     STAGES.append(dict(chosen.seconds))
     return chosen.forecast
 
