@@ -191,3 +191,24 @@ def test_the_settled_structure_keeps_the_chosen_harmonics_for_another_history() 
     assert settled.periods == (24.0, 168.0) and settled.harmonics == fitted.terms.harmonics
     again = settled.fit(y.iloc[:-100])
     assert again.terms == fitted.terms
+
+
+def test_the_settled_structure_keeps_the_error_order_for_another_history() -> None:
+    # What a backtest scores before its first origin is what the whole series delivers.
+    y = daily_calls(3, seed=2)
+    fitted = HarmonicSpec(periods=(7.0, 365.25)).fit(y)
+    e = fitted.errors
+    settled = fitted.settled_structure()
+    assert settled.error_order == (e.p, e.d, e.q)
+    for end in (len(y) - 28, len(y) - 200, 800):
+        again = settled.fit(y.iloc[:end]).errors
+        assert (again.p, again.d, again.q) == (e.p, e.d, e.q)
+        assert len(again.ar) == e.p and len(again.ma) == e.q
+
+
+def test_an_error_order_out_of_range_names_the_field() -> None:
+    y = hourly_counts(weeks=3)
+    for order in ((4, 0, 0), (1, 2, 0), (0, 0, 3), (1, 0)):
+        with pytest.raises(FitError) as caught:
+            HarmonicSpec(periods=(24.0,), error_order=order).fit(y)
+        assert caught.value.problems[0].field == "model.error_order"

@@ -32,7 +32,9 @@ from service.core.data.periods import check_periods, period_text
 from service.core.errors import FitError
 from service.core.models.base import parameter
 from service.core.models.harmonic.terms import (
+    MAX_AR,
     MAX_HARMONICS,
+    MAX_MA,
     FourierTerms,
     choose_harmonics,
     max_harmonics,
@@ -60,6 +62,7 @@ class HarmonicSpec:
         "A harmonic that repeats a shorter period's frequency (the 7th of 168 is the 1st of "
         "24) is left out of the longer period.",
         "Intervals come from the ARIMA errors; the regression coefficients are treated as known.",
+        f"error_order: [p, d, q] with p <= {MAX_AR}, d <= 1, q <= {MAX_MA}; null: by AICc.",
     )
 
     periods: tuple[float, ...] | None = periods_parameter()
@@ -69,6 +72,13 @@ class HarmonicSpec:
         kind="integers",
         minimum=1,
         maximum=MAX_HARMONICS,
+    )
+    error_order: tuple[int, ...] | None = parameter(
+        None,
+        "[p, d, q] of the ARIMA errors; null: d by KPSS, p and q by AICc.",
+        kind="integers",
+        minimum=0,
+        maximum=MAX_AR,
     )
 
     def fit(self, y: pd.Series, seasonal_period: int = 1) -> HarmonicFitted:
@@ -93,7 +103,7 @@ class HarmonicSpec:
         harmonics = self.harmonics or choose_harmonics(values, t, periods)
         terms = FourierTerms(periods, tuple(harmonics))
         x = terms.matrix(t)
-        errors = choose_errors(values, x)
+        errors = choose_errors(values, x, self._error_order())
         beta = gls_coefficients(values, x, errors)
         fitted = HarmonicFitted(
             specification=self,
@@ -105,6 +115,18 @@ class HarmonicSpec:
         )
         fitted.fit_seconds = time.perf_counter() - start
         return fitted
+
+    def _error_order(self) -> tuple[int, int, int] | None:
+        if self.error_order is None:
+            return None
+        order = tuple(self.error_order)
+        limits = (MAX_AR, 1, MAX_MA)
+        if len(order) != 3 or any(not 0 <= v <= top for v, top in zip(order, limits, strict=False)):
+            raise FitError(
+                f"error_order must be [p, d, q] with p <= {MAX_AR}, d <= 1 and q <= {MAX_MA}",
+                field="model.error_order",
+            )
+        return int(order[0]), int(order[1]), int(order[2])
 
     def _periods(self, seasonal_period: int) -> tuple[float, ...]:
         if self.harmonics is not None and self.periods is None:

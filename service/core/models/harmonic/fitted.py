@@ -140,11 +140,15 @@ class HarmonicFitted:
         return out
 
     def settled_structure(self) -> HarmonicSpec:
-        """The same periods with the harmonics this fit chose, for another history: what a
-        backtest scores is then what the whole-series fit delivers (the error model is chosen
-        again, by the same rule)."""
+        """The same periods with the harmonics and the error order this fit chose, for another
+        history: what a backtest scores is then what the whole-series fit delivers (only the
+        coefficients are estimated again)."""
+        e = self.errors
         return replace(
-            self.specification, periods=self.terms.periods, harmonics=self.terms.harmonics
+            self.specification,
+            periods=self.terms.periods,
+            harmonics=self.terms.harmonics,
+            error_order=(e.p, e.d, e.q),
         )
 
     def describe(self) -> Description:

@@ -11,6 +11,9 @@ from service.core.data.periods import period_text
 
 MAX_HARMONICS = 12
 """Per period; FPP's examples stop near 10 for weekly and yearly cycles."""
+MAX_AR = 3
+MAX_MA = 2
+"""The largest AR and MA orders of the errors (errors.py searches up to them)."""
 
 
 def max_harmonics(period: float) -> int:
