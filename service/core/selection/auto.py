@@ -71,7 +71,7 @@ from service.core.selection.delivered import delivered, model_periods, settle
 from service.core.selection.guard import Guarded, benchmark_name, guard, no_skill_message
 from service.core.selection.outcome import AutoForecast, Selection
 from service.core.selection.screening import plausible_choice, screened
-from service.core.selection.short_series import plan_for, simple_candidates
+from service.core.selection.short_series import longest_period, plan_for, simple_candidates
 from service.core.selection.skill import (
     benchmark_of,
     guarded_benchmark,
@@ -113,7 +113,7 @@ def select(
     y = recent_history(y, seasonal_period)
     profile = profile_series(y, seasonal_period, diagnostics)
     chosen_set = candidates_for(profile, thorough) if candidates is None else _given(candidates)
-    cuts = plan_for(len(y), horizon, origins, profile)
+    cuts = plan_for(len(y), horizon, origins, profile, longest_period(chosen_set.specifications))
     if cuts.simple_only and candidates is None:
         chosen_set = simple_candidates()
     profile = cuts.profile

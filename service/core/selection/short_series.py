@@ -1,7 +1,8 @@
 """Short series are cut down step by step, never refused while a simple family can answer.
 
 1. The selection plan as asked: at least max(10, 3m) points before the first origin for a
-   seasonal series (10 otherwise), the horizon shortened when needed
+   seasonal series (10 otherwise), and two full cycles of the longest period when candidates
+   model several periods and the horizon allows; the horizon shortened when needed
    (``backtest_horizon_shortened``).
 2. A seasonal series too short for three seasons before the first origin: two seasons and two
    points (``backtest_shortened``).
@@ -15,6 +16,8 @@
 from __future__ import annotations
 
 import dataclasses
+import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 from service.core.evaluation.origins import (
@@ -22,8 +25,10 @@ from service.core.evaluation.origins import (
     Plan,
     feasible_plan,
     minimum_training,
+    selection_plan,
+    selection_training,
 )
-from service.core.models.base import FitWarning
+from service.core.models.base import FitWarning, Specification, family_of
 from service.core.models.ets.family import EtsSpec
 from service.core.models.mean import MeanSpec
 from service.core.models.naive import NaiveSpec
@@ -42,9 +47,21 @@ class Cuts:
     warnings: tuple[FitWarning, ...] = ()
 
 
-def plan_for(n: int, horizon: int, origins: int, profile: SeriesProfile) -> Cuts:
-    """The selection plan, cut down for short series instead of refusing them."""
+def plan_for(
+    n: int, horizon: int, origins: int, profile: SeriesProfile, longest: float = 0.0
+) -> Cuts:
+    """The selection plan, cut down for short series instead of refusing them.
+
+    ``longest``: the longest period of the candidates that model several or long periods
+    (MSTL, harmonic regression), which need two full cycles of it before the first origin.
+    When the requested horizon allows, the origins move that late (a shorter step, then
+    fewer origins); otherwise the plan is the usual one and those candidates drop out."""
     period = profile.benchmark_period
+    if longest:
+        need = max(selection_training(period), math.ceil(2 * longest) + 2)
+        late = selection_plan(n, horizon, origins, period, training=need)
+        if late is not None:
+            return Cuts(late, profile)
     found = feasible_plan(n, horizon, origins, period)
     notes: list[FitWarning] = []
     if found is None and profile.seasonal:
@@ -99,3 +116,14 @@ def simple_candidates() -> CandidateSet:
     specs = (NaiveSpec(), MeanSpec(), EtsSpec("add", "none", False, "none"), ThetaSpec("never"))
     reasons = ("benchmark", "short series", "short series", "short series")
     return CandidateSet(specs, reasons)
+
+
+def longest_period(specs: Sequence[Specification]) -> float:
+    """The longest period a candidate names in ``periods`` (MSTL, harmonic regression, also
+    inside a transform); 0 when none does."""
+    longest = 0.0
+    for spec in specs:
+        inner = getattr(spec, "base", None) if family_of(spec) == "transformed" else spec
+        periods = getattr(inner, "periods", None) or ()
+        longest = max([longest, *(float(p) for p in periods)])
+    return longest
