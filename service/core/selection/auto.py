@@ -67,11 +67,12 @@ from service.core.selection.candidates import (
     candidates_for,
     profile_series,
 )
+from service.core.selection.choice import SEVERAL_PERIODS_TRIM
 from service.core.selection.delivered import delivered, model_periods, settle
 from service.core.selection.guard import Guarded, benchmark_name, guard, no_skill_message
 from service.core.selection.outcome import AutoForecast, Selection
 from service.core.selection.screening import plausible_choice, screened
-from service.core.selection.short_series import longest_period, plan_for, simple_candidates
+from service.core.selection.short_series import modelled_periods, plan_for, simple_candidates
 from service.core.selection.skill import (
     benchmark_of,
     guarded_benchmark,
@@ -113,7 +114,8 @@ def select(
     y = recent_history(y, seasonal_period)
     profile = profile_series(y, seasonal_period, diagnostics)
     chosen_set = candidates_for(profile, thorough) if candidates is None else _given(candidates)
-    cuts = plan_for(len(y), horizon, origins, profile, longest_period(chosen_set.specifications))
+    longest = max(modelled_periods(chosen_set.specifications), default=0.0)
+    cuts = plan_for(len(y), horizon, origins, profile, longest)
     if cuts.simple_only and candidates is None:
         chosen_set = simple_candidates()
     profile = cuts.profile
@@ -147,8 +149,15 @@ def select(
     results = [screened(r, y) for r in dense]
     clock.lap("backtest")
 
+    several = len(modelled_periods(specs)) > 1
     picked = plausible_choice(
-        results, specs, metric, candidates is None, evaluation_plan, (y, horizon, levels)
+        results,
+        specs,
+        metric,
+        candidates is None,
+        evaluation_plan,
+        (y, horizon, levels),
+        trim=SEVERAL_PERIODS_TRIM if several else None,
     )
     bench_index = specs.index(benchmark_of(specs, profile))
     walk = guarded_benchmark(profile)

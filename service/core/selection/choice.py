@@ -16,6 +16,8 @@ of a few backtest origins chases noise, averaging does not. So:
 - Drift is a benchmark only in the default candidate set: it is never combined nor chosen
   (it won short backtests on series with chance trends and then lost out of sample).
 - Ties (scores within ``TIE`` of each other) go to the simpler model (fewer parameters).
+- With several seasonal periods the combination is trimmed: members scoring more than
+  ``SEVERAL_PERIODS_TRIM`` times the best member leave it (a trimmed combination).
 
 With the default 3 selection origins the single-model path needs longer plans than the
 default gives, so in practice the combination is returned; the rules tried before this one
@@ -39,6 +41,10 @@ SINGLE_MARGIN = 0.10
 TIE = 0.01
 MIN_WINDOWS = 5
 """Disjoint backtest windows needed before a single model may replace the combination."""
+SEVERAL_PERIODS_TRIM = 1.2
+"""With several seasonal periods only members scoring within 20 % of the best member combine:
+there theta, ARIMA and the single-period models scored 1.3-2.7 times the best several-period
+member in the backtest yet kept 25-35 % of the weight (tests/benchmarks/RESULTS.md)."""
 BENCHMARK_FAMILIES = frozenset({"naive", "seasonal_naive", "drift", "mean"})
 NEVER_CHOSEN = frozenset({"drift"})
 """Families left out of the choice in the default candidate set (always in the ranking)."""
@@ -125,13 +131,20 @@ def choose(
     ranking: tuple[RankEntry, ...],
     default_set: bool,
     windows: int,
+    trim: float | None = None,
 ) -> Choice:
     """The weighted combination of the non-benchmark candidates unless one model clearly beats
-    it."""
+    it; with ``trim`` only those scoring within that factor of the best of them combine
+    (``SEVERAL_PERIODS_TRIM``)."""
     never = NEVER_CHOSEN if default_set else frozenset()
     eligible = [i for i in order if family_of(specs[i]) not in never] or list(order)
     single = best_single(results, specs, eligible, metric)
     pool = [i for i in order if family_of(specs[i]) not in BENCHMARK_FAMILIES]
+    if trim is not None and pool:
+        best = min(results[i].score(metric) for i in pool)
+        pool = [i for i in pool if results[i].score(metric) <= trim * best]
+        if len(pool) == 1:
+            return Choice("winner", (pool[0],), ranking)
     if len(pool) < 2:
         return Choice("winner", (single,), ranking)
     weights = score_weights([results[i].score(metric) for i in pool], windows)

@@ -26,6 +26,7 @@ def plausible_choice(
     default_set: bool,
     plan: Plan,
     final: tuple[pd.Series, int, tuple[float, ...]],
+    trim: float | None = None,
 ) -> Choice:
     """The choice among the working candidates; a member whose forecast from the whole series
     leaves the plausible band is marked failed (in ``results``) and the choice is made again
@@ -38,7 +39,8 @@ def plausible_choice(
         )
         if not order:
             raise FitError("no candidate could be fitted to this series", field="series.values")
-        picked = choose(results, specs, order, metric, rank(results, metric), default_set, windows)
+        ranking = rank(results, metric)
+        picked = choose(results, specs, order, metric, ranking, default_set, windows, trim)
         problems = {i: final_problem(results[i], y, horizon, levels) for i in picked.members}
         if not any(problems.values()):
             return picked

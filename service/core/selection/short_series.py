@@ -28,7 +28,7 @@ from service.core.evaluation.origins import (
     selection_plan,
     selection_training,
 )
-from service.core.models.base import FitWarning, Specification, family_of
+from service.core.models.base import FitWarning, Specification
 from service.core.models.ets.family import EtsSpec
 from service.core.models.mean import MeanSpec
 from service.core.models.naive import NaiveSpec
@@ -118,12 +118,13 @@ def simple_candidates() -> CandidateSet:
     return CandidateSet(specs, reasons)
 
 
-def longest_period(specs: Sequence[Specification]) -> float:
-    """The longest period a candidate names in ``periods`` (MSTL, harmonic regression, also
-    inside a transform); 0 when none does."""
-    longest = 0.0
+def modelled_periods(specs: Sequence[Specification]) -> tuple[float, ...]:
+    """The periods the candidates name in ``periods`` (MSTL, harmonic regression, also inside
+    a transform), the most of them; empty when none does."""
+    found: tuple[float, ...] = ()
     for spec in specs:
-        inner = getattr(spec, "base", None) if family_of(spec) == "transformed" else spec
-        periods = getattr(inner, "periods", None) or ()
-        longest = max([longest, *(float(p) for p in periods)])
-    return longest
+        inner = getattr(spec, "base", spec) if spec.family == "transformed" else spec
+        periods = tuple(float(p) for p in getattr(inner, "periods", None) or ())
+        if len(periods) > len(found) or (len(periods) == len(found) and periods > found):
+            found = periods
+    return found
