@@ -13,6 +13,7 @@ from service.core.models.naive import NaiveSpec
 from service.core.models.theta import ThetaSpec
 from service.core.selection.choice import (
     MIN_WINDOWS,
+    SEVERAL_PERIODS_TRIM,
     best_single,
     choose,
     disjoint_windows,
@@ -123,3 +124,17 @@ def test_weights_flatten_when_the_backtest_has_few_disjoint_windows() -> None:
     one = score_weights([1.0, 2.0], 1)
     assert 0.5 < one[0] < full[0]
     assert one[0] == pytest.approx(1 / (1 + 2 ** -(2 / MIN_WINDOWS)))
+
+
+def test_a_trimmed_combination_leaves_out_members_far_behind_the_best() -> None:
+    # Several seasonal periods: theta at 1.3 x the best member's score leaves the combination.
+    results = [
+        backtest(s.family, e)
+        for s, e in zip(SPECS, ([3, 3, 3], [2, 2, 2], [1, 1, 1], [1.3, 1.3, 1.3]), strict=True)
+    ]
+    order = sorted(range(len(results)), key=lambda i: (results[i].score("mase"), i))
+    args = (results, SPECS, order, "mase", rank(results, "mase"), True, 3)
+    assert sorted(choose(*args).members) == [2, 3]
+    trimmed = choose(*args, trim=SEVERAL_PERIODS_TRIM)
+    assert trimmed.members == (2,) and trimmed.rule == "winner"
+    assert sorted(choose(*args, trim=1.35).members) == [2, 3]

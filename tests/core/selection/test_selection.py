@@ -294,3 +294,18 @@ def test_long_series_are_estimated_on_their_latest_points_with_a_warning(
     # Four seasons are always kept, whatever the cap.
     assert len(selection.recent_history(y, 24)) == 90
     assert len(selection.recent_history(y.iloc[:50], 12)) == 50
+
+
+def test_three_weeks_of_hourly_data_score_the_several_period_models() -> None:
+    # Two full weekly cycles must lie before the first origin, or MSTL and harmonic
+    # regression fail there and never reach the choice.
+    from service.core.diagnostics.report import diagnose
+    from tests.multi_period_series import hourly_counts
+
+    y = hourly_counts(weeks=3)[:-24]
+    periods = (24.0, 168.0)
+    chosen = select(y, 24, 48, diagnostics=diagnose(y, 24, periods=periods))
+    first = chosen.selection.origins[0]
+    assert y.index.get_loc(first) >= 2 * 168 + 2
+    assert not [why for _, why in chosen.selection.failures if "full cycles" in why]
+    assert any(r.label.startswith(("MSTL", "harmonic")) for r in chosen.selection.ranking)
