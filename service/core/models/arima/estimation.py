@@ -59,14 +59,22 @@ def css_estimate(
     ncond = orders.p + orders.m * orders.P
     skip = max(0, score_from - ncond)
 
+    # The solver asks for the Jacobian at the point whose residuals it has just computed: the
+    # demeaned series, polynomials and residuals of the last point are kept for it.
+    last: dict[str, np.ndarray] = {}
+
     def residuals(x: np.ndarray) -> np.ndarray:
         u = w - xd @ x[:k_exog] if xd is not None else w
         ar_poly, ma_poly = lag_polynomials(orders, x[k_exog:])
         v = np.convolve(u, ar_poly, mode="valid")
-        return np.asarray(signal.lfilter([1.0], ma_poly, v))[skip:]
+        e = np.asarray(signal.lfilter([1.0], ma_poly, v))
+        last.update(x=x.copy(), u=u, ar=ar_poly, ma=ma_poly, e=e)
+        return e[skip:]
 
     def jacobian(x: np.ndarray) -> np.ndarray:
-        return _css_jacobian(w, xd, orders, x, skip)
+        if "x" not in last or not np.array_equal(last["x"], x):
+            residuals(x)
+        return _css_jacobian(xd, orders, x[k_exog:], last, skip)
 
     names = coefficient_names(orders, regressor_names)
     if x0.size and n - max(ncond, score_from) > x0.size:
@@ -102,35 +110,34 @@ def css_estimate(
 
 
 def _css_jacobian(
-    w: np.ndarray, xd: np.ndarray | None, orders: ArimaOrders, x: np.ndarray, skip: int
+    xd: np.ndarray | None,
+    orders: ArimaOrders,
+    arma: np.ndarray,
+    at: dict[str, np.ndarray],
+    skip: int,
 ) -> np.ndarray:
-    """Analytic derivatives of the CSS residuals, one filter per coefficient (numerical ones
-    cost k + 1 residual evaluations per step)."""
-    k_exog = 0 if xd is None else xd.shape[1]
-    arma = x[k_exog:]
+    """Analytic derivatives of the CSS residuals at the point ``at`` (demeaned series ``u``,
+    polynomials ``ar`` and ``ma``, residuals ``e``): numerical ones cost k + 1 residual
+    evaluations per step. The regression and AR columns share one filter call."""
     p, q, P, Q, m = orders.p, orders.q, orders.P, orders.Q, orders.m
-    u = w - xd @ x[:k_exog] if xd is not None else w
-    ar_poly, ma_poly = lag_polynomials(orders, arma)
-    e = signal.lfilter([1.0], ma_poly, np.convolve(u, ar_poly, mode="valid"))
-    regular_ar = np.r_[1.0, -arma[:p]]
+    u, ar_poly, ma_poly, e = at["u"], at["ar"], at["ma"], at["e"]
+    regular_ar = np.concatenate(([1.0], -arma[:p]))
     seasonal_ar = np.zeros(m * P + 1)
     seasonal_ar[0] = 1.0
     seasonal_ar[m::m] = -arma[p + q : p + q + P]
-    regular_ma = np.r_[1.0, arma[p : p + q]]
+    regular_ma = np.concatenate(([1.0], arma[p : p + q]))
     seasonal_ma = np.zeros(m * Q + 1)
     seasonal_ma[0] = 1.0
     seasonal_ma[m::m] = arma[p + q + P :]
-    columns = []
-    for k in range(k_exog):
-        dv = np.convolve(-xd[:, k], ar_poly, mode="valid")  # type: ignore[index]
-        columns.append(signal.lfilter([1.0], ma_poly, dv))
+    k_exog = 0 if xd is None else xd.shape[1]
+    inputs = [np.convolve(-xd[:, k], ar_poly, mode="valid") for k in range(k_exog)]  # type: ignore[index]
 
     # d(ar_poly)/dφ_i = -L^i Φ(L^m), d(ar_poly)/dΦ_j = -L^(mj) φ(L): padded to ar_poly's length
     # so that the 'valid' convolution has the residuals' length.
     def by_ar(shift: int, other: np.ndarray) -> np.ndarray:
         dpoly = np.zeros(ar_poly.size)
         dpoly[shift : shift + other.size] = -other
-        return np.asarray(signal.lfilter([1.0], ma_poly, np.convolve(u, dpoly, mode="valid")))
+        return np.convolve(u, dpoly, mode="valid")
 
     # θ(L)Θ(L^m) e = v, so d e = -(d ma_poly / ma_poly) e.
     def by_ma(shift: int, other: np.ndarray) -> np.ndarray:
@@ -138,9 +145,13 @@ def _css_jacobian(
         dpoly[shift:] = other
         return -np.asarray(signal.lfilter(dpoly, ma_poly, e))
 
-    columns += [by_ar(i, seasonal_ar) for i in range(1, p + 1)]
+    inputs += [by_ar(i, seasonal_ar) for i in range(1, p + 1)]
+    ar_count = len(inputs)
+    inputs += [by_ar(m * j, regular_ar) for j in range(1, P + 1)]
+    filtered = signal.lfilter([1.0], ma_poly, np.vstack(inputs)) if inputs else []
+    columns = list(filtered[:ar_count])
     columns += [by_ma(i, seasonal_ma) for i in range(1, q + 1)]
-    columns += [by_ar(m * j, regular_ar) for j in range(1, P + 1)]
+    columns += list(filtered[ar_count:])
     columns += [by_ma(m * j, regular_ma) for j in range(1, Q + 1)]
     return np.column_stack(columns)[skip:]
 

@@ -155,8 +155,8 @@ def lag_polynomials(orders: LagOrders, arma: np.ndarray) -> tuple[np.ndarray, np
     seasonal_ma = np.zeros(m * Q + 1)
     seasonal_ma[0] = 1.0
     seasonal_ma[m::m] = sma
-    ar_poly = np.convolve(np.r_[1.0, -ar], seasonal_ar)
-    ma_poly = np.convolve(np.r_[1.0, ma], seasonal_ma)
+    ar_poly = np.convolve(np.concatenate(([1.0], -ar)), seasonal_ar)
+    ma_poly = np.convolve(np.concatenate(([1.0], ma)), seasonal_ma)
     return ar_poly, ma_poly
 
 
