@@ -87,8 +87,7 @@ def _within_bounds(
     x = x0 + h
     violated = (x < lower) | (x > upper)
     if not violated.any():
-        # Every step stays inside (a step longer than both distances to the bounds would
-        # leave them): nothing to adjust, as in scipy.
+        # No step leaves the box: scipy adjusts nothing then, so neither do we.
         return h
     adjusted = h.copy()
     below = x0 - lower
