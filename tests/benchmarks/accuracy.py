@@ -16,8 +16,9 @@ Reported by frequency group and overall, per cut and over all cuts: mean and med
 every method; for auto the ratio of its mean MASE to the best benchmark's, the geometric mean
 of its per-series MASE ratio to each benchmark, the count of series worse than 1.5 x the
 better of naive and seasonal naive, coverage at 80 % and 95 %, the mean scaled interval score
-(MSIS, 95 %) of every method, refusals, and auto's seconds per call by stage. MASE and MSIS
-are scaled by the in-sample seasonal naive MAE at the series' own period (M4 convention).
+(MSIS, 95 %) of every method, refusals, the rows that move auto's mean most against the best
+benchmark, and auto's seconds per call by stage. MASE and MSIS are scaled by the in-sample
+seasonal naive MAE at the series' own period (M4 convention).
 
 The benchmarks do not change when auto does: their scores are kept in
 ``tests/benchmarks/.cache`` keyed by the series, the method and the source of the families
@@ -341,6 +342,26 @@ def targets(rows: Rows) -> None:
         print(f"  {name:45s} {value:8.3f}   target {goal}")
 
 
+def largest_excess(rows: Rows, count: int = 15) -> None:
+    """The rows that move auto's mean MASE most against the best benchmark's (by mean over
+    every row): a few large-MASE rows dominate a mean ratio, so this is where to look."""
+    common = scored(rows)
+    if not common.cases:
+        return
+    f = figures(rows)
+    best = BENCHMARKS[int(f["best"])]
+    excess = common.mases("auto") - common.mases(best)
+    share = excess / len(common.cases) / float(np.mean(common.mases(best)))
+    print(f"\nrows moving auto's mean most against {best} (share: its part of mean/best - 1)")
+    print(f"{'series':24s} {'cut':>3s} {'auto':>7s} {best[:10]:>10s} {'share':>7s}")
+    for k in np.argsort(-excess)[:count]:
+        case, cut = common.cases[k]
+        print(
+            f"{case.name:24s} {cut:3d} {common.mases('auto')[k]:7.3f} "
+            f"{common.mases(best)[k]:10.3f} {share[k]:+7.4f}"
+        )
+
+
 def stage_seconds() -> None:
     """Auto's seconds per call: median and total by stage."""
     if not STAGES:
@@ -405,6 +426,7 @@ def main(args: list[str]) -> None:
     if len(cuts) > 1:
         report(rows, f"all cuts ({', '.join(map(str, cuts))}) together")
     targets(rows)
+    largest_excess(rows)
     stage_seconds()
     print(f"load average at end: {os.getloadavg()}")
 
