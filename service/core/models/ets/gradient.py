@@ -108,13 +108,9 @@ def minimise(
     bounds: Sequence[tuple[float | None, float | None]],
     maxiter: int,
     callback: Callable[[np.ndarray], Any] | None = None,
-    scaled: bool = False,
 ) -> tuple[np.ndarray, dict[str, Any]]:
     """L-BFGS-B as statsmodels' ``_fit_lbfgs`` calls it with ``approx_grad``; the estimates and
-    statsmodels' ``mle_retvals``. ``scaled`` measures every unbounded parameter (ETS: the
-    initial states) in units of its start's magnitude (at least 1) while optimising."""
-    if scaled:
-        return _scaled_minimise(objective, start, args, bounds, maxiter, callback)
+    statsmodels' ``mle_retvals``."""
     lower = np.array([-np.inf if lo is None else float(lo) for lo, _ in bounds])
     upper = np.array([np.inf if hi is None else float(hi) for _, hi in bounds])
     evaluations = _Evaluations(objective, args)
@@ -151,41 +147,11 @@ def minimise(
     return x, retvals
 
 
-def _scaled_minimise(
-    objective: Objective,
-    start: np.ndarray,
-    args: tuple[Any, ...],
-    bounds: Sequence[tuple[float | None, float | None]],
-    maxiter: int,
-    callback: Callable[[np.ndarray], Any] | None,
-) -> tuple[np.ndarray, dict[str, Any]]:
-    """``minimise`` over z = x / scale: the initial states of a series in the hundreds and
-    smoothing parameters below one make an ill-scaled problem, on which L-BFGS-B spent most
-    of its iterations learning the scales; in these units auto's ETS fits need about a third
-    fewer likelihood evaluations, and the search's winners end at the same AICc (to 0.02) or
-    a lower one (tests/benchmarks/RESULTS.md)."""
-    start = np.asarray(start, dtype=float)
-    free = np.array([_unbounded(lo) and _unbounded(hi) for lo, hi in bounds], dtype=bool)
-    scale = np.where(free, np.maximum(1.0, np.abs(start)), 1.0)
-
-    def in_units(z: np.ndarray, *extra: Any) -> float:
-        return objective(z * scale, *extra)
-
-    def seen(z: np.ndarray) -> Any:
-        return None if callback is None else callback(z * scale)
-
-    z, retvals = minimise(in_units, start / scale, args, bounds, maxiter, seen)
-    return z * scale, retvals
-
-
-def _unbounded(limit: float | None) -> bool:
-    return limit is None or not np.isfinite(limit)
-
-
 class ForwardDifferenceFit(StateSpaceMLEModel):  # type: ignore[misc]
     """Placed between ETSModel and its base in a subclass's bases (``class M(ETSModel,
     ForwardDifferenceFit)``), this catches ETSModel.fit's call of the generic likelihood fit
-    and runs ``minimise`` instead; any other kind of call goes on to statsmodels."""
+    and runs ``optimise`` (``minimise`` here; a subclass may solve the same problem otherwise)
+    instead; any other kind of call goes on to statsmodels."""
 
     def fit(
         self,
@@ -222,16 +188,7 @@ class ForwardDifferenceFit(StateSpaceMLEModel):  # type: ignore[misc]
                 skip_hessian=skip_hessian,
                 **kwargs,
             )
-        nobs = self.endog.shape[0]
-
-        def objective(params: np.ndarray, *args: Any) -> float:
-            # statsmodels' LikelihoodModel.fit minimises exactly this.
-            return -self.loglike(params, *args) / nobs
-
-        scaled = bool(getattr(self, "scaled_states", False))
-        x, retvals = minimise(
-            objective, start_params, fargs, kwargs["bounds"], maxiter, callback, scaled
-        )
+        x, retvals = self.optimise(start_params, fargs, kwargs["bounds"], maxiter, callback)
         if not retvals["converged"]:
             # statsmodels' own warning, which the fits' warning capture turns into data.
             warnings.warn(
@@ -251,3 +208,20 @@ class ForwardDifferenceFit(StateSpaceMLEModel):  # type: ignore[misc]
             **kwargs,
         }
         return Bunch(params=x, mle_retvals=retvals, mle_settings=settings)
+
+    def optimise(
+        self,
+        start: np.ndarray,
+        fargs: tuple[Any, ...],
+        bounds: Sequence[tuple[float | None, float | None]],
+        maxiter: int,
+        callback: Callable[[np.ndarray], Any] | None,
+    ) -> tuple[np.ndarray, dict[str, Any]]:
+        """The estimates and ``mle_retvals`` for ``fit``: ``minimise`` on the likelihood."""
+        nobs = self.endog.shape[0]
+
+        def objective(params: np.ndarray, *args: Any) -> float:
+            # statsmodels' LikelihoodModel.fit minimises exactly this.
+            return -self.loglike(params, *args) / nobs
+
+        return minimise(objective, start, fargs, bounds, maxiter, callback)

@@ -3,7 +3,7 @@
 The subclass overrides private statsmodels internals (``_res_classes``,
 ``_loglike_internal``), which is why pyproject.toml pins statsmodels below its next minor
 version; tests/core/models/ets/test_ets_model.py checks that its fits stay bit-identical to
-statsmodels' own.
+statsmodels' own (unless ``by_least_squares`` is set: squares.py).
 """
 
 from __future__ import annotations
@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 from statsmodels.tsa.exponential_smoothing.ets import ETSModel, ETSResults, ETSResultsWrapper
 
-from service.core.models.ets.gradient import ForwardDifferenceFit
+from service.core.models.ets.squares import LeastSquaresFit
 
 if TYPE_CHECKING:
     from service.core.models.ets.family import EtsSpec
@@ -35,7 +35,7 @@ class _LeanResults(ETSResults):  # type: ignore[misc]
         return np.full((k, k), np.nan)
 
 
-class LeanEtsModel(ETSModel, ForwardDifferenceFit):  # type: ignore[misc]
+class LeanEtsModel(ETSModel, LeastSquaresFit):  # type: ignore[misc]
     """ETSModel with lean results and a cheaper likelihood evaluation for the optimiser.
 
     ``_loglike_internal`` is statsmodels' own with the generic wrappers taken out of the hot
@@ -44,10 +44,6 @@ class LeanEtsModel(ETSModel, ForwardDifferenceFit):  # type: ignore[misc]
     optimiser visits the same points and the fits are bit-identical, at about 0.6 x the cost
     per evaluation. Complex parameters (complex-step derivatives) take the original path.
     """
-
-    scaled_states = False
-    """Optimise the initial states in units of their starts (gradient.py): set by the family's
-    exact fits; off, a fit is bit-identical to statsmodels' own."""
 
     @property
     def _res_classes(self) -> dict[str, tuple[type[Any], type[Any]]]:

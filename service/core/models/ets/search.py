@@ -1,6 +1,6 @@
 """The ETS search: rank the admissible models by AICc on cheap fits, then fit the finalists
-exactly (estimated initial states started from the search solution, optimised in units of
-their starts: gradient.py) and keep the lowest exact AICc."""
+exactly (estimated initial states started from the search solution, the likelihood maximised
+as a least-squares problem: squares.py) and keep the lowest exact AICc."""
 
 from __future__ import annotations
 
@@ -108,7 +108,7 @@ def _direct_fit(
     start_at: tuple[float, ...] | None = None,
 ) -> EtsFitted | None:
     """A fully specified model: one exact fit from statsmodels' own start, as a direct call
-    would make (or from ``start_at``, earlier estimates of the same model, in scaled units);
+    would make (or from ``start_at``, earlier estimates of the same model, by least squares);
     None (so the two-stage path runs) when it fails, does not converge or forecasts
     implausibly. On 20 seeded seasonal series the two-stage path found the same likelihood
     (tests/benchmarks/RESULTS.md)."""
@@ -120,8 +120,8 @@ def _direct_fit(
             start = None
             if start_at is not None and len(start_at) == len(model.start_params):
                 start = np.asarray(start_at, dtype=float)
-                # Earlier estimates of the same model, from the search's scaled fits.
-                model.scaled_states = True
+                # Earlier estimates of the same model, from the search's exact fits.
+                model.by_least_squares = True
             result = model.fit(start_params=start, disp=False, maxiter=EXACT_MAXITER)
             check = np.asarray(result.forecast(max(2 * period, 12)), dtype=float)
     except (ValueError, np.linalg.LinAlgError, OverflowError, ZeroDivisionError):
@@ -281,7 +281,7 @@ def _exact_fit(
             with captured(caught, ets_label(chosen)):
                 # A RangeIndex series, as in results(): statsmodels' prediction needs an index.
                 model = LeanEtsModel(pd.Series(values), **model_kwargs(chosen, period))
-                model.scaled_states = True
+                model.by_least_squares = True
                 start = np.asarray(model.start_params, dtype=float).copy()
                 if warm is not None and len(warm) == start.size:
                     start = np.asarray(warm, dtype=float)

@@ -54,47 +54,77 @@ def test_the_covariance_is_not_computed() -> None:
     assert np.isnan(result.cov_params_default).all()
 
 
-def test_scaled_states_reach_the_optimum_in_fewer_evaluations() -> None:
-    """A seasonal series in the hundreds: in units of the starts, the exact fit (initial states
-    estimated) ends at the same likelihood (to 0.01) with fewer evaluations."""
+@pytest.mark.parametrize("shape", SHAPES)
+def test_squared_residuals_give_statsmodels_likelihood(shape: dict[str, object]) -> None:
+    """The least-squares residuals carry the whole likelihood: -n/2 (log(2 pi SSE / n) + 1)
+    is statsmodels' log-likelihood at any parameters, multiplicative errors included."""
+    from service.core.models.ets.squares import likelihood_residuals
+
+    y = positive_seasonal()
+    model = LeanEtsModel(y, **kwargs_for(shape))
+    rng = np.random.default_rng(3)
+    for _ in range(3):
+        params = np.asarray(model.start_params, dtype=float)
+        params[: 1 + bool(shape["trend"]) + bool(shape["seasonal"])] = rng.uniform(0.05, 0.3)
+        smoothed = model.smooth(params)
+        fitted = np.asarray(smoothed.fittedvalues, dtype=float)
+        r = likelihood_residuals(y.to_numpy(dtype=float), fitted, shape["error"] == "mul")
+        n = y.size
+        assert -n / 2 * (np.log(2 * np.pi * np.sum(r * r) / n) + 1) == pytest.approx(
+            smoothed.llf, rel=1e-12
+        )
+
+
+def test_least_squares_reaches_the_optimum_in_fewer_evaluations() -> None:
+    """A seasonal series in the hundreds: the exact fit (initial states estimated) by least
+    squares ends at the L-BFGS-B fit's likelihood or higher, with a fraction of its
+    likelihood evaluations."""
     rng = np.random.default_rng(42)
     t = np.arange(200)
     y = pd.Series(300 + 0.6 * t + 25 * np.sin(2 * np.pi * t / 12) + rng.normal(0, 5, 200).cumsum())
     results = {}
     with warnings.catch_warnings(), np.errstate(all="ignore"):
         warnings.simplefilter("ignore")
-        for scaled in (False, True):
-            model = LeanEtsModel(y, error="add", seasonal="add", seasonal_periods=12)
-            model.scaled_states = scaled
-            results[scaled] = model.fit(disp=False, maxiter=1000)
-    assert results[True].mle_retvals["converged"]
-    assert results[True].llf >= results[False].llf - 0.01  # L-BFGS-B stops within this
-    assert results[True].mle_retvals["fcalls"] < 0.8 * results[False].mle_retvals["fcalls"]
+        for squares in (False, True):
+            for error in ("add", "mul"):
+                model = LeanEtsModel(y, error=error, seasonal="add", seasonal_periods=12)
+                model.by_least_squares = squares
+                results[squares, error] = model.fit(disp=False, maxiter=1000)
+    for error in ("add", "mul"):
+        ours, theirs = results[True, error], results[False, error]
+        assert ours.mle_retvals["converged"] and theirs.mle_retvals["converged"]
+        assert ours.llf >= theirs.llf - 1e-6
+        assert ours.mle_retvals["fcalls"] < 0.3 * theirs.mle_retvals["fcalls"]
 
 
-def test_finalists_exact_fits_run_scaled_and_explicit_fits_do_not(monkeypatch) -> None:  # type: ignore[no-untyped-def]
-    """The search's exact fits optimise in scaled units; a fully specified model's direct fit
+def test_finalists_exact_fits_use_least_squares_and_explicit_fits_do_not(monkeypatch) -> None:  # type: ignore[no-untyped-def]
+    """The search's exact fits run by least squares; a fully specified model's direct fit
     stays statsmodels' own (tests/core/models/ets/test_ets.py compares it)."""
-    from service.core.models.ets import gradient
+    from service.core.models.ets import gradient, squares
     from service.core.models.ets.family import EtsSpec
 
-    seen: list[bool] = []
-    original = gradient.minimise
+    seen: list[str] = []
+    by_gradient, by_squares = gradient.minimise, squares.least_squares_fit
 
-    def spy(*args, **kwargs):  # type: ignore[no-untyped-def]
-        seen.append(bool(args[6]) if len(args) > 6 else bool(kwargs.get("scaled", False)))
-        return original(*args, **kwargs)
+    def spy_gradient(*args, **kwargs):  # type: ignore[no-untyped-def]
+        seen.append("gradient")
+        return by_gradient(*args, **kwargs)
 
-    monkeypatch.setattr(gradient, "minimise", spy)
+    def spy_squares(*args, **kwargs):  # type: ignore[no-untyped-def]
+        seen.append("squares")
+        return by_squares(*args, **kwargs)
+
+    monkeypatch.setattr(gradient, "minimise", spy_gradient)
+    monkeypatch.setattr(squares, "least_squares_fit", spy_squares)
     y = positive_seasonal()
     y.index = pd.date_range("2015-01-01", periods=len(y), freq="MS")
     with warnings.catch_warnings(), np.errstate(all="ignore"):
         warnings.simplefilter("ignore")
         EtsSpec("add", "none", False, "add").fit(y, 12)
-        assert seen == [False]
+        assert seen == ["gradient"]
         seen.clear()
         EtsSpec(error="add", season="add").fit(y, 12)
-    assert True in seen
+    assert "squares" in seen
 
 
 def test_shared_heuristic_starts_give_bit_identical_search_fits() -> None:
