@@ -22,7 +22,12 @@ from service.core.models.base import (
     as_dict,
     residuals_from,
 )
-from service.core.models.ets.lean import LeanEtsModel, model_kwargs, n_parameters
+from service.core.models.ets.lean import (
+    LeanEtsModel,
+    model_kwargs,
+    n_parameters,
+    point_forecast,
+)
 from service.core.models.intervals import Interval, normal_intervals
 from service.core.models.labels import model_label
 from service.core.models.library_warnings import captured
@@ -148,10 +153,7 @@ class EtsFitted:
         resid = raw.resid[:origin]
         with captured(self.warnings, self.label):
             # What ETSResults.forecast runs on a history of ``origin`` points.
-            zeros = np.zeros((horizon, 1))
-            point = np.asarray(
-                raw.simulate(horizon, anchor=origin - 1, random_errors=zeros), dtype=float
-            )
+            point = point_forecast(raw, horizon, origin)
             if self.interval_method == "analytic":
                 # What get_prediction(method="exact") computes beyond that history: the mean
                 # squared residual times the class's relative variance at steps 1..h.

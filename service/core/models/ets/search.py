@@ -18,7 +18,12 @@ from statsmodels.tsa.exponential_smoothing.initialization import _initialization
 from service.core.errors import FitError
 from service.core.models.base import FitWarning
 from service.core.models.ets.fitted import EtsFitted, checked_values, ets_label
-from service.core.models.ets.lean import LeanEtsModel, model_kwargs, n_parameters
+from service.core.models.ets.lean import (
+    LeanEtsModel,
+    model_kwargs,
+    n_parameters,
+    point_forecast,
+)
 from service.core.models.library_warnings import captured
 from service.core.models.plausibility import point_implausible
 
@@ -123,7 +128,7 @@ def _direct_fit(
                 # Earlier estimates of the same model, from the search's exact fits.
                 model.by_least_squares = True
             result = model.fit(start_params=start, disp=False, maxiter=EXACT_MAXITER)
-            check = np.asarray(result.forecast(max(2 * period, 12)), dtype=float)
+            check = point_forecast(result, max(2 * period, 12))
     except (ValueError, np.linalg.LinAlgError, OverflowError, ZeroDivisionError):
         return None
     converged = (result.mle_retvals or {}).get("converged", True)
@@ -210,7 +215,7 @@ def _search_fit(
             else:
                 model = LeanEtsModel(values, initialization_method=method, **kwargs)
             result = model.fit(disp=False, maxiter=SEARCH_MAXITER)
-            check = np.asarray(result.forecast(max(2 * period, 12)), dtype=float)
+            check = point_forecast(result, max(2 * period, 12))
     except (ValueError, np.linalg.LinAlgError, OverflowError, ZeroDivisionError) as exc:
         return _failed(f"the optimiser failed ({exc})")
     retvals = result.mle_retvals or {}

@@ -148,3 +148,34 @@ def test_shared_heuristic_starts_give_bit_identical_search_fits() -> None:
             assert alone.llf == shared.llf or (np.isnan(alone.llf) and np.isnan(shared.llf))
             assert alone.smoothing == shared.smoothing and alone.initial == shared.initial
         assert 0 < len(starts) < len(EtsSpec().candidates(values, period))
+
+
+def test_point_forecasts_equal_statsmodels_zero_error_simulation() -> None:
+    """point_forecast gives ETSResults.simulate's values with zero errors, bit for bit, for
+    every error, trend, damping and season and from several origins."""
+    from service.core.models.ets.lean import point_forecast
+
+    y = positive_seasonal(90, 1)
+    shapes = [
+        (error, trend, damped, season)
+        for error in ("add", "mul")
+        for trend, damped in ((None, False), ("add", False), ("add", True), ("mul", True))
+        for season in (None, "add", "mul")
+    ]
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        for error, trend, damped, season in shapes:
+            model = LeanEtsModel(
+                y,
+                error=error,
+                trend=trend,
+                damped_trend=damped,
+                seasonal=season,
+                seasonal_periods=12 if season else None,
+            )
+            result = model.fit(disp=False, maxiter=100)
+            zeros = np.zeros((25, 1))
+            assert np.array_equal(point_forecast(result, 25), np.asarray(result.forecast(25)))
+            for origin in (1, 13, 60, 90):
+                expected = result.simulate(25, anchor=origin - 1, random_errors=zeros)
+                assert np.array_equal(point_forecast(result, 25, origin), np.asarray(expected))
