@@ -168,6 +168,14 @@ def roots_outside_unit_circle(poly: np.ndarray, margin: float = 1e-3) -> bool:
     return bool(np.all(np.abs(np.roots(trimmed[::-1])) > 1.0 + margin))
 
 
+def smallest_root(poly: np.ndarray) -> float:
+    """The smallest modulus among the lag polynomial's roots (infinite for a constant)."""
+    trimmed = np.trim_zeros(poly, "b")
+    if trimmed.size <= 1:
+        return math.inf
+    return float(np.min(np.abs(np.roots(trimmed[::-1]))))
+
+
 def information_criteria(loglik: float, k: int, n: int) -> tuple[float, float, float]:
     """AIC, AICc and BIC (statsmodels' definitions) with k estimated parameters (σ² included)
     on n observations; AICc is infinite when n <= k + 1."""

@@ -7,6 +7,7 @@ import pytest
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 
 from service.core.errors import SpecificationError
+from service.core.models.arima import estimation
 from service.core.models.arima.estimation import css_estimate
 from service.core.models.arima.likelihood import ArmaShape, profile
 from service.core.models.arima.orders import ArimaOrders, difference
@@ -94,3 +95,29 @@ def test_dense_likelihood_matches_the_kalman_filter() -> None:
     found = profile(shape, arma, w, None, np.isfinite(w))
     model = SARIMAX(w, order=(1, 0, 1), trend="n", concentrate_scale=True)
     assert found.loglik == pytest.approx(model.loglike(arma), abs=1e-8)
+
+
+def test_css_fit_wandering_to_a_non_invertible_ma_stops_early_as_not_converged(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # Twice-differenced white noise: an MA unit root the CSS fit of ARIMA(2,0,1) wanders to.
+    w = np.diff(np.random.default_rng(13).normal(size=60), n=2)
+    orders = ArimaOrders(2, 0, 1, 0, 0, 0, 1, False)
+    watched = css_estimate(w, None, orders, ())
+    monkeypatch.setattr(estimation, "CSS_WANDER_AFTER", 10**6)
+    unwatched = css_estimate(w, None, orders, ())
+    assert not unwatched.converged and unwatched.iterations == 3 * estimation.CSS_EVALUATIONS
+    assert not watched.converged and watched.aicc == unwatched.aicc == np.inf
+    assert watched.iterations < unwatched.iterations
+
+
+def test_css_watch_leaves_a_converging_fit_as_it_was(monkeypatch: pytest.MonkeyPatch) -> None:
+    e = np.random.default_rng(1).normal(size=160)
+    w = e[1:] + 0.85 * e[:-1]
+    orders = ArimaOrders(1, 0, 1, 0, 0, 0, 1, False)
+    watched = css_estimate(w, None, orders, ())
+    # Watched (more evaluations than CSS_WANDER_AFTER per coefficient) and converged.
+    assert watched.iterations > 2 * estimation.CSS_WANDER_AFTER
+    monkeypatch.setattr(estimation, "CSS_WANDER_AFTER", 10**6)
+    assert css_estimate(w, None, orders, ()) == watched
+    assert watched.converged and np.isfinite(watched.aicc)
