@@ -18,9 +18,10 @@ Rules (stated for DEVELOPERS.md):
 - Choice (choice.py): the combination of every non-benchmark candidate (ETS, Theta, ARIMA,
   the SES/Holt/damped average, ...) weighted by the inverse square of its backtest score, by
   default; a single model only with a 10 % lower score, a majority of origins and >= 5
-  disjoint windows. Drift is only a benchmark.
+  disjoint windows. Drift is only a benchmark (the random-walk guard may deliver it).
 - Guards (guard.py): the naive (seasonal naive) forecast for a (seasonal) random walk without
-  5 % skill over it; the benchmark mixed in when the chosen forecast does not beat it;
+  5 % skill over it (the drift forecast instead of naive when carrying the average step pays:
+  skill.drift_pays); the benchmark mixed in when the chosen forecast does not beat it;
   ``no_skill_over_naive`` whenever the delivered skill is <= 0. Short series: short_series.py.
 - Plausibility (screening.py): a candidate whose forecast leaves the band around its history,
   at a backtest origin or from the whole series, is left out and the choice made again.
@@ -75,6 +76,7 @@ from service.core.selection.screening import plausible_choice, screened
 from service.core.selection.short_series import modelled_periods, plan_for, simple_candidates
 from service.core.selection.skill import (
     benchmark_of,
+    drift_pays,
     guarded_benchmark,
     skill,
     with_benchmarks,
@@ -160,11 +162,14 @@ def select(
         trim=SEVERAL_PERIODS_TRIM if several else None,
     )
     bench_index = specs.index(benchmark_of(specs, profile))
-    walk = guarded_benchmark(profile)
+    drifts = drift_pays(y) and any(
+        r.ok and family_of(s) == "drift" for s, r in zip(specs, results, strict=True)
+    )
+    walk = guarded_benchmark(profile, drifts)
     walk_index = None
     if walk is not None:
         walk_index = next(
-            (i for i, s in enumerate(specs) if family_of(s) == walk[0]),
+            (i for i, s in enumerate(specs) if family_of(s) == walk[0] and results[i].ok),
             next(i for i, s in enumerate(specs) if family_of(s) == "naive"),
         )
     guarded = guard(

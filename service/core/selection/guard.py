@@ -3,7 +3,8 @@ without saying so.
 
 - Random-walk guard (skill.py): a random walk (a seasonal random walk) whose chosen forecast
   is not ``SKILL_MARGIN`` (5 %) better than the naive (seasonal naive) forecast gets that
-  forecast.
+  forecast; the drift forecast stands in for naive when the average step is expected to pay
+  (``skill.drift_pays``).
 - Benchmark guard, for every series: when the chosen forecast's skill over the benchmark
   (seasonal naive for a seasonal series, naive otherwise) is below ``GUARD_MARGIN``, the
   benchmark joins the forecast in a combination, weighted like the members among themselves

@@ -5,6 +5,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 import numpy as np
+import pandas as pd
 
 from service.core.models.base import Specification, family_of
 from service.core.models.naive import NaiveSpec
@@ -20,6 +21,20 @@ NO_SKILL_MESSAGE = (
 )
 
 
+DRIFT_NO_SKILL_MESSAGE = (
+    "The series behaves like a random walk with a steady average step and no candidate beat "
+    "the drift forecast (the last value plus the average step) by 5 % in the backtest, so that "
+    "forecast is returned. A low error here does not mean a useful model: it only says the "
+    "next value is close to the current one moved on by the average step."
+)
+DRIFT_T_SQUARED = 2.0
+"""A random walk's guard carries the average step when its squared t-ratio exceeds this. With
+N steps of variance σ², carrying the estimated drift adds h²σ²/N to the mean squared error at
+step h and removes the h²μ² of leaving it out; E[μ̂²] = μ² + σ²/N, so the estimate is expected
+to pay when N·μ̂²/σ̂² > 2 (the one-parameter penalty of AIC, Akaike 1974). The diagnostics' 5 %
+t-test asks whether there is a drift at all (t² > 3.84), not whether carrying it pays."""
+
+
 SEASONAL_NO_SKILL_MESSAGE = (
     "The series behaves like a seasonal random walk and no candidate beat the seasonal naive "
     "forecast by 5 % in the backtest, so the seasonal naive forecast (the value one season "
@@ -27,15 +42,28 @@ SEASONAL_NO_SKILL_MESSAGE = (
 )
 
 
-def guarded_benchmark(profile: SeriesProfile) -> tuple[str, str] | None:
+def guarded_benchmark(profile: SeriesProfile, drifts: bool = False) -> tuple[str, str] | None:
     """The family the random-walk guard falls back to and its warning, or None (no guard):
-    naive for a random walk, seasonal naive for a seasonal random walk (the diagnostics'
-    verdict)."""
+    naive for a random walk (drift when ``drifts``: see ``drift_pays``), seasonal naive for a
+    seasonal random walk (the diagnostics' verdict)."""
     if profile.seasonal_random_walk:
         return "seasonal_naive", SEASONAL_NO_SKILL_MESSAGE
     if profile.random_walk:
-        return "naive", NO_SKILL_MESSAGE
+        return ("drift", DRIFT_NO_SKILL_MESSAGE) if drifts else ("naive", NO_SKILL_MESSAGE)
     return None
+
+
+def drift_pays(y: pd.Series) -> bool:
+    """Whether carrying the average step is expected to lower a random walk's forecast error:
+    N·(mean step / sd of the steps)² > DRIFT_T_SQUARED."""
+    steps = np.diff(y.to_numpy(dtype=float))
+    steps = steps[np.isfinite(steps)]
+    if steps.size < 3:
+        return False
+    spread = float(np.std(steps, ddof=1))
+    if not spread > 0:
+        return False
+    return bool(steps.size * (float(np.mean(steps)) / spread) ** 2 > DRIFT_T_SQUARED)
 
 
 def with_benchmarks(specs: list[Specification], profile: SeriesProfile) -> list[Specification]:

@@ -16,7 +16,7 @@ from service.core.selection.guard import (
     guard,
     no_skill_message,
 )
-from service.core.selection.skill import skill
+from service.core.selection.skill import drift_pays, skill
 from service.core.selection.summary import auto_summary, explicit_summary
 
 
@@ -47,6 +47,16 @@ def test_a_random_walk_without_5_percent_over_naive_gets_the_naive_forecast() ->
     chosen = Guarded("winner", (4,), ())
     out = guard(chosen, 0.97, walk=(0, 1.0), benchmark=(0, 1.0))
     assert out == Guarded(RANDOM_WALK_GUARD, (0,), ())
+
+
+def test_the_average_step_pays_from_a_squared_t_ratio_above_two() -> None:
+    # 100 steps of sd 1 (alternating 1 +- 1 around the mean): t² = 100 mean² / sd².
+    wiggle = np.tile([-1.0, 1.0], 50)
+    for mean, pays in ((0.15, True), (0.13, False), (-0.15, True), (0.0, False)):
+        steps = mean + wiggle * np.sqrt(99 / 100)
+        assert drift_pays(series(np.concatenate([[0.0], steps.cumsum()]))) is pays
+    assert not drift_pays(series(np.arange(10.0)))  # equal steps: no spread, no walk
+    assert not drift_pays(series(np.array([1.0, 2.0, 4.0])))  # two steps only
 
 
 def test_messages_are_plain_sentences_naming_the_benchmark() -> None:

@@ -56,6 +56,37 @@ def test_random_walk_gets_the_naive_forecast_and_the_warning() -> None:
     np.testing.assert_allclose(result.forecast.point, y.iloc[-1])
 
 
+def business_days(values: np.ndarray) -> pd.Series:
+    return pd.Series(values, index=pd.date_range("2020-01-06", periods=values.size, freq="B"))
+
+
+def test_random_walk_with_a_steady_step_gets_the_drift_forecast() -> None:
+    from service.core.diagnostics.report import diagnose
+
+    rng = np.random.default_rng(3)
+    y = business_days(100 + (0.25 + rng.normal(size=200)).cumsum())
+    result = select(y, 1, 10, diagnostics=diagnose(y, 1))
+    assert result.selection.profile.random_walk
+    assert result.selection.rule == "naive_guard"
+    assert result.fitted.describe().family == "drift"
+    step = float(np.diff(y.to_numpy()).mean())
+    np.testing.assert_allclose(result.forecast.point, y.iloc[-1] + step * np.arange(1, 11))
+
+
+def test_a_trend_with_structure_keeps_its_model_though_its_steps_drift() -> None:
+    from service.core.diagnostics.report import diagnose
+
+    rng = np.random.default_rng(5)
+    noise = np.zeros(200)
+    for t in range(1, 200):
+        noise[t] = 0.5 * noise[t - 1] + rng.normal()
+    y = business_days(100 + 0.25 * np.arange(200) + noise)
+    result = select(y, 1, 10, diagnostics=diagnose(y, 1))
+    assert not result.selection.profile.random_walk
+    assert result.selection.rule != "naive_guard"
+    assert result.fitted.describe().family not in ("naive", "drift")
+
+
 def test_seasonal_random_walk_gets_the_seasonal_naive_guard() -> None:
     from service.core.diagnostics.report import diagnose
 
