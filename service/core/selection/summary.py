@@ -35,7 +35,8 @@ def auto_summary(selection: Any) -> str:
     if value is None:
         told = f"its skill over {bench} could not be measured in a backtest"
     elif value <= 0 and selection.rule in (RANDOM_WALK_GUARD, BENCHMARK_GUARD):
-        told = f"no model beat {bench} in backtests, so the forecast leans on {bench}"
+        leans = "drift" if selection.chosen == "drift" else bench
+        told = f"no model beat {bench} in backtests, so the forecast leans on {leans}"
     elif value <= 0:
         told = f"the forecast did not beat {bench} in backtests"
     else:

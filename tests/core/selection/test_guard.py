@@ -59,6 +59,22 @@ def test_the_average_step_pays_from_a_squared_t_ratio_above_two() -> None:
     assert not drift_pays(series(np.array([1.0, 2.0, 4.0])))  # two steps only
 
 
+def test_the_summary_names_the_drift_forecast_the_guard_delivered() -> None:
+    from types import SimpleNamespace
+
+    walk = SimpleNamespace(intermittent=False, random_walk=True, seasonal=False)
+    for chosen, leans in (("drift", "leans on drift"), ("naive", "leans on naive")):
+        selection = SimpleNamespace(
+            benchmark="naive",
+            skill_over_naive=-0.03,
+            rule=RANDOM_WALK_GUARD,
+            chosen=chosen,
+            profile=walk,
+            calibration=None,
+        )
+        assert leans in auto_summary(selection)
+
+
 def test_messages_are_plain_sentences_naming_the_benchmark() -> None:
     text = no_skill_message(BENCHMARK_GUARD, "seasonal naive", -0.12, "")
     assert "seasonal naive" in text and "12 %" in text and text.endswith(".")
