@@ -97,7 +97,7 @@ def search_ets(
     fits = []
     for _, chosen, rough in finalists:
         earlier = warm[1] if warm is not None and warm[0] == chosen else None
-        fits.append(_exact_fit(spec, chosen, y, values, seasonal_period, rough, earlier))
+        fits.append(_exact_fit(spec, chosen, y, values, seasonal_period, rough, earlier, starts))
     fitted = min(fits, key=_exact_aicc)
     fitted.warnings[:0] = notes if not spec.is_complete() else []
     fitted.fit_seconds = time.perf_counter() - start
@@ -121,12 +121,18 @@ def _direct_fit(
     label = ets_label(spec)
     try:
         with captured(caught, label):
-            model = LeanEtsModel(pd.Series(values), **model_kwargs(spec, period))
+            kwargs = model_kwargs(spec, period)
+            # Given a complete start, statsmodels' heuristic start is never read: zeros stand in.
+            placeholder = (0.0, 0.0, np.zeros(period) if kwargs["seasonal"] else None)
+            given = start_at is not None
+            model = LeanEtsModel(values, starting_states=placeholder if given else None, **kwargs)
             start = None
             if start_at is not None and len(start_at) == len(model.start_params):
                 start = np.asarray(start_at, dtype=float)
                 # Earlier estimates of the same model, from the search's exact fits.
                 model.by_least_squares = True
+            elif given:
+                model = LeanEtsModel(values, **kwargs)
             result = model.fit(start_params=start, disp=False, maxiter=EXACT_MAXITER)
             check = point_forecast(result, max(2 * period, 12))
     except (ValueError, np.linalg.LinAlgError, OverflowError, ZeroDivisionError):
@@ -274,9 +280,11 @@ def _exact_fit(
     period: int,
     rough: _Estimate,
     warm: tuple[float, ...] | None = None,
+    starts: dict[tuple[str | None, str | None], tuple[Any, Any, Any]] | None = None,
 ) -> EtsFitted:
     """Re-estimate the winner with estimated initial states, started from the search solution
-    (or from ``warm``, earlier exact estimates of the same model on a shorter history)."""
+    (or from ``warm``, earlier exact estimates of the same model on a shorter history);
+    ``starts`` holds the search's heuristic initial states (``_search_fit``)."""
     notes = list(rough.warnings)
     estimate = rough
     kept: ETSResults | None = None
@@ -284,8 +292,10 @@ def _exact_fit(
         caught: list[FitWarning] = []
         try:
             with captured(caught, ets_label(chosen)):
-                # A RangeIndex series, as in results(): statsmodels' prediction needs an index.
-                model = LeanEtsModel(pd.Series(values), **model_kwargs(chosen, period))
+                # Plain values, as in EtsFitted.results().
+                kwargs = model_kwargs(chosen, period)
+                heuristic = _same_heuristic(kwargs, values.size, period, starts)
+                model = LeanEtsModel(values, starting_states=heuristic, **kwargs)
                 model.by_least_squares = True
                 start = np.asarray(model.start_params, dtype=float).copy()
                 if warm is not None and len(warm) == start.size:
@@ -332,6 +342,21 @@ def _exact_fit(
     # The exact fit's own results serve this history: no re-smoothing for the first forecast.
     fitted._cached = kept
     return fitted
+
+
+def _same_heuristic(
+    kwargs: dict[str, Any],
+    n: int,
+    period: int,
+    starts: dict[tuple[str | None, str | None], tuple[Any, Any, Any]] | None,
+) -> tuple[Any, Any, Any] | None:
+    """The search's heuristic initial states for this trend and season where statsmodels'
+    estimated initialisation would compute the same (below 10 + 2 (m // 2) points it takes a
+    simpler start instead); None otherwise."""
+    m = period if kwargs["seasonal"] else 1
+    if starts is None or n < 10 + 2 * (m // 2):
+        return None
+    return starts.get((kwargs["trend"], kwargs["seasonal"]))
 
 
 def _exact_aicc(fitted: EtsFitted) -> float:

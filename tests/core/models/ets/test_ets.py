@@ -91,7 +91,17 @@ def test_analytic_intervals_match_statsmodels_for_class_one() -> None:
     fitted = EtsSpec("add", "none", False, "add").fit(y, 12)
     assert fitted.interval_method == "analytic"
     ours = fitted.forecast(6, [0.95])
-    prediction = fitted.results().get_prediction(start=len(y), end=len(y) + 5)
+    # statsmodels' prediction summary needs pandas data; the fitted model smooths plain values.
+    reference = ETSModel(
+        pd.Series(y.to_numpy()),
+        error="add",
+        seasonal="add",
+        seasonal_periods=12,
+        initialization_method="known",
+        initial_level=fitted.initial[0],
+        initial_seasonal=np.asarray(fitted.initial[1:]),
+    ).smooth(np.asarray(list(fitted.smoothing.values())))
+    prediction = reference.get_prediction(start=len(y), end=len(y) + 5)
     frame = prediction.summary_frame(alpha=0.05)
     assert_allclose(ours.intervals[0].lower, frame["pi_lower"].to_numpy(), rtol=1e-10)
     assert_allclose(ours.intervals[0].upper, frame["pi_upper"].to_numpy(), rtol=1e-10)

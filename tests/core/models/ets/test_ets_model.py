@@ -179,3 +179,34 @@ def test_point_forecasts_equal_statsmodels_zero_error_simulation() -> None:
             for origin in (1, 13, 60, 90):
                 expected = result.simulate(25, anchor=origin - 1, random_errors=zeros)
                 assert np.array_equal(point_forecast(result, 25, origin), np.asarray(expected))
+
+
+@pytest.mark.parametrize("shape", SHAPES)
+def test_given_starting_states_make_the_estimated_model(shape: dict[str, object]) -> None:
+    """A model given the heuristic initial states has the estimated initialisation's
+    parameters and start, and fits bit for bit as one that computes them; placeholder states
+    change nothing when the fit's start is complete."""
+    from statsmodels.tsa.exponential_smoothing.initialization import _initialization_heuristic
+
+    y = positive_seasonal().to_numpy()
+    kw = kwargs_for(shape)
+    period = 12 if shape["seasonal"] else 1
+    heuristic = _initialization_heuristic(
+        y, trend=shape["trend"], seasonal=shape["seasonal"], seasonal_periods=period
+    )
+    placeholder = (0.0, 0.0, np.zeros(12) if shape["seasonal"] else None)
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        own = LeanEtsModel(y, **kw)
+        given = LeanEtsModel(y, starting_states=heuristic, **kw)
+        assert given.param_names == own.param_names
+        assert np.array_equal(given.start_params, own.start_params)
+        a, b = own.fit(disp=False, maxiter=200), given.fit(disp=False, maxiter=200)
+        assert np.array_equal(np.asarray(a.params), np.asarray(b.params)) and a.llf == b.llf
+        start = np.asarray(a.params, dtype=float)
+        fits = []
+        for states in (None, placeholder):
+            model = LeanEtsModel(y, starting_states=states, **kw)
+            model.by_least_squares = True
+            fits.append(model.fit(start_params=start, disp=False, maxiter=200))
+    assert np.array_equal(np.asarray(fits[0].params), np.asarray(fits[1].params))
