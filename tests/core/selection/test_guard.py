@@ -9,6 +9,7 @@ import pytest
 
 from service.core.diagnostics.report import diagnose
 from service.core.selection.auto import AutoForecast, select
+from service.core.selection.candidates import SeriesProfile
 from service.core.selection.guard import (
     BENCHMARK_GUARD,
     RANDOM_WALK_GUARD,
@@ -16,7 +17,7 @@ from service.core.selection.guard import (
     guard,
     no_skill_message,
 )
-from service.core.selection.skill import drift_pays, skill
+from service.core.selection.skill import drift_pays, guarded_benchmark, skill
 from service.core.selection.summary import auto_summary, explicit_summary
 
 
@@ -57,6 +58,16 @@ def test_the_average_step_pays_from_a_squared_t_ratio_above_two() -> None:
         assert drift_pays(series(np.concatenate([[0.0], steps.cumsum()]))) is pays
     assert not drift_pays(series(np.arange(10.0)))  # equal steps: no spread, no walk
     assert not drift_pays(series(np.array([1.0, 2.0, 4.0])))  # two steps only
+
+
+def test_the_guard_falls_back_to_drift_only_for_a_random_walk_whose_step_pays() -> None:
+    walk = SeriesProfile(200, 1, False, True, 0.0, random_walk=True)
+    assert guarded_benchmark(walk)[0] == "naive"
+    family, message = guarded_benchmark(walk, drifts=True)
+    assert family == "drift" and "average step" in message
+    seasonal = SeriesProfile(200, 12, True, True, 0.0, False, seasonal_random_walk=True)
+    assert guarded_benchmark(seasonal, drifts=True)[0] == "seasonal_naive"
+    assert guarded_benchmark(SeriesProfile(200, 1, False, True, 0.0, False), drifts=True) is None
 
 
 def test_the_summary_names_the_drift_forecast_the_guard_delivered() -> None:
