@@ -84,12 +84,17 @@ class ArimaFitted:
         coverage: Sequence[float],
         future_regressors: pd.DataFrame | np.ndarray | None = None,
     ) -> Forecast:
-        """Point path and Gaussian intervals from the state-space forecast variance."""
+        """Point path and Gaussian intervals from the state-space forecast variance: the
+        prediction step run from the filter's last predicted state (what statsmodels'
+        forecast does, without extending and re-filtering the model; equal to 1e-9,
+        tests/core/models/arima); with regressors through statsmodels' forecast."""
         h = check_positive_int(horizon, "horizon")
         levels = check_coverage(coverage)
-        future = None
-        if self.regressors is not None:
-            future = aligned_future(future_regressors, self.regressor_names, h)
+        index = future_index(self.y.index, h)
+        if self.regressors is None:
+            filtered = self._model_results().filter_results
+            return self._predicted(_Prediction(filtered), len(self.y), h, levels, index)
+        future = aligned_future(future_regressors, self.regressor_names, h)
         x = design_matrix(self.orders, future, len(self.y), h)
         with warnings.catch_warnings(record=True):
             warnings.simplefilter("always")
@@ -98,7 +103,7 @@ class ArimaFitted:
             sd = np.sqrt(np.asarray(prediction.var_pred_mean, dtype=float))
         if not (np.all(np.isfinite(point)) and np.all(np.isfinite(sd))):
             raise FitError(f"{self.orders.label} gave a non-finite forecast", field="model")
-        return Forecast(future_index(self.y.index, h), point, normal_intervals(point, sd, levels))
+        return Forecast(index, point, normal_intervals(point, sd, levels))
 
     def origin_forecasts(
         self, y: pd.Series, origins: Sequence[int], horizon: int, coverage: Sequence[float]
@@ -116,31 +121,37 @@ class ArimaFitted:
             check_series(y.iloc[:origin])
             check_size(self.orders, origin, 0)
         filtered = self.refilter(y.iloc[: max(origins)])._model_results().filter_results
-        design = filtered.design[:, :, 0]
-        transition = filtered.transition[:, :, 0]
-        shock = filtered.selection[:, :, 0] @ filtered.state_cov[:, :, 0]
-        shock = shock @ filtered.selection[:, :, 0].T
-        noise = filtered.obs_cov[0, 0, 0]
-        drift = filtered.state_intercept[:, 0]
-        out = []
-        for origin in origins:
-            state = filtered.predicted_state[:, origin]
-            cov = filtered.predicted_state_cov[:, :, origin]
-            point, variance = np.empty(h), np.empty(h)
-            # The constant's columns at the forecast steps, as forecast() passes them.
-            x = design_matrix(self.orders, None, origin, h)
-            intercepts = np.zeros(h) if x is None else np.dot(x, self.estimate.values[: x.shape[1]])
-            for step in range(h):
-                point[step] = (design @ state)[0] + intercepts[step]
-                variance[step] = (design @ cov @ design.T)[0, 0] + noise
-                state = transition @ state + drift
-                cov = transition @ cov @ transition.T + shock
-            sd = np.sqrt(variance)
-            if not (np.all(np.isfinite(point)) and np.all(np.isfinite(sd))):
-                raise FitError(f"{self.orders.label} gave a non-finite forecast", field="model")
-            index = index_after(y.index, origin, h)
-            out.append(Forecast(index, point, normal_intervals(point, sd, levels)))
-        return out
+        matrices = _Prediction(filtered)
+        return [
+            self._predicted(matrices, origin, h, levels, index_after(y.index, origin, h))
+            for origin in origins
+        ]
+
+    def _predicted(
+        self,
+        at: _Prediction,
+        origin: int,
+        h: int,
+        levels: tuple[float, ...],
+        index: pd.DatetimeIndex,
+    ) -> Forecast:
+        """The forecast from the filter's predicted state and covariance at ``origin``."""
+        state = at.filtered.predicted_state[:, origin]
+        cov = at.filtered.predicted_state_cov[:, :, origin]
+        point, variance = np.empty(h), np.empty(h)
+        # The constant's columns at the forecast steps, as statsmodels' forecast gets them.
+        x = design_matrix(self.orders, None, origin, h)
+        intercepts = np.zeros(h) if x is None else np.dot(x, self.estimate.values[: x.shape[1]])
+        design, transition = at.design, at.transition
+        for step in range(h):
+            point[step] = (design @ state)[0] + intercepts[step]
+            variance[step] = (design @ cov @ design.T)[0, 0] + at.noise
+            state = transition @ state + at.drift
+            cov = transition @ cov @ transition.T + at.shock
+        sd = np.sqrt(variance)
+        if not (np.all(np.isfinite(point)) and np.all(np.isfinite(sd))):
+            raise FitError(f"{self.orders.label} gave a non-finite forecast", field="model")
+        return Forecast(index, point, normal_intervals(point, sd, levels))
 
     def fitted_values(self) -> pd.Series:
         """One-step predictions; NaN over the first d + mD steps (absorbed by the diffuse start)."""
@@ -198,6 +209,19 @@ class ArimaFitted:
             observations=int(np.isfinite(self.y.to_numpy(dtype=float)).sum()),
             fit_seconds=self.fit_seconds,
         )
+
+
+class _Prediction:
+    """The time-invariant system matrices of a filtered model, for the prediction step."""
+
+    def __init__(self, filtered: Any) -> None:
+        self.filtered = filtered
+        self.design = filtered.design[:, :, 0]
+        self.transition = filtered.transition[:, :, 0]
+        selection = filtered.selection[:, :, 0]
+        self.shock = selection @ filtered.state_cov[:, :, 0] @ selection.T
+        self.noise = filtered.obs_cov[0, 0, 0]
+        self.drift = filtered.state_intercept[:, 0]
 
 
 def check_series(y: object) -> None:

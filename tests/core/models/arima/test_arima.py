@@ -51,6 +51,39 @@ def test_forecast_matches_the_undifferenced_model_filtered_at_the_estimates() ->
 
 
 @pytest.mark.parametrize(
+    "spec",
+    [
+        ArimaSpec(order=(1, 1, 1), seasonal_order=(1, 0, 0), constant="drift"),
+        ArimaSpec(order=(2, 0, 0), seasonal_order=(0, 0, 0)),
+        ArimaSpec(order=(0, 1, 1), seasonal_order=(0, 1, 1)),
+    ],
+)
+def test_forecast_equals_statsmodels_forecast_of_the_filtered_model(spec: ArimaSpec) -> None:
+    # forecast() runs the prediction step from the filter's last predicted state itself.
+    y = monthly()
+    fitted = spec.fit(y, 12)
+    forecast = fitted.forecast(30, [0.8])
+    o = fitted.orders
+    x = None
+    if o.constant:
+        steps = np.arange(1, len(y) + 31, dtype=float)[:, None]
+        x = steps if o.d else np.ones_like(steps)
+    model = SARIMAX(
+        y.to_numpy(),
+        exog=None if x is None else x[: len(y)],
+        order=(o.p, o.d, o.q),
+        seasonal_order=(o.P, o.D, o.Q, 12),
+        trend="n",
+        use_exact_diffuse=True,
+    )
+    direct = model.filter(np.r_[fitted.estimate.values, fitted.estimate.sigma2])
+    expected = direct.get_forecast(30, exog=None if x is None else x[len(y) :])
+    assert_allclose(forecast.point, expected.predicted_mean, rtol=1e-12)
+    half = forecast.intervals[0].upper - forecast.point
+    assert_allclose(half, 1.2815515655446004 * np.sqrt(expected.var_pred_mean), rtol=1e-10)
+
+
+@pytest.mark.parametrize(
     ("spec", "label"),
     [
         (ArimaSpec(order=(2, 0, 0)), "ARIMA(2,0,0), constant: mean"),
