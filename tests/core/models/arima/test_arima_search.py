@@ -7,10 +7,15 @@ import pytest
 from statsmodels.tsa.statespace.sarimax import SARIMAX
 
 from service.core.errors import SpecificationError
-from service.core.models.arima import estimation
+from service.core.models.arima import estimation, likelihood
 from service.core.models.arima.estimation import css_estimate
-from service.core.models.arima.likelihood import ArmaShape, profile
-from service.core.models.arima.orders import ArimaOrders, difference
+from service.core.models.arima.likelihood import ArmaShape, dense_fit, profile
+from service.core.models.arima.orders import (
+    ArimaOrders,
+    difference,
+    lag_polynomials,
+    smallest_root,
+)
 from service.core.models.arima.search import search_orders
 from service.core.models.arima.walk import SearchLimits
 
@@ -121,3 +126,23 @@ def test_css_watch_leaves_a_converging_fit_as_it_was(monkeypatch: pytest.MonkeyP
     monkeypatch.setattr(estimation, "CSS_WANDER_AFTER", 10**6)
     assert css_estimate(w, None, orders, ()) == watched
     assert watched.converged and np.isfinite(watched.aicc)
+
+
+def test_exact_fit_creeping_to_an_ma_unit_root_stops_at_the_boundary(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # Differenced white noise: the ARMA(1,1) likelihood's supremum has the MA root at 1.
+    w = np.diff(np.random.default_rng(1).normal(size=120))
+    shape = ArmaShape(1, 1, 0, 0, 1)
+    stopped = dense_fit(shape, w, None, np.zeros(2), 30, tight=False)
+    tight = dense_fit(shape, w, None, np.zeros(2), 30, tight=True)
+    monkeypatch.setattr(likelihood, "BOUNDARY_AFTER", 10**6)
+    capped = dense_fit(shape, w, None, np.zeros(2), 30, tight=False)
+    assert not capped.converged and stopped.converged
+    assert stopped.evaluations < capped.evaluations
+    assert stopped.loglik == pytest.approx(capped.loglik, abs=likelihood.BOUNDARY_GAIN)
+    _, ma_poly = lag_polynomials(shape, stopped.arma)
+    assert smallest_root(ma_poly) < likelihood.BOUNDARY_MODULUS
+    # A tight (final) fit is never stopped there.
+    again = dense_fit(shape, w, None, np.zeros(2), 30, tight=True)
+    assert np.array_equal(again.arma, tight.arma) and again.evaluations == tight.evaluations
