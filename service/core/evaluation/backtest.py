@@ -85,7 +85,7 @@ def evaluate(task: Task) -> ModelBacktest:
             if task.settle == "early":
                 delivered = settled_specification(fitted).fit(y, task.seasonal_period)
             fit_seconds = time.perf_counter() - start
-            label = fitted.describe().label
+            label = label_of(fitted)
             start = time.perf_counter()
             # The later origins re-filter the estimates; a family may forecast from all of
             # them in one pass over the series (the same numbers: base.origin_forecasts).
@@ -114,6 +114,13 @@ def evaluate(task: Task) -> ModelBacktest:
         resolved=resolved_specification(delivered if delivered is not None else fitted),
         delivered=delivered,
     )
+
+
+def label_of(fitted: Any) -> str:
+    """The fitted model's label: its own ``label`` where a family keeps one (ARIMA's would
+    otherwise filter the series and test its residuals only to be named), else described."""
+    own = getattr(fitted, "label", None)
+    return own if isinstance(own, str) else str(fitted.describe().label)
 
 
 def settled_specification(fitted: Any) -> Any:

@@ -256,6 +256,12 @@ class TransformedFitted:
         z = pd.Series(boxcox(values, self.lam), index=y.index, name=y.name)
         return TransformedFitted(self.specification, y, self.lam, self.inner.refilter(z), [])
 
+    @property
+    def label(self) -> str | None:
+        """The inner model's label with the scale, where the inner model keeps one."""
+        inner = getattr(self.inner, "label", None)
+        return model_label("transformed", base=inner, power=self.lam) if inner else None
+
     def describe(self) -> Description:
         """The inner description with the scale in the label and the exponent among the
         parameters."""

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import warnings
 from dataclasses import dataclass
 from typing import ClassVar
 
@@ -12,11 +13,13 @@ import pytest
 
 from service.api.render import backtest_body
 from service.core.errors import RequestError
-from service.core.evaluation.backtest import backtest
+from service.core.evaluation.backtest import backtest, label_of
 from service.core.evaluation.origins import plan_origins
 from service.core.models.drift import DriftSpec
 from service.core.models.naive import NaiveSpec
+from service.core.models.registry import specification_from_dict
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
+from service.core.models.transforms import Transform, TransformedSpec
 
 HAND = [3.0, 5.0, 4.0, 6.0, 8.0, 7.0, 6.0, 7.0, 8.0, 7.0, 9.0, 8.0]
 
@@ -116,3 +119,29 @@ def test_unknown_metric_and_empty_specifications() -> None:
     with pytest.raises(RequestError) as info:
         backtest(y, [], horizon=3)
     assert info.value.problems[0].field == "models"
+
+
+@pytest.mark.parametrize(
+    "data",
+    [
+        {"family": "arima", "order": [0, 1, 1], "seasonal_order": [0, 1, 1]},
+        {"family": "ets", "error": "add", "trend": "add", "damped": True, "season": "add"},
+        {"family": "theta"},
+        {"family": "stl", "base": {"family": "ets"}},
+        {"family": "combination", "members": [{"family": "drift"}, {"family": "theta"}]},
+    ],
+)
+@pytest.mark.parametrize("logged", [False, True])
+def test_label_of_a_fit_is_what_its_description_says(data: dict[str, object], logged: bool) -> None:
+    # The backtest names a fit by its own label where it keeps one (ARIMA's description would
+    # filter the series to test the residuals); the name must be the description's.
+    rng = np.random.default_rng(3)
+    t = np.arange(72)
+    y = monthly(50 + 0.3 * t + 5 * np.sin(2 * np.pi * t / 12) + rng.normal(0, 1, 72))
+    spec = specification_from_dict(data)
+    if logged:
+        spec = TransformedSpec(spec, Transform("log"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        fitted = spec.fit(y, 12)
+        assert label_of(fitted) == fitted.describe().label

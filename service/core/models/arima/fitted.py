@@ -52,6 +52,11 @@ class ArimaFitted:
         return state
 
     @property
+    def label(self) -> str:
+        """Box-Jenkins label of the orders (what ``describe`` reports)."""
+        return self.orders.label
+
+    @property
     def regressor_names(self) -> tuple[str, ...]:
         """Names of the regressors the model was fitted with (empty without regressors)."""
         return () if self.regressors is None else tuple(str(c) for c in self.regressors.columns)
@@ -198,7 +203,7 @@ class ArimaFitted:
         criteria = {"aic": e.aic, "aicc": e.aicc, "bic": e.bic, "log_likelihood": e.loglik}
         return Description(
             family=self.specification.family,
-            label=self.orders.label,
+            label=self.label,
             specification=as_dict(self.specification),
             parameters=e.parameters,
             information_criteria={k: v for k, v in criteria.items() if math.isfinite(v)},
