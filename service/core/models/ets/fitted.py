@@ -186,12 +186,12 @@ class EtsFitted:
             ),
             dtype=float,
         ).reshape(horizon, self.simulation_paths)
-        out = []
-        for c in coverage:
-            lower = np.quantile(paths, 0.5 - c / 2, axis=1)
-            upper = np.quantile(paths, 0.5 + c / 2, axis=1)
-            out.append(Interval(float(c), lower, upper))
-        return tuple(out)
+        # Every level's bounds from one partition of the paths (the same order statistics and
+        # interpolation as one quantile call per bound, bit for bit, at about half the cost).
+        levels = [0.5 - c / 2 for c in coverage] + [0.5 + c / 2 for c in coverage]
+        bounds = np.quantile(paths, levels, axis=1)
+        k = len(coverage)
+        return tuple(Interval(float(c), bounds[i], bounds[k + i]) for i, c in enumerate(coverage))
 
     def fitted_values(self) -> pd.Series:
         """One-step-ahead in-sample forecasts."""
