@@ -88,11 +88,13 @@ def evaluate(task: Task) -> ModelBacktest:
             label = label_of(fitted)
             start = time.perf_counter()
             # The later origins re-filter the estimates; a family may forecast from all of
-            # them in one pass over the series (the same numbers: base.origin_forecasts).
+            # them in one pass over the series (the same numbers: base.origin_forecasts), the
+            # estimation's own end among them (one pass instead of a second filter).
             at: dict[int, Forecast] = {}
-            if fit_end in plan.origins:
+            one_pass = callable(getattr(fitted, "origin_forecasts", None))
+            if fit_end in plan.origins and not one_pass:
                 at[fit_end] = fitted.forecast(plan.horizon, task.coverage)
-            later = [origin for origin in plan.origins if origin != fit_end]
+            later = [origin for origin in plan.origins if origin not in at]
             moved = origin_forecasts(fitted, y, later, plan.horizon, task.coverage)
             at.update(zip(later, moved, strict=True))
             forecasts.extend(_one_origin(at[o], y, o, plan.horizon, task) for o in plan.origins)

@@ -15,7 +15,10 @@ from service.api.render import backtest_body
 from service.core.errors import RequestError
 from service.core.evaluation.backtest import backtest, label_of
 from service.core.evaluation.origins import plan_origins
+from service.core.models.arima.family import ArimaSpec
+from service.core.models.base import Specification
 from service.core.models.drift import DriftSpec
+from service.core.models.ets.family import EtsSpec
 from service.core.models.naive import NaiveSpec
 from service.core.models.registry import specification_from_dict
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
@@ -145,3 +148,26 @@ def test_label_of_a_fit_is_what_its_description_says(data: dict[str, object], lo
         warnings.simplefilter("ignore")
         fitted = spec.fit(y, 12)
         assert label_of(fitted) == fitted.describe().label
+
+
+@pytest.mark.parametrize(
+    "spec",
+    [
+        ArimaSpec(order=(1, 1, 1), seasonal_order=(0, 1, 1)),
+        TransformedSpec(EtsSpec("add", "add", True, "add"), Transform("log")),
+    ],
+)
+def test_first_origin_forecast_is_the_fit_s_own(spec: Specification) -> None:
+    # A family forecasting every origin in one pass forecasts the first origin, where the
+    # estimation ends, in that pass too: the numbers are the fitted model's own forecast.
+    rng = np.random.default_rng(8)
+    t = np.arange(96)
+    y = monthly(80 + 0.4 * t + 6 * np.sin(2 * np.pi * t / 12) + rng.normal(0, 1, 96))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        report = backtest(y, [spec], 12, horizon=6, origins=3, step=6)
+        first = report.models[0].forecasts[0]
+        origin = int(y.index.get_loc(first.origin))
+        own = spec.fit(y.iloc[:origin], 12).forecast(6, (0.8, 0.95))
+    np.testing.assert_allclose(first.point, own.point, rtol=1e-12)
+    np.testing.assert_allclose(first.upper[0.95], own.intervals[1].upper, rtol=1e-10)
