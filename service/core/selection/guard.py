@@ -83,6 +83,13 @@ def benchmark_name(label: str) -> str:
 def no_skill_message(rule: str, benchmark: str, skill_value: float, walk_message: str) -> str:
     """The plain sentence of the ``no_skill_over_naive`` warning."""
     if rule == RANDOM_WALK_GUARD:
+        if skill_value < 0:
+            # The guard's drift forecast can lose to naive in the backtest: say by how much.
+            return (
+                f"{walk_message} In the backtest it did {-100 * skill_value:.0f} % worse than "
+                f"the {benchmark} forecast; it is kept because the average step is large "
+                "against the spread of the steps, where carrying it pays on average (Akaike 1974)."
+            )
         return walk_message
     if skill_value == 0:
         return (

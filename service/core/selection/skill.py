@@ -22,10 +22,10 @@ NO_SKILL_MESSAGE = (
 
 
 DRIFT_NO_SKILL_MESSAGE = (
-    "The series behaves like a random walk with a steady average step and no candidate beat "
-    "the drift forecast (the last value plus the average step) by 5 % in the backtest, so that "
-    "forecast is returned. A low error here does not mean a useful model: it only says the "
-    "next value is close to the current one moved on by the average step."
+    "The series behaves like a random walk with a steady average step and the selected models "
+    "did not beat the drift forecast (the last value plus the average step) by 5 % in the "
+    "backtest, so that forecast is returned. A low error here does not mean a useful model: it "
+    "only says the next value is close to the current one moved on by the average step."
 )
 DRIFT_T_SQUARED = 2.0
 """A random walk's guard carries the average step when its squared t-ratio exceeds this. With

@@ -15,9 +15,15 @@ def _percent(value: float) -> str:
     return f"{100 * value:.0f} %"
 
 
-def _kind(profile: Any) -> str:
+def _kind(profile: Any, chosen: str) -> str:
     if profile.intermittent:
         return "Intermittent series"
+    if profile.random_walk and chosen == "drift":
+        # The random-walk guard delivered the drift forecast: say what the forecast is.
+        return (
+            "Random-walk-like series with a steady average step (forecast as the last value "
+            "plus that step)"
+        )
     if profile.random_walk:
         return "Random-walk-like series (hard to forecast beyond its last value)"
     several = tuple(getattr(profile, "seasonal_periods", ()))
@@ -41,7 +47,9 @@ def auto_summary(selection: Any) -> str:
         told = f"the forecast did not beat {bench} in backtests"
     else:
         told = f"the forecast beat {bench} by {_percent(value)} in backtests"
-    return f"{_kind(selection.profile)}; {told}; {_coverage(selection.calibration)}."
+    return (
+        f"{_kind(selection.profile, selection.chosen)}; {told}; {_coverage(selection.calibration)}."
+    )
 
 
 def _coverage(calibration: Any) -> str:

@@ -86,6 +86,48 @@ def test_the_summary_names_the_drift_forecast_the_guard_delivered() -> None:
         assert leans in auto_summary(selection)
 
 
+def test_the_summary_says_a_delivered_drift_forecast_carries_the_average_step() -> None:
+    from types import SimpleNamespace
+
+    walk = SimpleNamespace(intermittent=False, random_walk=True, seasonal=False)
+    for chosen, said in (("drift", "last value plus that step"), ("naive", "its last value")):
+        selection = SimpleNamespace(
+            benchmark="naive",
+            skill_over_naive=0.08,
+            rule=RANDOM_WALK_GUARD,
+            chosen=chosen,
+            profile=walk,
+            calibration=None,
+        )
+        text = auto_summary(selection)
+        assert said in text and "beat naive by 8 %" in text
+    assert "steady average step" not in auto_summary(
+        SimpleNamespace(**{**vars(selection), "chosen": "naive"})
+    )
+
+
+def test_the_drift_guard_warning_says_how_much_worse_than_naive_it_did() -> None:
+    walk = "The series behaves like a random walk with a steady average step."
+    text = no_skill_message(RANDOM_WALK_GUARD, "naive", -0.044, walk)
+    assert text.startswith(walk) and "4 % worse than the naive forecast" in text
+    assert "(Akaike 1974)" in text and text.endswith(".")
+
+
+def test_a_walk_with_a_weak_drift_says_why_drift_is_delivered_though_it_lost_to_naive() -> None:
+    # Seeded walk, mean step 0.37 (sd 3, t² 2.2): the guard carries the step; in this backtest
+    # drift did worse than naive, which the warning and the summary must both say.
+    rng = np.random.default_rng(9)
+    y = series(500 + np.concatenate([[0.0], np.cumsum(rng.normal(0.25, 3.0, 149))]))
+    result = select(y, 12, 12, diagnostics=diagnose(y, 12))
+    assert result.selection.rule == RANDOM_WALK_GUARD and result.selection.chosen == "drift"
+    value = result.selection.skill_over_naive
+    assert value is not None and value < 0
+    message = next(w.message for w in result.warnings if w.code == "no_skill_over_naive")
+    assert f"{-100 * value:.0f} % worse than the naive forecast" in message
+    text = auto_summary(result.selection)
+    assert "last value plus that step" in text and "leans on drift" in text
+
+
 def test_messages_are_plain_sentences_naming_the_benchmark() -> None:
     text = no_skill_message(BENCHMARK_GUARD, "seasonal naive", -0.12, "")
     assert "seasonal naive" in text and "12 %" in text and text.endswith(".")
