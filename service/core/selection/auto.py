@@ -72,7 +72,7 @@ from service.core.selection.choice import SEVERAL_PERIODS_TRIM
 from service.core.selection.delivered import delivered, model_periods, settle
 from service.core.selection.guard import Guarded, benchmark_name, guard, no_skill_message
 from service.core.selection.outcome import AutoForecast, Selection
-from service.core.selection.screening import plausible_choice, screened
+from service.core.selection.screening import left_out, plausible_choice, screened
 from service.core.selection.short_series import modelled_periods, plan_for, simple_candidates
 from service.core.selection.skill import (
     benchmark_of,
@@ -149,6 +149,8 @@ def select(
     # The ranking pools the scaled errors over every origin of the dense plan: more origins
     # for the same estimates, so one lucky window decides less.
     results = [screened(r, y) for r in dense]
+    failed = left_out(dense)
+    extra.extend([] if failed is None else [failed])
     clock.lap("backtest")
 
     several = len(modelled_periods(specs)) > 1

@@ -6,6 +6,7 @@ again without it, so that what is scored is what is delivered."""
 from __future__ import annotations
 
 import dataclasses
+import re
 from collections.abc import Sequence
 
 import pandas as pd
@@ -13,7 +14,7 @@ import pandas as pd
 from service.core.errors import FitError
 from service.core.evaluation.origins import Plan
 from service.core.evaluation.records import ModelBacktest, rank
-from service.core.models.base import Forecast, Specification
+from service.core.models.base import FitWarning, Forecast, Specification
 from service.core.models.intervals import Interval
 from service.core.models.plausibility import implausible
 from service.core.selection.choice import Choice, choose, disjoint_windows
@@ -75,3 +76,23 @@ def screened(result: ModelBacktest, y: pd.Series) -> ModelBacktest:
         if why is not None:
             return dataclasses.replace(result, failure=f"{why} at {f.origin.isoformat()}")
     return result
+
+
+def left_out(results: Sequence[ModelBacktest]) -> FitWarning | None:
+    """The warning ``failed_candidate`` when candidates could not be fitted at all (a series
+    with kept gaps, data a family refuses): the forecast then comes from fewer models than
+    the profile called for, and the caller should know which and why."""
+    failed: dict[str, list[str]] = {}
+    for r in results:
+        if r.failure is not None:
+            reason = re.sub(r"^[A-Za-z]*Error: ", "", r.failure)
+            failed.setdefault(reason, []).append(r.label)
+    if not failed:
+        return None
+    count = sum(len(labels) for labels in failed.values())
+    why = "; ".join(f"{', '.join(labels)} ({reason})" for reason, labels in failed.items())
+    return FitWarning(
+        "failed_candidate",
+        f"model auto left out {count} of the {len(results)} models it meant to compare, "
+        f"which could not be fitted to this series: {why}",
+    )

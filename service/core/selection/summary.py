@@ -47,9 +47,8 @@ def auto_summary(selection: Any) -> str:
         told = f"the forecast did not beat {bench} in backtests"
     else:
         told = f"the forecast beat {bench} by {_percent(value)} in backtests"
-    return (
-        f"{_kind(selection.profile, selection.chosen)}; {told}; {_coverage(selection.calibration)}."
-    )
+    kind = _kind(selection.profile, getattr(selection, "chosen", ""))
+    return f"{kind}; {told}; {_coverage(selection.calibration)}."
 
 
 def _coverage(calibration: Any) -> str:

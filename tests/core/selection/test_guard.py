@@ -209,3 +209,25 @@ def test_three_years_of_weekly_points_are_compared_on_two_seasons() -> None:
     result = select(y, 52, 13, diagnostics=diagnose(y, 52))
     assert result.selection.profile.seasonal and result.forecast.point.size == 13
     assert "backtest_shortened" in [w.code for w in result.warnings]
+
+
+def test_candidates_that_cannot_be_fitted_are_named_in_a_warning() -> None:
+    # Gaps kept (missing policy 'keep'): the families that need a complete series fail; the
+    # forecast comes from the rest, and the caller is told which were left out and why.
+    rng = np.random.default_rng(14)
+    t = np.arange(96)
+    values = 100 + 15 * np.sin(2 * np.pi * t / 12) + rng.normal(0, 2, t.size)
+    values[[20, 41, 70]] = np.nan
+    y = series(values)
+    result = select(y, 12, 6, diagnostics=diagnose(y, 12))
+    warning = next(w for w in result.warnings if w.code == "failed_candidate")
+    assert "ets" in warning.message and "needs a complete series" in warning.message
+    assert "FitError" not in warning.message
+    failed = [label for label, _ in result.selection.failures]
+    assert f"left out {len(failed)} of the" in warning.message
+
+
+def test_no_left_out_warning_when_every_candidate_fits(batch: list[AutoForecast]) -> None:
+    for result in batch:
+        if not result.selection.failures:
+            assert "failed_candidate" not in [w.code for w in result.warnings]
