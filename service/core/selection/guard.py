@@ -4,7 +4,7 @@ without saying so.
 - Random-walk guard (skill.py): a random walk (a seasonal random walk) whose chosen forecast
   is not ``SKILL_MARGIN`` (5 %) better than the naive (seasonal naive) forecast gets that
   forecast; the drift forecast stands in for naive when the average step is expected to pay
-  (``skill.drift_pays``).
+  (``skill.drift_pays``), and faces the benchmark guard like any other forecast.
 - Benchmark guard, for every series: when the chosen forecast's skill over the benchmark
   (seasonal naive for a seasonal series, naive otherwise) is below ``GUARD_MARGIN``, the
   benchmark joins the forecast in a combination, weighted like the members among themselves
@@ -49,22 +49,29 @@ def guard(
     """The random-walk guard, then the benchmark guard, applied to the chosen members;
     ``walk`` is the random-walk guard's forecast (candidate index, backtest score) when the
     series is judged a random walk, ``benchmark`` the benchmark's."""
+    rule = BENCHMARK_GUARD
     if walk is not None:
         over = skill(chosen_score, walk[1])
         if over is None or over < SKILL_MARGIN:
-            return Guarded(RANDOM_WALK_GUARD, (walk[0],))
+            # The walk's forecast still faces the benchmark guard: a drift forecast that lost
+            # to naive in the backtest gets naive mixed in, as every other forecast would.
+            chosen, chosen_score, rule = (
+                Guarded(RANDOM_WALK_GUARD, (walk[0],)),
+                walk[1],
+                RANDOM_WALK_GUARD,
+            )
     bench_index, bench_score = benchmark
     if chosen.members == (bench_index,):
         return chosen
     over_bench = skill(chosen_score, bench_score)
     if over_bench is None:
-        return Guarded(BENCHMARK_GUARD, (bench_index,))
+        return Guarded(rule, (bench_index,))
     if over_bench >= GUARD_MARGIN:
         return chosen
     own, bench_share = score_weights([chosen_score, bench_score])
     within = shares(len(chosen.members), chosen.weights)
     weights = (*(w * own for w in within), bench_share)
-    return Guarded(BENCHMARK_GUARD, (*chosen.members, bench_index), weights)
+    return Guarded(rule, (*chosen.members, bench_index), weights)
 
 
 def shares(count: int, weights: Sequence[float]) -> tuple[float, ...]:
@@ -84,11 +91,12 @@ def no_skill_message(rule: str, benchmark: str, skill_value: float, walk_message
     """The plain sentence of the ``no_skill_over_naive`` warning."""
     if rule == RANDOM_WALK_GUARD:
         if skill_value < 0:
-            # The guard's drift forecast can lose to naive in the backtest: say by how much.
+            # The guard's drift forecast lost to naive in the backtest: naive was mixed in.
             return (
-                f"{walk_message} In the backtest it did {-100 * skill_value:.0f} % worse than "
-                f"the {benchmark} forecast; it is kept because the average step is large "
-                "against the spread of the steps, where carrying it pays on average (Akaike 1974)."
+                f"{walk_message} In the backtest the drift forecast did worse than the "
+                f"{benchmark} forecast, so the {benchmark} forecast is mixed in; the mixture "
+                f"still did {-100 * skill_value:.0f} % worse than the {benchmark} forecast "
+                "alone: trust it no more than that simple rule."
             )
         return walk_message
     if skill_value == 0:

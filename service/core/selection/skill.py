@@ -24,7 +24,7 @@ NO_SKILL_MESSAGE = (
 DRIFT_NO_SKILL_MESSAGE = (
     "The series behaves like a random walk with a steady average step and the selected models "
     "did not beat the drift forecast (the last value plus the average step) by 5 % in the "
-    "backtest, so that forecast is returned. A low error here does not mean a useful model: it "
+    "backtest, so that forecast is used. A low error here does not mean a useful model: it "
     "only says the next value is close to the current one moved on by the average step."
 )
 DRIFT_T_SQUARED = 2.0
