@@ -54,7 +54,8 @@ def guard(
         over = skill(chosen_score, walk[1])
         if over is None or over < SKILL_MARGIN:
             # The walk's forecast still faces the benchmark guard: a drift forecast that lost
-            # to naive in the backtest gets naive mixed in, as every other forecast would.
+            # to naive in the backtest (naive that lost to seasonal naive on a seasonal
+            # series) gets the benchmark mixed in, as every other forecast would.
             chosen, chosen_score, rule = (
                 Guarded(RANDOM_WALK_GUARD, (walk[0],)),
                 walk[1],
@@ -91,9 +92,10 @@ def no_skill_message(rule: str, benchmark: str, skill_value: float, walk_message
     """The plain sentence of the ``no_skill_over_naive`` warning."""
     if rule == RANDOM_WALK_GUARD:
         if skill_value < 0:
-            # The guard's drift forecast lost to naive in the backtest: naive was mixed in.
+            # The guard's forecast (drift, or naive on a seasonal series) lost to the benchmark
+            # in the backtest: the benchmark was mixed in.
             return (
-                f"{walk_message} In the backtest the drift forecast did worse than the "
+                f"{walk_message} In the backtest that forecast did worse than the "
                 f"{benchmark} forecast, so the {benchmark} forecast is mixed in; the mixture "
                 f"still did {-100 * skill_value:.0f} % worse than the {benchmark} forecast "
                 "alone: trust it no more than that simple rule."

@@ -124,6 +124,15 @@ def test_a_drift_forecast_that_lost_to_naive_faces_the_benchmark_guard() -> None
     assert alone == Guarded(RANDOM_WALK_GUARD, (1,))
 
 
+def test_a_walk_forecast_that_lost_to_seasonal_naive_gets_it_mixed_in_and_says_so() -> None:
+    # A random walk on a seasonal series: the guard's naive forecast (1) lost to the seasonal
+    # naive benchmark (2), which joins it; the warning names the benchmark, not drift.
+    mixed = guard(Guarded("combination", (0,), ()), 1.0, (1, 1.01), (2, 0.9))
+    assert mixed.rule == RANDOM_WALK_GUARD and mixed.members == (1, 2)
+    text = no_skill_message(RANDOM_WALK_GUARD, "seasonal naive", -0.05, "A random walk.")
+    assert "seasonal naive forecast is mixed in" in text and "drift" not in text
+
+
 def test_a_walk_with_a_weak_drift_gets_naive_mixed_in_when_drift_lost_to_it() -> None:
     # Seeded walk, mean step 0.37 (sd 3, t² 2.2): the guard carries the step; in this backtest
     # drift did worse than naive, so naive is mixed in, and the warning says so.
