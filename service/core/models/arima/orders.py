@@ -162,10 +162,7 @@ def lag_polynomials(orders: LagOrders, arma: np.ndarray) -> tuple[np.ndarray, np
 
 def roots_outside_unit_circle(poly: np.ndarray, margin: float = 1e-3) -> bool:
     """True when every root of the lag polynomial lies outside the unit circle (stationary)."""
-    trimmed = np.trim_zeros(poly, "b")
-    if trimmed.size <= 1:
-        return True
-    return bool(np.all(np.abs(np.roots(trimmed[::-1])) > 1.0 + margin))
+    return bool(smallest_root(poly) > 1.0 + margin)
 
 
 def smallest_root(poly: np.ndarray) -> float:

@@ -101,6 +101,15 @@ def _within_bounds(
     return adjusted
 
 
+def bound_arrays(
+    bounds: Sequence[tuple[float | None, float | None]],
+) -> tuple[np.ndarray, np.ndarray]:
+    """Lower and upper bounds as arrays, None read as unbounded (statsmodels' bounds list)."""
+    lower = np.array([-np.inf if lo is None else float(lo) for lo, _ in bounds])
+    upper = np.array([np.inf if hi is None else float(hi) for _, hi in bounds])
+    return lower, upper
+
+
 def minimise(
     objective: Objective,
     start: np.ndarray,
@@ -111,8 +120,7 @@ def minimise(
 ) -> tuple[np.ndarray, dict[str, Any]]:
     """L-BFGS-B as statsmodels' ``_fit_lbfgs`` calls it with ``approx_grad``; the estimates and
     statsmodels' ``mle_retvals``."""
-    lower = np.array([-np.inf if lo is None else float(lo) for lo, _ in bounds])
-    upper = np.array([np.inf if hi is None else float(hi) for _, hi in bounds])
+    lower, upper = bound_arrays(bounds)
     evaluations = _Evaluations(objective, args)
     stopped = False
 

@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 from scipy.optimize import least_squares
 
-from service.core.models.ets.gradient import ForwardDifferenceFit
+from service.core.models.ets.gradient import ForwardDifferenceFit, bound_arrays
 
 
 def likelihood_residuals(data: np.ndarray, fitted: np.ndarray, multiplicative: bool) -> np.ndarray:
@@ -45,8 +45,7 @@ def least_squares_fit(
     the Jacobian; each parameter is measured in units of its column's norm (``x_scale="jac"``),
     as the initial states of a series in the hundreds sit beside smoothing parameters below
     one. A ValueError when the residuals at the start are not finite."""
-    lower = np.array([-np.inf if lo is None else float(lo) for lo, _ in bounds])
-    upper = np.array([np.inf if hi is None else float(hi) for _, hi in bounds])
+    lower, upper = bound_arrays(bounds)
     x0 = np.clip(np.asarray(start, dtype=float), lower, upper)
     calls = 0
 
