@@ -14,6 +14,11 @@ from collections.abc import Sequence
 from service.core.data.periods import period_text
 
 _ETS_LETTERS = {"none": "N", "add": "A", "mul": "M"}
+_THETA_SHARES = {
+    "half": "",
+    "fitted": ", slope share fitted",
+    "fitted_running": ", slope share fitted on running slopes",
+}
 
 
 def model_label(
@@ -30,6 +35,7 @@ def model_label(
     harmonics: Sequence[int] = (),
     weighted: bool = False,
     power: float = 0.0,
+    slope_share: str = "half",
 ) -> str:
     """The label of one fitted model (or of one candidate in a search).
 
@@ -41,7 +47,8 @@ def model_label(
     label of the model inside STL, MSTL or a transform (the errors' label for harmonic
     regression); ``members``, ``weighted``: a combination's
     size and whether it was given weights; ``power``: the Box-Cox exponent of the
-    "transformed" family (0 is the log).
+    "transformed" family (0 is the log); ``slope_share``: how Theta's drift share was set
+    ("half", "fitted" or "fitted_running").
     """
     periods = [period] if isinstance(period, (int, float)) else list(period)
     seasonal = [m for m in periods if m > 1]
@@ -60,10 +67,11 @@ def model_label(
                 text += "x({},{},{}){}".format(*seasonal_orders, period_text(seasonal[0]))
             return text if constant == "none" else f"{text}, constant: {constant}"
         case "theta":
+            share = _THETA_SHARES[slope_share]
             if not seasonal:
-                return "theta"
+                return f"theta{share}"
             how = ", additive" if variant == "additive" else ""
-            return f"theta, seasonally adjusted ({_periods(seasonal)}{how})"
+            return f"theta, seasonally adjusted ({_periods(seasonal)}{how}){share}"
         case "stl":
             return f"STL ({_periods(seasonal or periods)}) then {base}"
         case "mstl":

@@ -4,6 +4,12 @@ b0 is the OLS slope of the (seasonally adjusted) series on time; the SES starts 
 first observation and its α minimises the one-step squared errors, as in the original
 method. Intervals use the IMA(1,1) variance σ²[1 + (h−1)α²], not statsmodels' ThetaModel
 intervals (tests/reference/README.md, trap 4).
+
+The share of b0 carried as drift is ½ in the original method (theta coefficient 2); with
+``slope_share="fitted"`` it is 1 − 1/θ for a fitted θ >= 1 (so in [0, 1]), estimated with α
+by the one-step squared errors (Fiorucci, Pellegrini, Louzada, Petropoulos & Koehler 2016,
+the optimised theta model); ``"fitted_running"`` scores those one-step errors with the OLS
+line refitted on the data up to each step (their dynamic model). theta_fit.py fits them.
 """
 
 from __future__ import annotations
@@ -27,6 +33,7 @@ from service.core.models.simple import ljung_box_summary, timed
 
 MULTIPLICATIVE = "multiplicative"
 ADDITIVE = "additive"
+SLOPE_SHARES = ("half", "fitted", "fitted_running")
 
 
 @dataclass(frozen=True)
@@ -50,6 +57,14 @@ class ThetaSpec:
         kind="choice",
         allowed=("auto", "always", "never"),
     )
+    slope_share: str = param(
+        "half",
+        "Share of the least-squares slope carried as drift: half (the original method), "
+        "fitted (with α, by one-step squared errors), or fitted_running (the same, with "
+        "the slope refitted on the data up to each step).",
+        kind="choice",
+        allowed=SLOPE_SHARES,
+    )
 
     def fit(self, y: pd.Series, seasonal_period: int = 1) -> ThetaFitted:
         """Fit α by least squares on the adjusted series and the drift by OLS on time."""
@@ -59,9 +74,17 @@ class ThetaSpec:
         indices, kind = self._seasonal_indices(values, seasonal_period, notes)
         adjusted = deseasoned(values, indices, kind, 0)
         slope = ols_slope(adjusted)
-        alpha = ses_alpha(adjusted)
+        running = self.slope_share == "fitted_running"
+        if self.slope_share == "half":
+            alpha, share = ses_alpha(adjusted), 0.5
+        else:
+            from service.core.models.theta_fit import fitted_share
+
+            alpha, share = fitted_share(adjusted, running)
         seconds = timed() - start
-        return ThetaFitted(self, y, seasonal_period, alpha, slope, indices, seconds, notes, kind)
+        return ThetaFitted(
+            self, y, seasonal_period, alpha, slope, indices, seconds, notes, kind, share, running
+        )
 
     def _seasonal_indices(
         self, values: np.ndarray, period: int, notes: list[FitWarning]
@@ -123,10 +146,13 @@ def ses_alpha(values: np.ndarray) -> float:
     return float(found.x)
 
 
-def theta_path(level: float, alpha: float, slope: float, n: int, horizon: int) -> np.ndarray:
-    """ℓ_T + ½ b0 [h − 1 + 1/α − (1−α)^T / α] for h = 1..horizon (Hyndman & Billah 2003)."""
+def theta_path(
+    level: float, alpha: float, slope: float, n: int, horizon: int, share: float = 0.5
+) -> np.ndarray:
+    """ℓ_T + ½ b0 [h − 1 + 1/α − (1−α)^T / α] for h = 1..horizon (Hyndman & Billah 2003);
+    ``share`` in place of ½ for another theta coefficient θ (share = 1 − 1/θ)."""
     h = np.arange(1, horizon + 1, dtype=float)
-    return level + 0.5 * slope * (h - 1.0 + 1.0 / alpha - (1.0 - alpha) ** n / alpha)
+    return level + share * slope * (h - 1.0 + 1.0 / alpha - (1.0 - alpha) ** n / alpha)
 
 
 def seasonal_indices(values: np.ndarray, period: int, kind: str) -> tuple[float, ...]:
@@ -168,18 +194,27 @@ class ThetaFitted:
     warnings: list[FitWarning] = field(default_factory=list)
     seasonal_kind: str = MULTIPLICATIVE
     """How the indices apply: ratios (multiplicative) or differences (additive)."""
+    share: float = 0.5
+    """The share of b0 carried as drift (1 − 1/θ): ½ in the original method."""
+    running: bool = False
+    """Whether b0 is the slope of the data so far (refitted by ``refilter``)."""
 
     def settled_structure(self) -> ThetaSpec:
         """Theta with the seasonal adjustment this fit decided on, fixed for another history."""
         adjusted = len(self.seasonal_indices) > 1
-        return ThetaSpec("always" if adjusted else "never")
+        return ThetaSpec("always" if adjusted else "never", self.specification.slope_share)
 
     @property
     def label(self) -> str:
         """Theta, naming the seasonal period (and an additive adjustment) when indices were
-        applied."""
+        applied, and a slope share that was fitted."""
         kind = "additive" if self.seasonal_kind == ADDITIVE else "classic"
-        return model_label("theta", period=max(len(self.seasonal_indices), 1), variant=kind)
+        return model_label(
+            "theta",
+            period=max(len(self.seasonal_indices), 1),
+            variant=kind,
+            slope_share=self.specification.slope_share,
+        )
 
     def _adjusted(self) -> np.ndarray:
         values = self.y.to_numpy(dtype=float)
@@ -190,14 +225,21 @@ class ThetaFitted:
         x = self._adjusted()
         levels = ses_levels(x, self.alpha)
         t = np.arange(1, x.size, dtype=float)
-        drift = 0.5 * self.slope * (1.0 / self.alpha - (1.0 - self.alpha) ** t / self.alpha)
+        slope: float | np.ndarray = self.slope
+        if self.running:
+            from service.core.models.theta_fit import running_slopes
+
+            slope = running_slopes(x)[1:-1]
+        drift = self.share * slope * (1.0 / self.alpha - (1.0 - self.alpha) ** t / self.alpha)
         return np.r_[np.nan, levels[:-1] + drift]
 
     def sigma(self) -> float:
-        """σ̂ of the one-step errors, Σe²/(n_e − 2) for the two estimates α and b0."""
+        """σ̂ of the one-step errors, Σe²/(n_e − k) for the k estimates: α and b0, and the
+        slope share when fitted."""
         e = self._adjusted() - self._fitted_adjusted()
         e = e[np.isfinite(e)]
-        dof = max(e.size - 2, 1)
+        fitted = self.specification.slope_share != "half"
+        dof = max(e.size - (3 if fitted else 2), 1)
         return float(np.sqrt(np.sum(e**2) / dof))
 
     def forecast(self, horizon: int, coverage: Sequence[float]) -> Forecast:
@@ -205,7 +247,7 @@ class ThetaFitted:
         reseasoned the same way."""
         x = self._adjusted()
         level = float(ses_levels(x, self.alpha)[-1])
-        path = theta_path(level, self.alpha, self.slope, x.size, horizon)
+        path = theta_path(level, self.alpha, self.slope, x.size, horizon, self.share)
         h = np.arange(1, horizon + 1, dtype=float)
         sd = self.sigma() * np.sqrt(1.0 + (h - 1.0) * self.alpha**2)
         adjusted = normal_intervals(path, sd, coverage)
@@ -229,13 +271,18 @@ class ThetaFitted:
         )
 
     def refilter(self, y: pd.Series) -> ThetaFitted:
-        """α, b0 and the indices held fixed on a history with the same start (season phase)."""
-        complete_values(y, "theta", 3)
-        return replace(self, y=y, fit_seconds=0.0, warnings=[])
+        """α, the share, b0 and the indices held fixed on a history with the same start
+        (season phase); a running slope is b0 of the new history."""
+        values = complete_values(y, "theta", 3)
+        slope = self.slope
+        if self.running:
+            slope = ols_slope(deseasoned(values, self.seasonal_indices, self.seasonal_kind, 0))
+        return replace(self, y=y, slope=slope, fit_seconds=0.0, warnings=[])
 
     def describe(self) -> Description:
         """α, b0, drift, seasonal indices, σ̂ and residual checks (no likelihood criteria)."""
-        params = {"alpha": self.alpha, "b0": self.slope, "drift": self.slope / 2.0}
+        params = {"alpha": self.alpha, "b0": self.slope, "drift": self.share * self.slope}
+        params["slope_share"] = self.share
         if len(self.seasonal_indices) > 1:
             params.update(
                 {f"seasonal_index_{i + 1}": v for i, v in enumerate(self.seasonal_indices)}

@@ -27,7 +27,9 @@ Rules (the table DEVELOPERS.md carries; n = observations, m = seasonal period):
       and fitted with m = 1    + the equal-weight combination of SES, Holt and damped Holt
                                  (additive errors), the M4 competition's benchmark; no theta
                                  (without a season it is SES with drift, inside that span)
-      and fitted with m > 1    + theta (classical multiplicative seasonal adjustment)
+      and fitted with m > 1    + theta (classical multiplicative seasonal adjustment; the
+                                 share of the OLS slope carried as drift fitted by one-step
+                                 errors on running slopes, not fixed at half)
       and not short            + arima (not for a long season, where STL + ETS and the
                                  non-seasonal models stand in; on the log scale when positive
                                  and fitted with m > 1, on both scales when positive and
@@ -255,7 +257,10 @@ def candidate_rules(
         # SES and Holt already averaged (figures in tests/benchmarks/RESULTS.md).
         out.append((_TREND_COMBINATION, "SES, Holt and damped Holt averaged (the M4 benchmark)"))
     else:
-        out.append(({"family": "theta"}, "theta method on classically adjusted data"))
+        # The drift share fitted (the dynamic optimised theta model of Fiorucci et al. 2016):
+        # with half the slope Theta under-trends strongly trending seasonal series.
+        theta = {"family": "theta", "slope_share": "fitted_running"}
+        out.append((theta, "theta method on classically adjusted data, drift share fitted"))
     out.append(({"family": "drift"}, "benchmark with trend"))
     if not profile.short and not profile.long_period:
         note = ""
