@@ -42,6 +42,21 @@ def test_theta_forecast_is_ses_with_drift_half_b0_on_nile() -> None:
     assert_allclose(ours, by_hand, rtol=1e-8)
 
 
+@pytest.mark.parametrize("theta", [1.0, 1.5, 2.0, 3.0, 10.0])
+def test_theta_forecast_for_another_coefficient_on_nile(theta: float) -> None:
+    # SOURCE: Fiorucci, Pellegrini, Louzada, Petropoulos & Koehler (2016), IJF 32:1151-1161
+    # (from memory): the drift is (1 − 1/θ)·b0 instead of ½·b0; statsmodels' ThetaModel
+    # forecast(theta=θ) implements the same weights, with α its own.
+    y = nile_series().to_numpy()
+    direct = ThetaModel(y, deseasonalize=False).fit()
+    alpha, b0 = float(direct.params["alpha"]), float(direct.params["b0"])
+    share = 1.0 - 1.0 / theta
+    ours = theta_path(ses_levels(y, alpha)[-1], alpha, b0, y.size, 10, share)
+    assert_allclose(ours, direct.forecast(10, theta=theta), rtol=1e-8)
+    if theta == 2.0:  # the original method's forecast, bit for bit
+        assert np.array_equal(ours, theta_path(ses_levels(y, alpha)[-1], alpha, b0, y.size, 10))
+
+
 DEMAND = [0, 0, 5, 0, 0, 0, 3, 0, 4, 0, 0, 6]
 
 

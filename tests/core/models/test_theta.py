@@ -17,6 +17,7 @@ from service.core.models.theta import (
     ses_alpha,
     ses_levels,
 )
+from service.core.models.theta_fit import running_slopes
 
 
 def seasonal_series(n: int = 72, seed: int = 2) -> pd.Series:
@@ -100,3 +101,93 @@ def test_refilter_keeps_alpha_and_slope() -> None:
     longer = fitted.refilter(y)
     assert (longer.alpha, longer.slope) == (fitted.alpha, fitted.slope)
     assert longer.forecast(1, [0.8]).index[0] == pd.Timestamp("2025-01-01")
+
+
+# --- the slope share fitted with α (theta_fit.py) -----------------------------------------
+
+
+def one_step_sse(y: np.ndarray, alpha: float, share: float, slopes: np.ndarray) -> float:
+    """The model's one-step squared errors written out directly, a loop over the points."""
+    total, level = 0.0, y[0]
+    for t in range(1, y.size):
+        forecast = level + share * slopes[t - 1] * (1 - (1 - alpha) ** t) / alpha
+        total += (y[t] - forecast) ** 2
+        level = alpha * y[t] + (1 - alpha) * level
+    return total
+
+
+def trending(n: int = 40, seed: int = 9) -> pd.Series:
+    rng = np.random.default_rng(seed)
+    values = 50 + 0.8 * np.arange(n) + rng.normal(0, 2, n).cumsum() * 0.5 + rng.normal(0, 1, n)
+    return pd.Series(values, index=pd.date_range("1980-01-01", periods=n, freq="YS"))
+
+
+def test_running_slopes_are_the_slopes_of_each_prefix() -> None:
+    y = trending().to_numpy()
+    slopes = running_slopes(y)
+    assert slopes.shape == (y.size + 1,) and slopes[0] == slopes[1] == 0.0
+    for k in (2, 3, 10, y.size):
+        assert_allclose(slopes[k], np.polyfit(np.arange(k), y[:k], 1)[0], rtol=1e-9)
+
+
+def test_a_straight_line_gets_the_whole_slope_and_is_continued() -> None:
+    # Worked example: on y = a + b·t the one-step forecasts with share 1 are exact for any α
+    # (SES lags a line by b(1 − α)/α, which the drift term puts back), so the fit carries
+    # the whole slope and the forecast continues the line; the original method carries half.
+    t = np.arange(25, dtype=float)
+    y = pd.Series(3.0 + 2.0 * t, index=pd.date_range("2000-01-01", periods=25, freq="YS"))
+    fitted = ThetaSpec(slope_share="fitted").fit(y, 1)
+    assert_allclose(fitted.share, 1.0, atol=1e-9)
+    assert_allclose(fitted.forecast(4, [0.8]).point, 3.0 + 2.0 * np.arange(25, 29), rtol=1e-9)
+    half = ThetaSpec().fit(y, 1).forecast(4, [0.8]).point
+    assert np.all(half < 3.0 + 2.0 * np.arange(25, 29) - 1.0)
+
+
+@pytest.mark.parametrize("share_kind", ["fitted", "fitted_running"])
+def test_fitted_share_and_alpha_minimise_the_one_step_errors(share_kind: str) -> None:
+    y = trending()
+    values = y.to_numpy()
+    running = share_kind == "fitted_running"
+    slopes = (
+        running_slopes(values)[1:-1] if running else np.full(values.size - 1, ols_slope(values))
+    )
+    fitted = ThetaSpec(slope_share=share_kind).fit(y, 1)
+    assert 0.0 <= fitted.share <= 1.0 and fitted.running is running
+    best = one_step_sse(values, fitted.alpha, fitted.share, slopes)
+    # The original method's (α, ½) is a feasible point; so is every point of a fine grid.
+    classic = ThetaSpec().fit(y, 1)
+    assert best <= one_step_sse(values, classic.alpha, 0.5, slopes) + 1e-9
+    grid = min(
+        one_step_sse(values, a, s, slopes)
+        for a in np.linspace(0.05, 1.0, 39)
+        for s in np.linspace(0.0, 1.0, 41)
+    )
+    assert best <= grid + 1e-9
+    # σ̂ counts the share as a third estimate.
+    assert_allclose(fitted.sigma() ** 2 * (values.size - 1 - 3), best, rtol=1e-9)
+
+
+def test_half_share_is_the_original_method() -> None:
+    y = seasonal_series()
+    default = ThetaSpec().fit(y, 12)
+    named = ThetaSpec(slope_share="half").fit(y, 12)
+    assert default.share == named.share == 0.5 and not named.running
+    assert np.array_equal(default.forecast(12, [0.8]).point, named.forecast(12, [0.8]).point)
+    assert named.label == "theta, seasonally adjusted (period 12)"
+    running = ThetaSpec(slope_share="fitted_running").fit(y, 12)
+    assert running.label == (
+        "theta, seasonally adjusted (period 12), slope share fitted on running slopes"
+    )
+    assert running.settled_structure() == ThetaSpec("always", "fitted_running")
+    assert running.describe().parameters["slope_share"] == running.share
+
+
+def test_refilter_keeps_the_slope_unless_it_runs() -> None:
+    y = trending()
+    shorter = y.iloc[:30]
+    fixed = ThetaSpec(slope_share="fitted").fit(y, 1)
+    assert fixed.refilter(shorter).slope == fixed.slope
+    running = ThetaSpec(slope_share="fitted_running").fit(y, 1)
+    moved = running.refilter(shorter)
+    assert_allclose(moved.slope, ols_slope(shorter.to_numpy()), rtol=1e-12)
+    assert (moved.alpha, moved.share) == (running.alpha, running.share)

@@ -156,3 +156,6 @@ def test_theta_joins_seasonal_fits_and_the_trend_combination_non_seasonal_ones()
     assert "theta" not in flat and "combination" in flat and "ets" in flat
     # A long season is fitted with m = 1 beside STL: no theta there either.
     assert "theta" not in families(profile(seasonal_period=52), thorough=False)
+    # Its drift share is fitted with α on running slopes, not fixed at half.
+    theta = [s for s in candidates_for(profile()).specifications if family_of(s) == "theta"]
+    assert [s.slope_share for s in theta] == ["fitted_running"]
