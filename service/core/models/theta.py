@@ -30,6 +30,7 @@ from service.core.models.base import parameter as param
 from service.core.models.intervals import Interval, normal_intervals
 from service.core.models.labels import model_label
 from service.core.models.simple import ljung_box_summary, timed
+from service.core.models.theta_fit import fitted_share, ols_slope, running_slopes
 
 MULTIPLICATIVE = "multiplicative"
 ADDITIVE = "additive"
@@ -78,8 +79,6 @@ class ThetaSpec:
         if self.slope_share == "half":
             alpha, share = ses_alpha(adjusted), 0.5
         else:
-            from service.core.models.theta_fit import fitted_share
-
             alpha, share = fitted_share(adjusted, running)
         seconds = timed() - start
         return ThetaFitted(
@@ -112,13 +111,6 @@ class ThetaSpec:
                 )
             )
         return (1.0,), MULTIPLICATIVE
-
-
-def ols_slope(values: np.ndarray) -> float:
-    """b0: least-squares slope of the series on time 0, 1, ..., T−1."""
-    t = np.arange(values.size, dtype=float)
-    t -= t.mean()
-    return float(np.dot(t, values - values.mean()) / np.dot(t, t))
 
 
 def ses_levels(values: np.ndarray, alpha: float) -> np.ndarray:
@@ -227,8 +219,6 @@ class ThetaFitted:
         t = np.arange(1, x.size, dtype=float)
         slope: float | np.ndarray = self.slope
         if self.running:
-            from service.core.models.theta_fit import running_slopes
-
             slope = running_slopes(x)[1:-1]
         drift = self.share * slope * (1.0 / self.alpha - (1.0 - self.alpha) ** t / self.alpha)
         return np.r_[np.nan, levels[:-1] + drift]

@@ -14,10 +14,15 @@ from __future__ import annotations
 
 import numpy as np
 
-from service.core.models.theta import ols_slope
-
 _ALPHA_GRID = np.linspace(0.02, 1.0, 50)
 """Coarse α grid before the bounded search: the profile in α can have several minima."""
+
+
+def ols_slope(values: np.ndarray) -> float:
+    """b0: least-squares slope of the series on time 0, 1, ..., T−1."""
+    t = np.arange(values.size, dtype=float)
+    t -= t.mean()
+    return float(np.dot(t, values - values.mean()) / np.dot(t, t))
 
 
 def running_slopes(values: np.ndarray) -> np.ndarray:
@@ -36,8 +41,8 @@ def running_slopes(values: np.ndarray) -> np.ndarray:
 
 
 def _levels(values: np.ndarray, alpha: float) -> np.ndarray:
-    """theta.ses_levels by a linear filter (ℓ_0 = y_0): the same levels, without a Python
-    loop over the points, for the search that evaluates them many times."""
+    """Theta's SES levels (theta.ses_levels, ℓ_0 = y_0) by a linear filter: the same levels
+    without a Python loop over the points, for the search that evaluates them many times."""
     from scipy.signal import lfilter
 
     start = np.array([(1.0 - alpha) * values[0]])
