@@ -24,6 +24,7 @@ from service.core.models.base import (
     as_dict,
     origin_forecasts,
     parameter,
+    residuals_from,
 )
 from service.core.models.intervals import Interval
 from service.core.models.labels import model_label
@@ -169,11 +170,7 @@ class CombinationFitted:
 
     def residuals(self) -> pd.Series:
         """Observed minus the combined one-step fit."""
-        return pd.Series(
-            self.y.to_numpy(dtype=float) - self.fitted_values().to_numpy(),
-            index=self.y.index,
-            name="residuals",
-        )
+        return residuals_from(self.y, self.fitted_values())
 
     def refilter(self, y: pd.Series) -> CombinationFitted:
         """Every member re-filtered with its own parameters held fixed."""

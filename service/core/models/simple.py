@@ -23,6 +23,7 @@ from service.core.models.base import (
     Forecast,
     ResidualChecks,
     as_dict,
+    residuals_from,
 )
 from service.core.models.intervals import normal_intervals
 
@@ -67,11 +68,7 @@ class SimpleFitted:
 
     def residuals(self) -> pd.Series:
         """Observed minus fitted."""
-        return pd.Series(
-            self.y.to_numpy(dtype=float) - self._fitted_array(),
-            index=self.y.index,
-            name="residuals",
-        )
+        return residuals_from(self.y, self.fitted_values())
 
     def refilter(self, y: pd.Series) -> SimpleFitted:
         """The same estimates (level, slope, σ̂) applied to another history."""

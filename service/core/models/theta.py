@@ -25,7 +25,7 @@ from service.core.checks import complete_values
 from service.core.data.grid import future_index
 from service.core.diagnostics.autocorrelation import seasonal_lag_stands_out
 from service.core.errors import FitError
-from service.core.models.base import Description, FitWarning, Forecast, as_dict
+from service.core.models.base import Description, FitWarning, Forecast, as_dict, residuals_from
 from service.core.models.base import parameter as param
 from service.core.models.intervals import Interval, normal_intervals
 from service.core.models.labels import model_label
@@ -255,10 +255,7 @@ class ThetaFitted:
 
     def residuals(self) -> pd.Series:
         """Observed minus one-step fitted."""
-        fitted = self.fitted_values().to_numpy()
-        return pd.Series(
-            self.y.to_numpy(dtype=float) - fitted, index=self.y.index, name="residuals"
-        )
+        return residuals_from(self.y, self.fitted_values())
 
     def refilter(self, y: pd.Series) -> ThetaFitted:
         """α, the share, b0 and the indices held fixed on a history with the same start

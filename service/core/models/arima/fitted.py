@@ -23,7 +23,7 @@ from service.core.data.regressors import aligned_future, aligned_history
 from service.core.errors import FitError, SeriesError
 from service.core.models.arima.orders import ArimaOrders, Estimate, design_matrix
 from service.core.models.arima.search import OrderSearchResult
-from service.core.models.base import Description, FitWarning, Forecast, as_dict
+from service.core.models.base import Description, FitWarning, Forecast, as_dict, residuals_from
 from service.core.models.intervals import normal_intervals
 from service.core.models.simple import ljung_box_summary
 
@@ -166,8 +166,7 @@ class ArimaFitted:
 
     def residuals(self) -> pd.Series:
         """Observed minus one-step predictions."""
-        resid = self.y.to_numpy(dtype=float) - self.fitted_values().to_numpy()
-        return pd.Series(resid, index=self.y.index, name="residuals")
+        return residuals_from(self.y, self.fitted_values())
 
     def _burn(self) -> int:
         return self.orders.d + self.orders.m * self.orders.D

@@ -17,7 +17,7 @@ from service.core.checks import check_coverage, check_positive_int
 from service.core.data.grid import future_index
 from service.core.errors import FitError, SeriesError
 from service.core.models.arima.orders import information_criteria
-from service.core.models.base import Description, FitWarning, Forecast, as_dict
+from service.core.models.base import Description, FitWarning, Forecast, as_dict, residuals_from
 from service.core.models.harmonic.errors import ErrorModel
 from service.core.models.harmonic.terms import FourierTerms
 from service.core.models.intervals import normal_intervals
@@ -126,8 +126,7 @@ class HarmonicFitted:
 
     def residuals(self) -> pd.Series:
         """Observed minus one-step predictions."""
-        resid = self.y.to_numpy(dtype=float) - self.fitted_values().to_numpy()
-        return pd.Series(resid, index=self.y.index, name="residuals")
+        return residuals_from(self.y, self.fitted_values())
 
     def refilter(self, y: pd.Series) -> HarmonicFitted:
         """The same terms and parameters on another history (positions kept from the origin)."""
