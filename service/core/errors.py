@@ -46,6 +46,19 @@ class WindvaneError(ValueError):
         clone = type(self)(self.message, problems=moved)
         return clone
 
+    def moved_under(self, field: str) -> WindvaneError:
+        """The same error with its ``model`` fields placed under ``field``: a nested
+        specification's errors named where it stands (``model.members[1]``, ``candidates[1]``)."""
+        if field == "model":
+            return self
+        moved = []
+        for p in self.problems:
+            name = p.field
+            if name == "model" or name.startswith("model."):
+                name = field + name[len("model") :]
+            moved.append(FieldProblem(name, p.message))
+        return type(self)(self.message, problems=moved)
+
 
 def _join(prefix: str, field: str) -> str:
     if not prefix:

@@ -88,19 +88,8 @@ class CombinationSpec:
             try:
                 fitted.append(member.fit(y, seasonal_period))
             except WindvaneError as exc:
-                raise _placed(exc, i) from exc
+                raise exc.moved_under(f"model.members[{i}]") from exc
         return CombinationFitted.of(self, y, seasonal_period, fitted, timed() - start)
-
-
-def _placed(exc: WindvaneError, position: int) -> WindvaneError:
-    """Move a member's 'model.x' fields under 'model.members[i]'."""
-    moved = []
-    for p in exc.problems:
-        name = p.field
-        if name == "model" or name.startswith("model."):
-            name = f"model.members[{position}]" + name[len("model") :]
-        moved.append(type(p)(name, p.message))
-    return type(exc)(exc.message, problems=moved)
 
 
 @dataclass

@@ -126,22 +126,9 @@ def specification_from_dict(data: Any, field: str = "model") -> Specification:
     try:
         return cls(**kwargs)
     except SpecificationError as exc:
-        raise _moved(exc, field) from exc
+        raise exc.moved_under(field) from exc
     except (TypeError, ValueError) as exc:
         raise SpecificationError(str(exc), field=field) from exc
-
-
-def _moved(exc: SpecificationError, field: str) -> SpecificationError:
-    """A constructor's 'model.x' fields placed under the field being parsed (e.g. candidates[1])."""
-    if field == "model":
-        return exc
-    moved = []
-    for p in exc.problems:
-        name = p.field
-        if name == "model" or name.startswith("model."):
-            name = field + name[len("model") :]
-        moved.append(FieldProblem(name, p.message))
-    return SpecificationError(exc.message, problems=moved)
 
 
 def _coerce(p: ParameterInfo, value: Any, where: str) -> Any:
