@@ -28,18 +28,24 @@ class FourierTerms:
     periods: tuple[float, ...]
     harmonics: tuple[int, ...]
 
-    def frequencies(self) -> list[tuple[str, float]]:
-        """Column names and cycles per step, repeated frequencies left out."""
+    def kept(self) -> list[tuple[int, int, float]]:
+        """Each sine and cosine pair of the design, in column order: the period's position,
+        the harmonic k and the cycles per step. A frequency already present (a harmonic of
+        two periods) or at or past the Nyquist limit is left out."""
         seen: list[float] = []
-        out: list[tuple[str, float]] = []
-        for p, count in zip(self.periods, self.harmonics, strict=True):
+        out: list[tuple[int, int, float]] = []
+        for i, (p, count) in enumerate(zip(self.periods, self.harmonics, strict=True)):
             for k in range(1, count + 1):
                 f = k / p
                 if any(abs(f - s) < 1e-9 for s in seen) or f >= 0.5:
                     continue
                 seen.append(f)
-                out.append((f"{k}/{period_text(p)}", f))
+                out.append((i, k, f))
         return out
+
+    def frequencies(self) -> list[tuple[str, float]]:
+        """Column names and cycles per step, repeated frequencies left out."""
+        return [(f"{k}/{period_text(self.periods[i])}", f) for i, k, f in self.kept()]
 
     def names(self) -> list[str]:
         """Coefficient names: constant, then sin and cos per harmonic."""
@@ -103,17 +109,7 @@ def choose_harmonics(
 
 def _columns_by_period(terms: FourierTerms) -> list[list[int]]:
     """The design's column numbers of each period's harmonics, in harmonic order."""
-    out: list[list[int]] = []
-    seen: list[float] = []
-    column = 1
-    for p, count in zip(terms.periods, terms.harmonics, strict=True):
-        mine: list[int] = []
-        for k in range(1, count + 1):
-            f = k / p
-            if any(abs(f - s) < 1e-9 for s in seen) or f >= 0.5:
-                continue
-            seen.append(f)
-            mine += [column, column + 1]
-            column += 2
-        out.append(mine)
+    out: list[list[int]] = [[] for _ in terms.periods]
+    for pair, (i, _, _) in enumerate(terms.kept()):
+        out[i] += [1 + 2 * pair, 2 + 2 * pair]
     return out
