@@ -13,6 +13,7 @@ from typing import Any
 
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
+from service.api.middleware import HttpMiddleware
 from service.runtime.logs import RequestRecord, log_request
 from service.runtime.telemetry import Telemetry
 
@@ -22,18 +23,15 @@ UNMATCHED = "unmatched"
 METHODS = frozenset({"GET", "HEAD", "POST", "PUT", "PATCH", "DELETE", "OPTIONS"})
 
 
-class ObserveMiddleware:
+class ObserveMiddleware(HttpMiddleware):
     """Time each request, count it by route template, method and status, and log one line."""
 
     def __init__(self, app: ASGIApp, telemetry: Telemetry, logger: logging.Logger) -> None:
-        self.app = app
+        super().__init__(app)
         self.telemetry = telemetry
         self.logger = logger
 
-    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] != "http":
-            await self.app(scope, receive, send)
-            return
+    async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
         started = time.perf_counter()
         status = 500
 
