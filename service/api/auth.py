@@ -17,6 +17,7 @@ from typing import Any
 from fastapi import FastAPI, Request
 from starlette.types import ASGIApp, Receive, Scope, Send
 
+from service.api.middleware import header
 from service.api.problems import PROBLEM_MEDIA_TYPE, problem_response
 from service.config import Settings
 
@@ -125,14 +126,9 @@ def route_path(scope: Scope) -> str:
 
 def bearer_token(scope: Scope) -> str | None:
     """The token of an `Authorization: Bearer <token>` header, or None."""
-    for name, value in scope.get("headers", []):
-        if name == b"authorization":
-            scheme, _, token = value.decode("latin-1").strip().partition(" ")
-            token = token.strip()
-            if scheme.lower() == "bearer" and token:
-                return token
-            return None
-    return None
+    scheme, _, token = header(scope, b"authorization").strip().partition(" ")
+    token = token.strip()
+    return token if scheme.lower() == "bearer" and token else None
 
 
 class ApiKeyMiddleware:

@@ -17,7 +17,7 @@ from starlette.types import ASGIApp, Receive, Scope, Send
 
 from service.api.auth import route_path
 from service.api.caching import FORECASTS_PATH, MEMORY_HIT, wire_key
-from service.api.middleware import replay
+from service.api.middleware import header, replay
 from service.runtime.cache import Cache, StoredResponse
 from service.runtime.telemetry import Telemetry
 
@@ -53,8 +53,8 @@ class ResponseHitMiddleware:
         key = wire_key(
             FORECASTS_PATH,
             message.get("body", b""),
-            _header(scope, b"content-type"),
-            _header(scope, b"accept"),
+            header(scope, b"content-type").encode("latin-1"),
+            header(scope, b"accept").encode("latin-1"),
             scope.get("query_string", b""),
             state.settings.library_versions,
         )
@@ -84,10 +84,3 @@ class ResponseHitMiddleware:
         headers = [*_HIT_HEADERS, (b"content-length", str(len(body)).encode())]
         await send({"type": "http.response.start", "status": 200, "headers": headers})
         await send({"type": "http.response.body", "body": body})
-
-
-def _header(scope: Scope, name: bytes) -> bytes:
-    for key, value in scope.get("headers", []):
-        if key == name:
-            return bytes(value)
-    return b""

@@ -43,7 +43,7 @@ class RequestIdMiddleware(HttpMiddleware):
     """Accept a well-formed X-Request-ID or make one; echo it on the response."""
 
     async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
-        given = _header(scope, b"x-request-id")
+        given = header(scope, b"x-request-id")
         rid = given if given and _SAFE_ID.match(given) else uuid.uuid4().hex
         scope.setdefault("state", {})["request_id"] = rid
 
@@ -89,8 +89,8 @@ class BodyLimitMiddleware(HttpMiddleware):
 
     async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
         limit = self.by_path.get(scope.get("path", ""), self.max_bytes)
-        declared = _header(scope, b"content-length")
-        if declared is not None and declared.isdigit() and int(declared) > limit:
+        declared = header(scope, b"content-length")
+        if declared.isdigit() and int(declared) > limit:
             await _too_large(scope, send, limit)
             return
         # Read the whole body before the app runs: FastAPI turns an error raised while it
@@ -311,8 +311,9 @@ class HeaderLimitMiddleware(HttpMiddleware):
         await self.app(scope, receive, send)
 
 
-def _header(scope: Scope, name: bytes) -> str | None:
+def header(scope: Scope, name: bytes) -> str:
+    """The first value of the request header ``name`` (lower case), "" when absent."""
     for key, value in scope.get("headers", []):
         if key == name:
-            return str(value.decode("latin-1"))
-    return None
+            return bytes(value).decode("latin-1")
+    return ""

@@ -43,7 +43,7 @@ from service.api.media import (
     media_type,
     negotiate,
 )
-from service.api.middleware import replay
+from service.api.middleware import header, replay
 from service.api.pictures import diagnostics_picture, filename, forecast_headers, forecast_picture
 from service.api.problems import problem_response
 from service.api.schemas.common import SeriesIn
@@ -73,32 +73,15 @@ class RepresentationMiddleware:
         if path not in OFFERS or scope.get("method") != "POST":
             await self.app(scope, receive, send)
             return
-        content_type = media_type(_header(scope, b"content-type"))
+        content_type = media_type(header(scope, b"content-type"))
         is_csv = content_type == CSV
-        if not (is_csv or content_type in ("", JSON) or content_type.endswith("+json")):
+        refused = _refused_body(content_type, path)
+        if refused is not None:
             await self._problem(
-                scope,
-                receive,
-                send,
-                415,
-                "unsupported_media_type",
-                f"a body of type {content_type[:60]!r} is not accepted here; "
-                f"send {JSON}" + (f" or {CSV}" if path in CSV_BODIES else ""),
-                "headers.content-type",
+                scope, receive, send, 415, "unsupported_media_type", refused, "headers.content-type"
             )
             return
-        if is_csv and path not in CSV_BODIES:
-            await self._problem(
-                scope,
-                receive,
-                send,
-                415,
-                "unsupported_media_type",
-                f"{CSV} bodies are accepted by {', '.join(CSV_BODIES)}",
-                "headers.content-type",
-            )
-            return
-        chosen = negotiate(_header(scope, b"accept"), OFFERS[path])
+        chosen = negotiate(header(scope, b"accept"), OFFERS[path])
         if chosen is None:
             await self._problem(
                 scope,
@@ -268,11 +251,16 @@ class RepresentationMiddleware:
         await response(scope, receive, send)
 
 
-def _header(scope: Scope, name: bytes) -> str:
-    for key, value in scope.get("headers", []):
-        if key == name:
-            return bytes(value).decode("latin-1")
-    return ""
+def _refused_body(content_type: str, path: str) -> str | None:
+    """Why a body of this media type is not accepted on ``path`` (a 415), or None."""
+    if content_type == CSV:
+        if path in CSV_BODIES:
+            return None
+        return f"{CSV} bodies are accepted by {', '.join(CSV_BODIES)}"
+    if content_type in ("", JSON) or content_type.endswith("+json"):
+        return None
+    also = f" or {CSV}" if path in CSV_BODIES else ""
+    return f"a body of type {content_type[:60]!r} is not accepted here; send {JSON}{also}"
 
 
 async def _read(receive: Receive) -> bytes:
