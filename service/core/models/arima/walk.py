@@ -135,12 +135,16 @@ class StepwiseWalk:
             if constant != orders.constant:
                 yield orders.with_constant(constant)
 
+    def _starts(self, starts: list[tuple[int, int, int, int]]) -> list[ArimaOrders]:
+        """The walk's admissible starting orders (first constant setting); FitError if none."""
+        found = [o for s in starts if (o := self.orders(s, self.constants[0])) is not None]
+        if not found:
+            raise FitError("no admissible order within the search limits", field="model.order")
+        return found
+
     def css_walk(self, starts: list[tuple[int, int, int, int]]) -> None:
         """The stepwise walk on CSS AICc: move to the first better neighbour until none is."""
-        candidates = [o for s in starts if (o := self.orders(s, self.constants[0])) is not None]
-        if not candidates:
-            raise FitError("no admissible order within the search limits", field="model.order")
-        best = min(candidates, key=self.css_score)
+        best = min(self._starts(starts), key=self.css_score)
         improved = True
         while improved and len(self.css) < MAX_MODELS:
             improved = False
@@ -151,10 +155,7 @@ class StepwiseWalk:
 
     def exact_walk(self, starts: list[tuple[int, int, int, int]]) -> Estimate:
         """The unscreened stepwise walk with an exact fit of every candidate (for comparison)."""
-        candidates = [o for s in starts if (o := self.orders(s, self.constants[0])) is not None]
-        if not candidates:
-            raise FitError("no admissible order within the search limits", field="model.order")
-        best = min(candidates, key=self.exact_score)
+        best = min(self._starts(starts), key=self.exact_score)
         improved = True
         while improved and len(self.exact) < MAX_MODELS:
             improved = False
