@@ -217,6 +217,8 @@ def test_an_unsupported_body_type_is_a_415(client: TestClient, content_type: str
     problem = response.json()
     assert problem["code"] == "unsupported_media_type"
     assert problem["errors"][0]["field"] == "headers.content-type"
+    # The detail says what to send instead: JSON, or CSV where the endpoint takes it.
+    assert problem["detail"].endswith("send application/json or text/csv")
 
 
 def test_batches_take_no_csv_body(client: TestClient) -> None:
@@ -224,6 +226,7 @@ def test_batches_take_no_csv_body(client: TestClient) -> None:
         "/v1/forecast-batches", content=b"a,b\n", headers={"content-type": "text/csv"}
     )
     assert response.status_code == 415
+    assert response.json()["detail"].startswith("text/csv bodies are accepted by /v1/forecasts")
 
 
 @pytest.mark.parametrize("path", [FORECASTS, "/v1/diagnostics", "/v1/backtests"])
