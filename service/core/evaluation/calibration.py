@@ -7,7 +7,8 @@ Scores pooled over origins and steps give a per-level factor q, the ⌈(n+1)c⌉
 (split conformal: Vovk, Gammerman & Shafer 2005; Angelopoulos & Bates 2021); the calibrated
 interval is point − q·(point − lower) .. point + q·(upper − point), so asymmetric model
 intervals keep their shape and only their width is corrected; q is kept in the level's
-``factor_bounds``.
+``factor_bounds``. Below NARROW_BELOW a factor under one is taken only as far as the evidence
+goes: to the quantile at the upper one-sided confidence limit of the level (``narrowing``).
 """
 
 from __future__ import annotations
@@ -16,6 +17,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+import pandas as pd
 
 from service.core.evaluation.origins import MINIMUM_ORIGINS
 from service.core.evaluation.records import ModelBacktest
@@ -28,16 +30,49 @@ a model's intervals. Never narrowing there: the backtest windows overlap and end
 forecast origin, so a factor below one rests on little independent evidence, and a miss costs
 more than width (the interval score charges 2/α per unit outside)."""
 NARROW_BELOW = 0.9
-NARROW_FLOOR = 0.9
-"""Below NARROW_BELOW a factor may narrow the intervals to NARROW_FLOOR of their width: the
-80 % intervals over-covered (83 % over the development rows) while 95 % was right, and a
-miss costs less there. The bounds measured are in tests/benchmarks/RESULTS.md."""
+NARROW_FLOOR = 0.5
+"""Below NARROW_BELOW a factor may narrow the intervals, at most to half their width, and only
+as far as ``narrowing`` finds evidence for: a miss costs less there, and the 80 % intervals of
+the development rows over-covered by frequency (yearly, monthly, daily, weekly) under the
+earlier fixed floor of 0.9. The rules measured are in tests/benchmarks/RESULTS.md."""
+EVIDENCE_Z = 1.645
+"""One-sided 95 % normal quantile: a narrowing must rest on a backtest coverage significantly
+above the level, as in a test of unconditional coverage (Kupiec 1995)."""
 
 
 def factor_bounds(level: float) -> tuple[float, float]:
     """The range a level's conformal factor is kept in."""
     low, high = FACTOR_BOUNDS
     return (NARROW_FLOOR if level < NARROW_BELOW else low), high
+
+
+def narrowing(scores: np.ndarray, level: float, targets: int) -> float:
+    """The smallest factor below one the backtest supports at ``level`` (1: none).
+
+    With ``targets`` distinct actual values behind the scores, the coverage the backtest
+    measures has a standard error of about sqrt(c(1 − c)/targets); the factor narrows no
+    further than the quantile at c + EVIDENCE_Z standard errors, so intervals that covered
+    more than the level by chance alone keep their width.
+    """
+    upper = level + EVIDENCE_Z * math.sqrt(level * (1.0 - level) / max(targets, 1))
+    if upper >= 1.0 or scores.size == 0:
+        return 1.0
+    return min(1.0, conformal_quantile(scores, upper))
+
+
+def targets(backtest: ModelBacktest, index: pd.Index | None) -> int:
+    """Distinct actual values the origins' windows cover (each counted once however many
+    overlapping windows score it); without the series' index, every score counts."""
+    every = sum(int(np.isfinite(f.actual).sum()) for f in backtest.forecasts)
+    if index is None:
+        return every
+    found = index.get_indexer([f.origin for f in backtest.forecasts])
+    if (found < 0).any():
+        return every
+    seen: set[int] = set()
+    for position, f in zip(found, backtest.forecasts, strict=True):
+        seen.update((int(position) + 1 + np.flatnonzero(np.isfinite(f.actual))).tolist())
+    return len(seen)
 
 
 @dataclass(frozen=True)
@@ -101,10 +136,18 @@ def conformal_quantile(scores: np.ndarray, level: float) -> float:
     return float(np.sort(scores)[rank - 1])
 
 
-def calibrate(backtest: ModelBacktest, minimum_origins: int = MINIMUM_ORIGINS) -> Calibration:
-    """Measured coverage per level, and conformal factors when there are enough origins."""
+def calibrate(
+    backtest: ModelBacktest,
+    minimum_origins: int = MINIMUM_ORIGINS,
+    index: pd.Index | None = None,
+) -> Calibration:
+    """Measured coverage per level, and conformal factors when there are enough origins.
+
+    ``index`` is the series' time index (the origins are found in it to count the distinct
+    actual values the scores rest on)."""
     origins = len(backtest.forecasts)
     enough = backtest.ok and origins >= minimum_origins
+    distinct = targets(backtest, index) if backtest.forecasts else 0
     levels = []
     for level in backtest.levels:
         s = nonconformity(backtest, level)
@@ -112,6 +155,8 @@ def calibrate(backtest: ModelBacktest, minimum_origins: int = MINIMUM_ORIGINS) -
         factor = conformal_quantile(s, level)
         if np.isfinite(factor):
             factor = float(np.clip(factor, *factor_bounds(level)))
+            if factor < 1.0:
+                factor = max(factor, narrowing(s, level, distinct))
         applied = factor if enough and np.isfinite(factor) else 1.0
         calibrated = float(np.mean(s <= applied)) if s.size else float("nan")
         levels.append(LevelCalibration(level, empirical, factor, int(s.size), calibrated))
@@ -119,7 +164,7 @@ def calibrate(backtest: ModelBacktest, minimum_origins: int = MINIMUM_ORIGINS) -
         reason = (
             f"split-conformal factors from {origins} rolling origins, applied to widen "
             f"intervals that covered too little (narrowing only below {NARROW_BELOW:.0%}, "
-            f"by at most {1 - NARROW_FLOOR:.0%})"
+            "where the backtest covered significantly more than the level)"
         )
     else:
         reason = (

@@ -315,16 +315,16 @@ def _calibrate(
     """Coverage and factors from the dense backtest, or from an earlier-starting one when the
     selection origins leave too little room (short series: the extra fits are cheap there)."""
     if len(dense.forecasts) >= MINIMUM_ORIGINS:
-        return cal.calibrate(dense)
+        return cal.calibrate(dense, index=y.index)
     longer = calibration_plan(len(y), horizon, profile.benchmark_period)
     if longer is None:
-        return cal.calibrate(dense)
+        return cal.calibrate(dense, index=y.index)
     results = run(
         y, specs, profile.benchmark_period, longer, levels, map_fn, model_periods(specs, profile)
     )
     if not all(r.ok for r in results):
-        return cal.calibrate(dense)
-    return cal.calibrate(_merged(results, range(len(results)), weights))
+        return cal.calibrate(dense, index=y.index)
+    return cal.calibrate(_merged(results, range(len(results)), weights), index=y.index)
 
 
 def backtest_auto(

@@ -11,7 +11,9 @@ from service.core.evaluation.calibration import (
     apply,
     calibrate,
     conformal_quantile,
+    narrowing,
     nonconformity,
+    targets,
 )
 from service.core.evaluation.records import ModelBacktest, OriginForecast
 from service.core.models.base import Forecast
@@ -68,16 +70,42 @@ def test_calibration_restores_coverage_of_too_narrow_intervals() -> None:
     assert np.mean(np.abs(fresh) <= width) == pytest.approx(0.8, abs=0.06)
 
 
-def test_too_wide_intervals_are_reported_and_narrowed_only_a_little_below_90() -> None:
+def test_too_wide_intervals_are_narrowed_below_90_as_far_as_the_evidence_goes() -> None:
     rng = np.random.default_rng(12)
     # The model believes sd = 2 but errors have sd = 1: its 80 % interval covers ~99 %.
     bt = synthetic(rng.normal(scale=1.0, size=(8, 12)), half_width=2 * Z80)
     result = calibrate(bt)
     assert result.applied
     assert result.levels[0].empirical > 0.95
-    # The conformal quantile is about 0.5, but the factor stops at NARROW_FLOOR = 0.9.
-    assert conformal_quantile(nonconformity(bt, 0.8), 0.8) < 0.7
-    assert result.factor(0.8) == NARROW_FLOOR
+    scores = nonconformity(bt, 0.8)
+    q = conformal_quantile(scores, 0.8)
+    assert q < 0.7
+    # Narrowed past the old fixed floor of 0.9, but not all the way to the conformal quantile:
+    # only to the quantile at the upper confidence limit of the 80 % level (96 scores).
+    assert q < result.factor(0.8) < 0.9
+    assert result.factor(0.8) >= NARROW_FLOOR
+    assert result.factor(0.8) == narrowing(scores, 0.8, 96)
+
+
+def test_overlapping_windows_are_less_evidence_than_their_scores() -> None:
+    rng = np.random.default_rng(12)
+    bt = synthetic(rng.normal(scale=1.0, size=(8, 12)), half_width=2 * Z80)
+    index = pd.date_range("2020-01-01", periods=40, freq="MS")
+    # Eight windows of 12 months starting a month apart cover 8 + 11 distinct months.
+    assert targets(bt, index) == 19
+    assert targets(bt, None) == 96
+    scores = nonconformity(bt, 0.8)
+    assert narrowing(scores, 0.8, 19) > narrowing(scores, 0.8, 96)
+    assert calibrate(bt, index=index).factor(0.8) == narrowing(scores, 0.8, 19)
+
+
+def test_intervals_covering_a_little_more_than_claimed_keep_their_width() -> None:
+    # 24 scores, 21 inside (87.5 %): above 80 %, but within chance of it for 24 targets.
+    scores = np.concatenate([np.linspace(0.1, 0.95, 21), [1.2, 1.5, 2.0]])
+    assert conformal_quantile(scores, 0.8) < 1.0
+    assert narrowing(scores, 0.8, 24) == 1.0
+    # Too few targets for any evidence: the confidence limit passes 100 %.
+    assert narrowing(np.full(5, 0.1), 0.8, 5) == 1.0
 
 
 def test_too_wide_intervals_at_95_are_never_narrowed() -> None:
