@@ -30,7 +30,7 @@ from service.core.models.base import parameter as param
 from service.core.models.intervals import Interval, normal_intervals
 from service.core.models.labels import model_label
 from service.core.models.simple import ljung_box_summary, timed
-from service.core.models.theta_fit import fitted_share, ols_slope, running_slopes
+from service.core.models.theta_fit import fitted_share, ols_slope, running_slopes, ses_levels
 
 MULTIPLICATIVE = "multiplicative"
 ADDITIVE = "additive"
@@ -111,16 +111,6 @@ class ThetaSpec:
                 )
             )
         return (1.0,), MULTIPLICATIVE
-
-
-def ses_levels(values: np.ndarray, alpha: float) -> np.ndarray:
-    """SES levels ℓ_0..ℓ_{T−1} started at the first observation (ℓ_0 = y_0)."""
-    levels = np.empty(values.size)
-    level = values[0]
-    for i, v in enumerate(values):
-        level = level + alpha * (v - level) if i else v
-        levels[i] = level
-    return levels
 
 
 def _sse(alpha: float, values: np.ndarray) -> float:

@@ -40,9 +40,9 @@ def running_slopes(values: np.ndarray) -> np.ndarray:
     return out
 
 
-def _levels(values: np.ndarray, alpha: float) -> np.ndarray:
-    """Theta's SES levels (theta.ses_levels, ℓ_0 = y_0) by a linear filter: the same levels
-    without a Python loop over the points, for the search that evaluates them many times."""
+def ses_levels(values: np.ndarray, alpha: float) -> np.ndarray:
+    """SES levels ℓ_0..ℓ_{T−1} started at the first observation (ℓ_0 = y_0), by a linear
+    filter (ℓ_t = αy_t + (1−α)ℓ_{t−1}): the α searches evaluate it many times."""
     from scipy.signal import lfilter
 
     start = np.array([(1.0 - alpha) * values[0]])
@@ -51,7 +51,7 @@ def _levels(values: np.ndarray, alpha: float) -> np.ndarray:
 
 def _profile(values: np.ndarray, slopes: np.ndarray, alpha: float) -> tuple[float, float]:
     """(sum of squared one-step errors, share) at ``alpha`` with the best share in [0, 1]."""
-    levels = _levels(values, alpha)
+    levels = ses_levels(values, alpha)
     rest = values[1:] - levels[:-1]
     t = np.arange(1, values.size, dtype=float)
     carried = slopes * (1.0 - (1.0 - alpha) ** t) / alpha
