@@ -101,7 +101,7 @@ class Calibration:
         if not self.applied:
             return 1.0
         for item in self.levels:
-            if math.isclose(item.coverage, level):
+            if math.isclose(item.coverage, level) and math.isfinite(item.factor):
                 return item.factor
         return 1.0
 
@@ -153,7 +153,9 @@ def calibrate(
         s = nonconformity(backtest, level)
         empirical = float(np.mean(s <= 1.0)) if s.size else float("nan")
         factor = conformal_quantile(s, level)
-        if np.isfinite(factor):
+        if not np.isnan(factor):
+            # An infinite score (a zero-width interval that missed: naive after a run of
+            # equal values) still stops at the bound, like any score above it.
             factor = float(np.clip(factor, *factor_bounds(level)))
             if factor < 1.0:
                 factor = max(factor, narrowing(s, level, distinct))

@@ -138,3 +138,20 @@ def test_apply_scales_each_side_and_keeps_levels_nested() -> None:
     # The 95 % interval is widened to contain the rescaled 80 % one.
     assert out.intervals[1].lower == pytest.approx([6.0, 4.0])
     assert out.intervals[1].upper == pytest.approx([12.0, 16.0])
+
+
+def test_zero_width_intervals_that_missed_stop_at_the_bound() -> None:
+    # Naive after a run of zeros has intervals of zero width; when the actual values then
+    # leave them, the scores are infinite and the factor stops at the upper bound.
+    errors = np.array([[0.0, 0.0, 0.0]] * 4 + [[5.0, 6.0, 4.0]] * 3)
+    result = calibrate(synthetic(errors, half_width=0.0, level=0.95))
+    assert result.applied
+    assert result.factor(0.95) == 3.0
+    assert np.isinf(nonconformity(synthetic(errors, 0.0, 0.95), 0.95)).any()
+
+
+def test_a_level_without_scores_keeps_the_model_interval() -> None:
+    bt = synthetic(np.full((6, 3), np.nan), half_width=1.0)
+    result = calibrate(bt)
+    assert result.applied and np.isnan(result.levels[0].factor)
+    assert result.factor(0.8) == 1.0

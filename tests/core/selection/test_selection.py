@@ -294,6 +294,18 @@ def test_intermittent_demand_is_compared_with_croston() -> None:
     assert np.all(result.forecast.point >= 0)
 
 
+def test_sales_that_start_after_a_run_of_zeros_get_finite_intervals() -> None:
+    # A product launched late: naive's intervals have zero width over the zeros and miss at
+    # every backtest origin there; the calibration factor stops at its bound (it was inf).
+    rng = np.random.default_rng(0)
+    values = np.r_[np.zeros(40), 5 + rng.normal(size=9)]
+    y = pd.Series(values, index=pd.date_range("1950", periods=49, freq="YS"))
+    result = select(y, 1, 12)
+    for interval in result.forecast.intervals:
+        assert np.all(np.isfinite(interval.lower)) and np.all(np.isfinite(interval.upper))
+    assert all(np.isfinite(level.factor) for level in result.selection.calibration.levels)
+
+
 def test_a_trending_series_gets_the_combination_without_drift() -> None:
     rng = np.random.default_rng(21)
     y = monthly(20 + 0.4 * np.arange(60.0) + rng.normal(size=60))
