@@ -390,3 +390,20 @@ def test_six_points_are_answered_by_auto_with_a_summary(client: TestClient) -> N
     assert data["selection"]["chosen"] == data["model"]["label"]
     assert "simple_families_only" in [w["code"] for w in data["warnings"]]
     assert data["summary"].endswith(".")
+
+
+def test_auto_ranks_by_every_metric_a_backtest_ranks_by(client: TestClient) -> None:
+    # The two endpoints share one list, the core's: a backtest ranked by MAE can be followed
+    # by a forecast chosen by MAE.
+    from typing import get_args
+
+    from service.api.schemas.common import RankingMetric
+    from service.core.evaluation.scoring import POINT_METRICS
+
+    assert get_args(RankingMetric) == POINT_METRICS
+    body = demo_request("orders", None, horizon=4)
+    body["series"]["values"] = body["series"]["values"][:40]
+    body["metric"] = "mae"
+    answer = client.post(PATH, json=body)
+    assert answer.status_code == 200, answer.text
+    assert answer.json()["selection"]["metric"] == "mae"

@@ -13,6 +13,7 @@ from service.api.schemas.common import (
     OriginStep,
     Out,
     PositiveWhole,
+    RankingMetric,
     SeriesIn,
     SpecificationJson,
     SpecificationObject,
@@ -38,9 +39,7 @@ class BacktestRequest(Strict):
     coverage: CoverageLevels = Field(
         default_factory=lambda: [0.8, 0.95], min_length=1, max_length=10
     )
-    metric: Literal["mase", "smape", "rmse", "mae"] = Field(
-        "mase", description="The score that ranks the models."
-    )
+    metric: RankingMetric = Field("mase", description="The score that ranks the models.")
 
 
 class ScoresOut(Out):

@@ -52,6 +52,10 @@ TimestampList = Annotated[
 ]
 
 
+RankingMetric = Literal["mase", "smape", "rmse", "mae"]
+"""The point scores a backtest (and auto's selection) can rank by: core POINT_METRICS."""
+
+
 # Checked by the core (core.checks.check_coverage names the index); stated here for the schema.
 CoverageLevels = Annotated[
     list[float],

@@ -13,6 +13,7 @@ from service.api.schemas.common import (
     Out,
     PositiveWhole,
     Provenance,
+    RankingMetric,
     SeriesIn,
     Sparse,
     SpecificationJson,
@@ -101,7 +102,7 @@ class ForecastRequest(Strict):
     transform: TransformField = "none"
     regressors: list[RegressorIn] | None = Field(None, max_length=20)
     include: list[Literal["fitted", "residuals"]] = Field(default_factory=list)
-    metric: Literal["mase", "smape", "rmse"] = Field(
+    metric: RankingMetric = Field(
         "mase", description="With `auto`: the backtest score that ranks candidates."
     )
     lower_bound: float | None = Field(
