@@ -65,7 +65,9 @@ class ArimaSpec:
         "constant: auto (searched with searched orders; a mean for fixed orders without "
         "differencing), none, mean (d + D = 0) or drift (d + D = 1); differencing left to the "
         "search is set to match mean or drift. No constant when d + D >= 2.",
-        "Seasonal terms need at least two full seasons of data.",
+        "Seasonal terms need at least two full seasons of data. Searched seasonal AR and MA "
+        "orders span at most 26 lags (P, Q <= 1 for a period of 14 to 26, none above: only "
+        "the seasonal difference); a seasonal_order given is kept.",
     )
 
     renamed: ClassVar[Mapping[str, str]] = {"include_constant": "constant"}

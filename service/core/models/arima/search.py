@@ -115,6 +115,15 @@ def search_orders(
                 "seasonal orders not searched",
             )
         )
+    elif seasonal_ok and seasonal_order is None and _seasonal_cap(m, limits) == 0:
+        notes.append(
+            FitWarning(
+                "seasonal_terms_skipped",
+                f"a season of {m} steps is too long for seasonal AR and MA terms (one fit "
+                "can take minutes); only the seasonal difference was considered: "
+                "harmonic_regression and mstl model long seasons",
+            )
+        )
     choice = _differencing(values, m if seasonal_ok else 1, order, seasonal_order, limits)
     if differences is not None:
         choice = _matched(choice, differences, order, seasonal_order)
@@ -142,11 +151,11 @@ def search_orders(
         m,
         d,
         D,
-        _bounds(order, seasonal_order, seasonal_ok, limits),
+        _bounds(order, seasonal_order, seasonal_ok, limits, m),
         _constant_options(fit_constant, constant_allowed),
         limits,
     )
-    starts = _starting_points(order, seasonal_order, seasonal_ok, m)
+    starts = _starting_points(order, seasonal_order, seasonal_ok and _seasonal_cap(m, limits) > 0)
     clock = time.perf_counter()
     if effort == "quick":
         walk.css_walk(starts)
@@ -211,12 +220,19 @@ def _matched(
     return DifferencingChoice(d, D, f"d + D = {total}, as the constant asks")
 
 
+def _seasonal_cap(m: int, limits: SearchLimits) -> int:
+    """The largest seasonal AR or MA order searched at period ``m`` (``seasonal_lags``)."""
+    return limits.seasonal_lags // m if m > 1 else 0
+
+
 def _bounds(
     order: tuple[int, int, int] | None,
     seasonal_order: tuple[int, int, int] | None,
     seasonal_ok: bool,
     limits: SearchLimits,
+    m: int,
 ) -> Bounds:
+    cap = _seasonal_cap(m, limits)
     lo = [0, 0, 0, 0]
     hi = [limits.max_p, limits.max_q, limits.max_P, limits.max_Q]
     if order is not None:
@@ -227,6 +243,9 @@ def _bounds(
         lo[3] = hi[3] = seasonal_order[2]
     elif not seasonal_ok:
         hi[2] = hi[3] = 0
+    else:
+        hi[2] = min(hi[2], cap)
+        hi[3] = min(hi[3], cap)
     return Bounds((lo[0], lo[1], lo[2], lo[3]), (hi[0], hi[1], hi[2], hi[3]))
 
 
@@ -241,11 +260,10 @@ def _constant_options(fit_constant: bool | None, allowed: bool) -> tuple[bool, .
 def _starting_points(
     order: tuple[int, int, int] | None,
     seasonal_order: tuple[int, int, int] | None,
-    seasonal_ok: bool,
-    m: int,
+    seasonal_terms: bool,
 ) -> list[tuple[int, int, int, int]]:
-    """H&K's four initial models (seasonal parts only when there is a season)."""
-    s = 1 if seasonal_ok and m > 1 else 0
+    """H&K's four initial models (seasonal parts only where seasonal terms are searched)."""
+    s = 1 if seasonal_terms else 0
     points = [(2, 2, s, s), (0, 0, 0, 0), (1, 0, s, 0), (0, 1, 0, s)]
     out = []
     for p, q, P, Q in points:

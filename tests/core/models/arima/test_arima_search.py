@@ -146,3 +146,32 @@ def test_exact_fit_creeping_to_an_ma_unit_root_stops_at_the_boundary(
     # A tight (final) fit is never stopped there.
     again = dense_fit(shape, w, None, np.zeros(2), 30, tight=True)
     assert np.array_equal(again.arma, tight.arma) and again.evaluations == tight.evaluations
+
+
+def seasonal_walk(m: int, n: int, seed: int = 0) -> np.ndarray:
+    rng = np.random.default_rng(seed)
+    t = np.arange(n)
+    return 100 + 10 * np.sin(2 * np.pi * t / m) + 0.5 * np.cumsum(rng.normal(size=n))
+
+
+def test_long_seasons_keep_the_seasonal_difference_without_ar_or_ma_terms() -> None:
+    # 500 weekly points with a yearly season: the search took two minutes with P = 1 at m = 52.
+    found = search_orders(seasonal_walk(52, 500), 52)
+    assert found.orders.D == 1 and found.orders.P == found.orders.Q == 0
+    assert all(c.orders.P == c.orders.Q == 0 for c in found.table)
+    assert any(w.code == "seasonal_terms_skipped" for w in found.warnings)
+
+
+def test_seasonal_orders_stay_within_the_lag_limit() -> None:
+    limits = SearchLimits()
+    found = search_orders(seasonal_walk(24, 200), 24, limits=limits)
+    assert all(24 * max(c.orders.P, c.orders.Q) <= limits.seasonal_lags for c in found.table)
+    assert not any(w.code == "seasonal_terms_skipped" for w in found.warnings)
+    monthly = search_orders(seasonal_walk(12, 120), 12)
+    assert limits.seasonal_lags // 12 == limits.max_P == 2
+    assert monthly.orders.D + monthly.orders.P + monthly.orders.Q >= 1
+
+
+def test_a_seasonal_order_given_is_kept_whatever_the_period() -> None:
+    found = search_orders(seasonal_walk(52, 160), 52, seasonal_order=(0, 1, 1))
+    assert (found.orders.P, found.orders.D, found.orders.Q) == (0, 1, 1)
