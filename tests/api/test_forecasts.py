@@ -407,3 +407,18 @@ def test_auto_ranks_by_every_metric_a_backtest_ranks_by(client: TestClient) -> N
     answer = client.post(PATH, json=body)
     assert answer.status_code == 200, answer.text
     assert answer.json()["selection"]["metric"] == "mae"
+
+
+def test_a_jump_that_explodes_every_log_scale_forecast_is_refused_with_the_way_out(
+    client: TestClient,
+) -> None:
+    rng = np.random.default_rng(1)
+    values = 50 + rng.normal(size=13)
+    values[-1] = 5000
+    series = {"start": "1950-01-01", "frequency": "P1Y", "values": values.tolist()}
+    refused = client.post(PATH, json={"series": series, "horizon": 24, "transform": "log"})
+    assert refused.status_code == 422
+    detail = refused.json()["detail"]
+    assert "naive, on the log scale" in detail and "without the transform" in detail
+    answered = client.post(PATH, json={"series": series, "horizon": 24})
+    assert answered.status_code == 200, answered.text

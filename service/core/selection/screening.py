@@ -9,6 +9,7 @@ import dataclasses
 import re
 from collections.abc import Sequence
 
+import numpy as np
 import pandas as pd
 
 from service.core.errors import FitError
@@ -16,7 +17,7 @@ from service.core.evaluation.origins import Plan
 from service.core.evaluation.records import ModelBacktest, rank
 from service.core.models.base import FitWarning, Forecast, Specification
 from service.core.models.intervals import Interval
-from service.core.models.plausibility import implausible
+from service.core.models.plausibility import implausible, point_implausible
 from service.core.selection.choice import Choice, choose, disjoint_windows
 
 
@@ -39,7 +40,7 @@ def plausible_choice(
             (i for i, r in enumerate(results) if r.ok), key=lambda i: (results[i].score(metric), i)
         )
         if not order:
-            raise FitError("no candidate could be fitted to this series", field="series.values")
+            raise FitError(_nothing_left(results), field="series.values")
         ranking = rank(results, metric)
         picked = choose(results, specs, order, metric, ranking, default_set, windows, trim)
         problems = {i: final_problem(results[i], y, horizon, levels) for i in picked.members}
@@ -48,6 +49,29 @@ def plausible_choice(
         for i, why in problems.items():
             if why is not None:
                 results[i] = dataclasses.replace(results[i], failure=why)
+
+
+POINTS_ONLY = frozenset({"naive", "seasonal_naive"})
+"""Screened on their points alone: their intervals are the random walk's own, as wide as its
+steps say, and these forecasts are the last resort (screening their 99 % bounds left a
+13-point series that jumped at its end with no candidate at all)."""
+
+
+def _problem(result: ModelBacktest, forecast: Forecast, history: np.ndarray) -> str | None:
+    if result.specification.get("family") in POINTS_ONLY:
+        return point_implausible(forecast.point, history)
+    return implausible(forecast, history)
+
+
+def _nothing_left(results: Sequence[ModelBacktest]) -> str:
+    """The refusal when every candidate failed, naming the simplest one's reason."""
+    last = next((r for r in results if r.specification.get("family") == "naive"), results[-1])
+    hint = (
+        "; without the transform the naive forecast would answer"
+        if ("transform" in last.specification)
+        else ""
+    )
+    return f"no candidate could be fitted to this series ({last.label}: {last.failure}){hint}"
 
 
 def final_problem(
@@ -60,7 +84,7 @@ def final_problem(
         final = result.delivered.forecast(horizon, levels)
     except (ValueError, ArithmeticError, LookupError) as exc:
         return f"its forecast from the whole series failed ({exc})"
-    why = implausible(final, y.to_numpy(dtype=float))
+    why = _problem(result, final, y.to_numpy(dtype=float))
     return None if why is None else f"{why} (from the whole series)"
 
 
@@ -72,7 +96,7 @@ def screened(result: ModelBacktest, y: pd.Series) -> ModelBacktest:
     for f in result.forecasts:
         intervals = tuple(Interval(v, f.lower[v], f.upper[v]) for v in result.levels)
         forecast = Forecast(pd.RangeIndex(len(f.point)), f.point, intervals)
-        why = implausible(forecast, values[: y.index.get_loc(f.origin)])
+        why = _problem(result, forecast, values[: y.index.get_loc(f.origin)])
         if why is not None:
             return dataclasses.replace(result, failure=f"{why} at {f.origin.isoformat()}")
     return result

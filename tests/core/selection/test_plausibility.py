@@ -80,3 +80,26 @@ def test_a_member_whose_final_forecast_explodes_is_left_out_and_the_choice_made_
     members = described.residual_diagnostics.members or (described.label,)
     assert out.selection.chosen == described.label
     assert failed[0] not in members
+
+
+def test_naive_is_screened_on_its_points_alone() -> None:
+    # The same forecast: bounds far outside the band, points inside. Naive's wide bounds are
+    # the random walk's own and it is the last resort, so only its points are judged.
+    from service.core.evaluation.records import ModelBacktest, OriginForecast
+    from service.core.selection.screening import screened
+
+    y = pd.Series(np.linspace(10.0, 12.0, 20), index=pd.date_range("2000", periods=20, freq="YS"))
+    wide = OriginForecast(
+        origin=y.index[15],
+        actual=y.to_numpy()[15:18],
+        point=np.full(3, 11.5),
+        lower={0.99: np.full(3, -1e4)},
+        upper={0.99: np.full(3, 1e4)},
+        scale=1.0,
+    )
+
+    def record(family: str) -> ModelBacktest:
+        return ModelBacktest({"family": family}, family, (wide,), (0.99,), 0.0, 0.0)
+
+    assert screened(record("naive"), y).ok
+    assert not screened(record("ets"), y).ok
