@@ -53,8 +53,7 @@ def plausible_choice(
 
 POINTS_ONLY = frozenset({"naive", "seasonal_naive"})
 """Screened on their points alone: their intervals are the random walk's own, as wide as its
-steps say, and these forecasts are the last resort (screening their 99 % bounds left a
-13-point series that jumped at its end with no candidate at all)."""
+steps say over a long horizon, and these forecasts are the last resort of the choice."""
 
 
 def _problem(result: ModelBacktest, forecast: Forecast, history: np.ndarray) -> str | None:

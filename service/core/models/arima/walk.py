@@ -39,7 +39,7 @@ class SearchLimits:
     seasonal_lags: int = 26
     """Seasonal AR and MA orders stay within this many lags (m·P, m·Q): up to 2 for periods up
     to 13, 1 up to 26 (hourly data's 24), none beyond (weekly data's 52): the filter's state
-    grows with the lags and its cost with their cube (tests/benchmarks/RESULTS.md)."""
+    grows with the lags and a fit's cost steeply with it (tests/benchmarks/RESULTS.md)."""
     max_order: int = 5
     max_d: int = 2
     max_D: int = 1
