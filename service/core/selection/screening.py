@@ -65,12 +65,10 @@ def _problem(result: ModelBacktest, forecast: Forecast, history: np.ndarray) -> 
 def _nothing_left(results: Sequence[ModelBacktest]) -> str:
     """The refusal when every candidate failed, naming the simplest one's reason."""
     last = next((r for r in results if r.specification.get("family") == "naive"), results[-1])
-    hint = (
-        "; without the transform the naive forecast would answer"
-        if ("transform" in last.specification)
-        else ""
-    )
-    return f"no candidate could be fitted to this series ({last.label}: {last.failure}){hint}"
+    why = f"no candidate could be fitted to this series ({last.label}: {last.failure})"
+    if "transform" in last.specification:
+        why += "; without the transform the naive forecast would answer"
+    return why
 
 
 def final_problem(
