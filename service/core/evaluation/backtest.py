@@ -1,11 +1,13 @@
 """Rolling-origin evaluation that does not peek.
 
-Each specification is fitted ONCE on the data before the first origin; its parameters are then
+Each specification is fitted on the data before the first origin; its parameters are then
 held fixed and re-filtered (``fitted.refilter``) forward through the later origins (DESIGN,
-'Backtests must not peek'). Origins end at the last point: the last window covers the final
-``horizon`` points and earlier origins lie ``step`` points apart. ETS, ARIMA, their transforms and
-combinations forecast from all the later origins in one pass over the series
-(``models.base.origin_forecasts``: the same numbers as one re-filter per origin).
+'Backtests must not peek'), or estimated again at the positions ``Task.refit_at`` names (the
+selection's origins: each origin forecasts from the latest estimate made before it, as the
+delivered forecast comes from an estimate on all the data). Origins end at the last point: the
+last window covers the final ``horizon`` points and earlier origins lie ``step`` points apart.
+ETS, ARIMA, their transforms and combinations forecast from several origins in one pass over
+the series (``models.base.origin_forecasts``: the same numbers as one re-filter per origin).
 """
 
 from __future__ import annotations
@@ -65,10 +67,14 @@ class Task:
     on the whole series and re-estimates it before the first origin (only the parameters are
     kept from peeking); "early" settles it before the first origin, as scored, and
     re-estimates it on the whole series (for a costly search: ARIMA's). "" fits nothing more."""
+    refit_at: tuple[int, ...] = ()
+    """Positions after the first estimate where the settled structure is estimated again on the
+    points before them; each origin forecasts from the latest estimate at or before it."""
 
 
 def evaluate(task: Task) -> ModelBacktest:
-    """Fit once before the first origin, re-filter through the rest; failures become data."""
+    """Fit before the first origin (and at ``refit_at``), re-filter through the rest;
+    failures become data."""
     spec, y, plan = task.specification, task.y, task.plan
     caught: list[FitWarning] = []
     label = spec.family
@@ -84,19 +90,17 @@ def evaluate(task: Task) -> ModelBacktest:
             fitted = scored.fit(y.iloc[:fit_end], task.seasonal_period)
             if task.settle == "early":
                 delivered = settled_specification(fitted).fit(y, task.seasonal_period)
+            estimates = [(fit_end, fitted), *_estimated_again(fitted, y, fit_end, task)]
             fit_seconds = time.perf_counter() - start
             label = label_of(fitted)
             start = time.perf_counter()
-            # The later origins re-filter the estimates; a family may forecast from all of
-            # them in one pass over the series (the same numbers: base.origin_forecasts), the
-            # estimation's own end among them (one pass instead of a second filter).
             at: dict[int, Forecast] = {}
-            one_pass = callable(getattr(fitted, "origin_forecasts", None))
-            if fit_end in plan.origins and not one_pass:
-                at[fit_end] = fitted.forecast(plan.horizon, task.coverage)
-            later = [origin for origin in plan.origins if origin not in at]
-            moved = origin_forecasts(fitted, y, later, plan.horizon, task.coverage)
-            at.update(zip(later, moved, strict=True))
+            for k, (end, estimate) in enumerate(estimates):
+                until = estimates[k + 1][0] if k + 1 < len(estimates) else None
+                group = [o for o in plan.origins if until is None or o < until]
+                if k > 0:
+                    group = [o for o in group if o >= end]
+                at.update(_forecasts_from(estimate, end, y, group, task))
             forecasts.extend(_one_origin(at[o], y, o, plan.horizon, task) for o in plan.origins)
             refilter_seconds = time.perf_counter() - start
         caught.extend(fitted.warnings)
@@ -116,6 +120,38 @@ def evaluate(task: Task) -> ModelBacktest:
         resolved=resolved_specification(delivered if delivered is not None else fitted),
         delivered=delivered,
     )
+
+
+def _estimated_again(fitted: Any, y: pd.Series, fit_end: int, task: Task) -> list[tuple[int, Any]]:
+    """The settled structure estimated again before each of ``task.refit_at`` (ascending); where
+    that fails, the earlier estimate goes on re-filtering (it forecast there already)."""
+    ends = sorted({p for p in task.refit_at if fit_end < p <= task.plan.origins[-1]})
+    if not ends:
+        return []
+    again = settled_specification(fitted)
+    out: list[tuple[int, Any]] = []
+    for end in ends:
+        try:
+            out.append((end, again.fit(y.iloc[:end], task.seasonal_period)))
+        except (ValueError, ArithmeticError, LookupError, RuntimeError, TypeError):
+            continue
+    return out
+
+
+def _forecasts_from(
+    fitted: Any, end: int, y: pd.Series, origins: list[int], task: Task
+) -> dict[int, Forecast]:
+    """Forecasts from ``origins`` by one estimate re-filtered forward; a family may forecast
+    from all of them in one pass over the series (the same numbers: base.origin_forecasts),
+    the estimation's own end among them (one pass instead of a second filter)."""
+    at: dict[int, Forecast] = {}
+    one_pass = callable(getattr(fitted, "origin_forecasts", None))
+    if end in origins and not one_pass:
+        at[end] = fitted.forecast(task.plan.horizon, task.coverage)
+    later = [origin for origin in origins if origin not in at]
+    moved = origin_forecasts(fitted, y, later, task.plan.horizon, task.coverage)
+    at.update(zip(later, moved, strict=True))
+    return at
 
 
 def label_of(fitted: Any) -> str:
@@ -214,16 +250,28 @@ def run(
     periods: Sequence[int] | None = None,
     fit_end: int | None = None,
     settle: Callable[[Specification], str] | None = None,
+    refit_at: Sequence[int] = (),
 ) -> list[ModelBacktest]:
     """Evaluate every specification over one plan, through ``map_fn`` when given.
 
     ``periods`` overrides the period each specification is fitted with (default
-    ``seasonal_period`` for all); the MASE scale always uses ``seasonal_period``.
+    ``seasonal_period`` for all); the MASE scale always uses ``seasonal_period``;
+    ``refit_at`` as in ``Task``.
     """
     levels = check_coverage(coverage)
     fit_periods = list(periods) if periods is not None else [seasonal_period] * len(specifications)
     tasks = [
-        Task(s, y, p, plan, levels, seasonal_period, fit_end, settle(s) if settle else "")
+        Task(
+            s,
+            y,
+            p,
+            plan,
+            levels,
+            seasonal_period,
+            fit_end,
+            settle(s) if settle else "",
+            tuple(refit_at),
+        )
         for s, p in zip(specifications, fit_periods, strict=True)
     ]
     mapper = map_fn or map

@@ -4,7 +4,7 @@ Rules (stated for DEVELOPERS.md):
 - Within a family the family's own search decides (ETS by AICc over the taxonomy, ARIMA by
   the stepwise AICc search, Theta, STL + ETS for seasons longer than 24, Croston/SBA for
   intermittent series). It runs on the whole series, and the structure it settles on is
-  what the backtest scores, re-estimated before the first origin (ARIMA: its orders are
+  what the backtest scores, re-estimated before each selection origin (ARIMA: its orders are
   settled before the first origin and re-estimated on the whole series; delivered.py). The
   delivered forecast is the scored one: ``selection.chosen`` is the delivered model's label.
 - Across families: ``origins`` (default 3) rolling origins at the requested horizon, ``step``
@@ -12,9 +12,11 @@ Rules (stated for DEVELOPERS.md):
   least max(10, 3m) points before the first origin (10 when non-seasonal); when even one
   origin does not fit, the longest horizon that fits is used, with the warning
   ``backtest_horizon_shortened``. Scored by ``metric`` (mase, default | smape | rmse | mae).
-  Each candidate is estimated once, before the first origin, and re-filtered forward.
+  Each candidate is estimated before the first origin and again before each later selection
+  origin, and re-filtered forward from the latest estimate to the origins between them.
 - Ranking: scaled errors pooled over every origin of the dense plan (the selection origins
-  plus the calibration origins between the first and n − h): more origins, same estimates.
+  plus the calibration origins between the first and n − h): more origins, same estimates
+  (each calibration origin re-filters the latest estimate before it).
 - Choice (choice.py): the combination of every non-benchmark candidate (ETS, Theta, ARIMA,
   the SES/Holt/damped average, ...) weighted by the inverse square of its backtest score, by
   default; a single model only with a 10 % lower score, a majority of origins and >= 5
@@ -137,14 +139,24 @@ def select(
     plan = cuts.plan
 
     periods = model_periods(specs, profile)
-    # One estimation per candidate serves both the ranking (the selection origins) and the
-    # calibration (denser origins between the first and the last): only re-filtering is added.
+    # The estimates at the selection origins serve both the ranking and the calibration
+    # (denser origins between the first and the last): only re-filtering is added.
     evaluation_plan = dense_plan(
         plan,
         calibration_plan(len(y), plan.horizon, profile.benchmark_period, first=plan.origins[0]),
     )
+    # Each candidate is estimated again at the later selection origins: every window is then
+    # forecast from the data before it, as the delivered forecast is from all the data.
     dense = run(
-        y, specs, profile.benchmark_period, evaluation_plan, levels, map_fn, periods, settle=settle
+        y,
+        specs,
+        profile.benchmark_period,
+        evaluation_plan,
+        levels,
+        map_fn,
+        periods,
+        settle=settle,
+        refit_at=plan.origins[1:],
     )
     # The ranking pools the scaled errors over every origin of the dense plan: more origins
     # for the same estimates, so one lucky window decides less.

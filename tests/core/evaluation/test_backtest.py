@@ -13,7 +13,7 @@ import pytest
 
 from service.api.render import backtest_body
 from service.core.errors import RequestError
-from service.core.evaluation.backtest import backtest, label_of
+from service.core.evaluation.backtest import backtest, label_of, run
 from service.core.evaluation.origins import plan_origins
 from service.core.models.arima.family import ArimaSpec
 from service.core.models.base import Specification
@@ -76,6 +76,67 @@ def test_parameters_come_from_before_the_first_origin() -> None:
     history_end = y.to_numpy()[27]
     assert last.point == pytest.approx(history_end + slope_before * np.array([1.0, 2.0]))
     assert first.origin == y.index[24]
+
+
+def test_refit_at_estimates_again_before_the_later_origins() -> None:
+    # Origins 24, 26, 28 with estimates again at 26 and 28: each origin forecasts with the
+    # slope of the points before it, the one between none (a plan of 3 origins 2 apart).
+    y = monthly(np.concatenate([np.arange(20.0), 20.0 + 5.0 * np.arange(1, 11)]))
+    plan = plan_origins(len(y), horizon=2, origins=3, step=2)
+    [model] = run(y, [DriftSpec()], 1, plan, (0.8,), refit_at=plan.origins[1:])
+    values = y.to_numpy()
+    for origin, fc in zip(plan.origins, model.forecasts, strict=True):
+        slope = float(np.mean(np.diff(values[:origin])))
+        assert fc.point == pytest.approx(values[origin - 1] + slope * np.array([1.0, 2.0]))
+
+
+def test_refit_at_keeps_the_earlier_estimate_between_refits() -> None:
+    # Origins 24, 25, 26, 27, 28 with one estimate again at 26: origins 24-25 use the slope
+    # before 24, origins 26-28 the slope before 26.
+    y = monthly(np.concatenate([np.arange(20.0), 20.0 + 5.0 * np.arange(1, 11)]))
+    plan = plan_origins(len(y), horizon=2, origins=5, step=1)
+    [model] = run(y, [DriftSpec()], 1, plan, (0.8,), refit_at=(26,))
+    values = y.to_numpy()
+    for origin, fc in zip(plan.origins, model.forecasts, strict=True):
+        estimated = 24 if origin < 26 else 26
+        slope = float(np.mean(np.diff(values[:estimated])))
+        assert fc.point == pytest.approx(values[origin - 1] + slope * np.array([1.0, 2.0]))
+
+
+@dataclass(frozen=True)
+class FailsLateSpec:
+    """Drift that cannot be estimated on more than 25 points: a later estimate that fails."""
+
+    family: ClassVar[str] = "fails_late"
+    summary: ClassVar[str] = "drift up to 25 points"
+
+    def fit(self, y: pd.Series, seasonal_period: int = 1) -> object:
+        if len(y) > 25:
+            raise np.linalg.LinAlgError("singular matrix")
+        return _SettlesOn(DriftSpec().fit(y, seasonal_period), self)
+
+
+class _SettlesOn:
+    """A fitted drift model whose settled structure is the given specification."""
+
+    def __init__(self, inner: object, spec: object) -> None:
+        self._inner, self._spec = inner, spec
+
+    def __getattr__(self, name: str) -> object:
+        return getattr(self._inner, name)
+
+    def settled_specification(self) -> object:
+        return self._spec
+
+
+def test_a_failed_later_estimate_keeps_the_earlier_one() -> None:
+    y = monthly(np.concatenate([np.arange(20.0), 20.0 + 5.0 * np.arange(1, 11)]))
+    plan = plan_origins(len(y), horizon=2, origins=3, step=2)
+    [model] = run(y, [FailsLateSpec()], 1, plan, (0.8,), refit_at=plan.origins[1:])
+    [early] = run(y, [DriftSpec()], 1, plan, (0.8,))
+    assert model.ok
+    for got, want in zip(model.forecasts, early.forecasts, strict=True):
+        np.testing.assert_allclose(got.point, want.point)
 
 
 def test_failures_are_data_and_ranking_skips_them() -> None:
