@@ -36,6 +36,7 @@ _ROUTE_OPTIONS: dict[str, dict[str, str]] = {
         "step": "int",
         "coverage": "floats",
         "metric": "text",
+        "estimation": "text",
         "models": "models",
     },
 }

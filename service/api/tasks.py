@@ -111,4 +111,5 @@ def backtest_task(body: BacktestRequest, settings: Settings) -> jobs.BacktestTas
         coverage=check_coverage(body.coverage),
         metric=body.metric,
         seasonal_periods=series.seasonal_periods,
+        estimation=body.estimation,
     )

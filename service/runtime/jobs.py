@@ -311,6 +311,7 @@ class BacktestTask:
     coverage: tuple[float, ...]
     metric: str
     seasonal_periods: tuple[float, ...] = ()
+    estimation: str = "first_origin"
 
 
 def backtests(task: BacktestTask) -> tuple[BacktestReport, list[FitWarning]]:
@@ -322,6 +323,7 @@ def backtests(task: BacktestTask) -> tuple[BacktestReport, list[FitWarning]]:
         "step": task.step,
         "coverage": task.coverage,
         "metric": task.metric,
+        "estimation": task.estimation,
     }
     with captured(found):
         if task.specifications is None:

@@ -21,6 +21,34 @@ def test_a_backtest_ranks_the_given_models(client: Any) -> None:
         assert key in first["overall"], key
 
 
+def test_every_origin_estimation_fits_again_before_each_origin(client: Any) -> None:
+    # A series whose slope changes: drift estimated once keeps the early slope at the last
+    # origin, estimated again it takes the slope of all the points before that origin.
+    values = [float(i) for i in range(20)] + [20.0 + 5.0 * i for i in range(1, 11)]
+    body: dict[str, Any] = {
+        "series": {"start": "2020", "frequency": "P1Y", "values": values},
+        "models": ["drift"],
+        "horizon": 2,
+        "origins": 3,
+        "step": 2,
+    }
+    once = client.post("/v1/backtests", json=body).json()
+    again = client.post("/v1/backtests", json={**body, "estimation": "every_origin"}).json()
+    assert once["estimation"] == "first_origin"
+    assert again["estimation"] == "every_origin"
+    assert once["origins"] == again["origins"]
+    # The first origin's window is forecast from the same estimate either way; later windows
+    # see the steeper slope, so the errors shrink.
+    assert again["models"][0]["overall"]["mae"] < once["models"][0]["overall"]["mae"]
+
+
+def test_an_unknown_estimation_is_named(client: Any) -> None:
+    body = demo.request_body("orders", "backtest", horizon=4)
+    response = client.post("/v1/backtests", json={**body, "estimation": "sometimes"})
+    assert response.status_code == 422
+    assert response.json()["errors"][0]["field"] == "estimation"
+
+
 def test_too_few_points_for_the_origins_names_the_fields(client: Any) -> None:
     body = {
         "series": {

@@ -115,6 +115,13 @@ def test_backtest_and_diagnostics_tables(client: TestClient) -> None:
     assert {r["step"] for r in rows} == {"all", "1", "2", "3"}
     assert len({r["model"] for r in rows}) == 2
     assert "observed_coverage_80" in rows[0] and "msis_95" in rows[0]
+    again = client.post(
+        "/v1/backtests?horizon=3&models=naive,drift&estimation=every_origin",
+        content=csv_body(stamps, values),
+        headers={"content-type": "text/csv"},
+    )
+    assert again.status_code == 200
+    assert again.json()["estimation"] == "every_origin"
     diagnostics_body = json_body(stamps, values, max_lag=12)
     answer = client.post("/v1/diagnostics", json=diagnostics_body).json()
     diagnostics = client.post(

@@ -40,6 +40,13 @@ class BacktestRequest(Strict):
         default_factory=lambda: [0.8, 0.95], min_length=1, max_length=10
     )
     metric: RankingMetric = Field("mase", description="The score that ranks the models.")
+    estimation: Literal["first_origin", "every_origin"] = Field(
+        "first_origin",
+        description="`first_origin`: each model is estimated once, on the data before the "
+        "first origin, and its parameters are carried through the later origins (fast); "
+        "`every_origin`: estimated again on the data before every origin, as a forecast made "
+        "then would be (one fit per origin and model).",
+    )
 
 
 class ScoresOut(Out):
@@ -90,6 +97,7 @@ class BacktestResponse(Out):
     metric: str
     horizon: int
     step: int
+    estimation: str = Field(description="Where each model was estimated, as asked.")
     origins: list[str]
     coverage: list[float]
     models: list[ModelBacktestOut]

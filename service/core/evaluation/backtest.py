@@ -290,15 +290,18 @@ def backtest(
     metric: str = "mase",
     map_fn: MapFn[Task, ModelBacktest] | None = None,
     periods: Sequence[int] | None = None,
+    estimation: str = "first_origin",
 ) -> BacktestReport:
     """Rolling-origin evaluation of the given specifications (POST /v1/backtests);
-    ``periods`` as in ``run``."""
+    ``periods`` as in ``run``; ``estimation`` one of ``ESTIMATIONS``."""
     check_metric(metric)
+    check_estimation(estimation)
     if not specifications:
         raise RequestError("give at least one specification", field="models")
     plan = plan_origins(len(y), horizon, origins, step, seasonal_period)
     levels = check_coverage(coverage)
-    models = run(y, specifications, seasonal_period, plan, levels, map_fn, periods)
+    again = plan.origins[1:] if estimation == "every_origin" else ()
+    models = run(y, specifications, seasonal_period, plan, levels, map_fn, periods, refit_at=again)
     return BacktestReport(
         metric=metric,
         horizon=horizon,
@@ -307,4 +310,21 @@ def backtest(
         coverage=levels,
         models=tuple(models),
         ranking=rank(models, metric),
+        estimation=estimation,
     )
+
+
+ESTIMATIONS = ("first_origin", "every_origin")
+"""Where a backtest estimates each model: once, on the data before the first origin, its
+parameters then re-filtered through the later origins (fast, the default); or again on the
+data before every origin (as a forecast made at that time would be; one fit per origin)."""
+
+
+def check_estimation(estimation: str) -> str:
+    """One of ``ESTIMATIONS``."""
+    if estimation not in ESTIMATIONS:
+        raise RequestError(
+            f"estimation must be one of {', '.join(ESTIMATIONS)}; got {estimation!r}",
+            field="estimation",
+        )
+    return estimation

@@ -176,6 +176,8 @@ class BacktestReport:
     coverage: tuple[float, ...]
     models: tuple[ModelBacktest, ...]
     ranking: tuple[RankEntry, ...] = field(default=())
+    estimation: str = "first_origin"
+    """Where each model was estimated: ``backtest.ESTIMATIONS``."""
 
 
 def rank(models: Sequence[ModelBacktest], metric: str) -> tuple[RankEntry, ...]:

@@ -351,11 +351,13 @@ def backtest_auto(
     diagnostics: Any | None = None,
     map_fn: MapFn[Task, ModelBacktest] | None = None,
     thorough: bool = False,
+    estimation: str = "first_origin",
 ) -> Any:
     """POST /v1/backtests with specifications "auto": the candidates ``select`` would try."""
-    from service.core.evaluation.backtest import backtest
+    from service.core.evaluation.backtest import backtest, check_estimation
 
     check_metric(metric)
+    check_estimation(estimation)
     profile = profile_series(y, seasonal_period, diagnostics)
     specs = with_benchmarks(list(candidates_for(profile, thorough).specifications), profile)
     return backtest(
@@ -369,4 +371,5 @@ def backtest_auto(
         metric=metric,
         map_fn=map_fn,
         periods=model_periods(specs, profile),
+        estimation=estimation,
     )

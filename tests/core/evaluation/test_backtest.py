@@ -103,6 +103,25 @@ def test_refit_at_keeps_the_earlier_estimate_between_refits() -> None:
         assert fc.point == pytest.approx(values[origin - 1] + slope * np.array([1.0, 2.0]))
 
 
+def test_every_origin_estimation_is_one_fit_per_origin() -> None:
+    rng = np.random.default_rng(5)
+    y = monthly(40 + rng.normal(0, 1, 48).cumsum())
+    spec = EtsSpec("add", "none", False, "none")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        report = backtest(y, [spec], horizon=4, origins=3, step=4, estimation="every_origin")
+        for fc in report.models[0].forecasts:
+            origin = int(y.index.get_loc(fc.origin))
+            own = spec.fit(y.iloc[:origin], 1).forecast(4, (0.8, 0.95))
+            # The later fits start from the earlier estimate: the same optimum, to the
+            # optimiser's tolerance.
+            np.testing.assert_allclose(fc.point, own.point, rtol=1e-3)
+    assert report.estimation == "every_origin"
+    with pytest.raises(RequestError) as info:
+        backtest(y, [spec], horizon=4, estimation="always")
+    assert info.value.problems[0].field == "estimation"
+
+
 @dataclass(frozen=True)
 class FailsLateSpec:
     """Drift that cannot be estimated on more than 25 points: a later estimate that fails."""
