@@ -77,6 +77,23 @@ def selection_plan(
     return None
 
 
+NEW_DATA_SHARE = 0.02
+"""The selection estimates its candidates again at a later origin only when the points added
+since their latest estimate are at least this share of the points that estimate used: on long
+series the parameters barely move while the fits cost most (RESULTS.md)."""
+
+
+def estimated_again_at(plan: Plan, share: float = NEW_DATA_SHARE) -> tuple[int, ...]:
+    """The selection origins after the first where the candidates are estimated again."""
+    out: list[int] = []
+    latest = plan.origins[0]
+    for origin in plan.origins[1:]:
+        if origin - latest >= share * latest:
+            out.append(origin)
+            latest = origin
+    return tuple(out)
+
+
 def feasible_plan(
     n: int, horizon: int, origins: int, period: int, training: int | None = None
 ) -> tuple[Plan, bool] | None:

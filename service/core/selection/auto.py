@@ -13,7 +13,8 @@ Rules (stated for DEVELOPERS.md):
   origin does not fit, the longest horizon that fits is used, with the warning
   ``backtest_horizon_shortened``. Scored by ``metric`` (mase, default | smape | rmse | mae).
   Each candidate is estimated before the first origin and again before each later selection
-  origin, and re-filtered forward from the latest estimate to the origins between them.
+  origin (where the new points are >= 2 % of those of the latest estimate), and re-filtered
+  forward from the latest estimate to the origins between them.
 - Ranking: scaled errors pooled over every origin of the dense plan (the selection origins
   plus the calibration origins between the first and n − h): more origins, same estimates
   (each calibration origin re-filters the latest estimate before it).
@@ -54,7 +55,12 @@ from service.core.checks import check_coverage, check_positive_int
 from service.core.errors import RequestError
 from service.core.evaluation import calibration as cal
 from service.core.evaluation.backtest import MapFn, Task, run
-from service.core.evaluation.origins import MINIMUM_ORIGINS, calibration_plan, dense_plan
+from service.core.evaluation.origins import (
+    MINIMUM_ORIGINS,
+    calibration_plan,
+    dense_plan,
+    estimated_again_at,
+)
 from service.core.evaluation.records import ModelBacktest, RankEntry
 from service.core.evaluation.scoring import check_metric
 from service.core.models.base import (
@@ -146,7 +152,8 @@ def select(
         calibration_plan(len(y), plan.horizon, profile.benchmark_period, first=plan.origins[0]),
     )
     # Each candidate is estimated again at the later selection origins: every window is then
-    # forecast from the data before it, as the delivered forecast is from all the data.
+    # forecast from the data before it, as the delivered forecast is from all the data (on
+    # long series only where the new points are a noticeable share: estimated_again_at).
     dense = run(
         y,
         specs,
@@ -156,7 +163,7 @@ def select(
         map_fn,
         periods,
         settle=settle,
-        refit_at=plan.origins[1:],
+        refit_at=estimated_again_at(plan),
     )
     # The ranking pools the scaled errors over every origin of the dense plan: more origins
     # for the same estimates, so one lucky window decides less.

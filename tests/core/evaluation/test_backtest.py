@@ -14,7 +14,7 @@ import pytest
 from service.api.render import backtest_body
 from service.core.errors import RequestError
 from service.core.evaluation.backtest import backtest, label_of, run
-from service.core.evaluation.origins import plan_origins
+from service.core.evaluation.origins import Plan, estimated_again_at, plan_origins
 from service.core.models.arima.family import ArimaSpec
 from service.core.models.base import Specification
 from service.core.models.drift import DriftSpec
@@ -46,6 +46,16 @@ class BrokenSpec:
 def test_origins_end_at_the_last_point() -> None:
     plan = plan_origins(40, horizon=6, origins=3, step=4)
     assert plan.origins == (26, 30, 34)
+
+
+def test_estimated_again_only_where_the_new_points_count() -> None:
+    # 22 points before the first origin, 6 more at each later one: estimated again at each.
+    assert estimated_again_at(Plan((22, 28, 34), 6, 6)) == (28, 34)
+    # 2,856 points, 48 more (1.7 %): not worth a fit; 96 more (3.4 %): estimated again.
+    assert estimated_again_at(Plan((2856, 2904, 2952), 48, 48)) == (2952,)
+    # 9,856 points: neither 48 nor 96 more reach 2 %.
+    assert estimated_again_at(Plan((9856, 9904, 9952), 48, 48)) == ()
+    assert estimated_again_at(Plan((40,), 6, 6)) == ()
 
 
 def test_too_few_points_names_the_fields() -> None:
