@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import itertools
 import json
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -11,7 +12,7 @@ import pytest
 
 from service.api.render import backtest_body, selection_body
 from service.core.errors import RequestError
-from service.core.evaluation.origins import calibration_plan, selection_plan
+from service.core.evaluation.origins import calibration_plan, estimated_again_at, selection_plan
 from service.core.models.drift import DriftSpec
 from service.core.models.naive import NaiveSpec
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
@@ -337,6 +338,25 @@ def test_long_series_are_estimated_on_their_latest_points_with_a_warning(
     # Four seasons are always kept, whatever the cap.
     assert len(selection.recent_history(y, 24)) == 90
     assert len(selection.recent_history(y.iloc[:50], 12)) == 50
+
+
+def test_candidates_are_estimated_again_before_each_selection_origin(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    from service.core.selection import auto as selection
+
+    asked: list[tuple[int, ...]] = []
+    real = selection.run
+
+    def spy(*args: Any, **kwargs: Any) -> Any:
+        asked.append(tuple(kwargs.get("refit_at", ())))
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(selection, "run", spy)
+    select(seasonal_series(), 12, 12)
+    plan = selection_plan(72, 12, 3, 12)
+    assert plan is not None and plan.origins == (36, 48, 60)
+    assert asked[0] == estimated_again_at(plan) == (48, 60)
 
 
 def test_three_weeks_of_hourly_data_score_the_several_period_models() -> None:
