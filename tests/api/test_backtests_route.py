@@ -97,3 +97,12 @@ def test_a_batch_over_the_limit_is_refused(make_client: Any) -> None:
         response = client.post("/v1/forecast-batches", json={"requests": [one, one, one]})
     assert response.status_code == 422
     assert response.json()["errors"][0]["field"] == "requests"
+
+
+def test_the_estimation_choices_are_the_core_s() -> None:
+    from typing import get_args
+
+    from service.api.schemas.common import Estimation
+    from service.core.evaluation.backtest import ESTIMATIONS
+
+    assert get_args(Estimation) == ESTIMATIONS

@@ -8,6 +8,7 @@ from pydantic import Field
 
 from service.api.schemas.common import (
     CoverageLevels,
+    Estimation,
     FamilyName,
     OriginCount,
     OriginStep,
@@ -40,7 +41,7 @@ class BacktestRequest(Strict):
         default_factory=lambda: [0.8, 0.95], min_length=1, max_length=10
     )
     metric: RankingMetric = Field("mase", description="The score that ranks the models.")
-    estimation: Literal["first_origin", "every_origin"] = Field(
+    estimation: Estimation = Field(
         "first_origin",
         description="`first_origin`: each model is estimated once, on the data before the "
         "first origin, and its parameters are carried through the later origins (fast); "
@@ -97,7 +98,7 @@ class BacktestResponse(Out):
     metric: str
     horizon: int
     step: int
-    estimation: str = Field(description="Where each model was estimated, as asked.")
+    estimation: Estimation = Field(description="Where each model was estimated, as asked.")
     origins: list[str]
     coverage: list[float]
     models: list[ModelBacktestOut]

@@ -55,6 +55,9 @@ TimestampList = Annotated[
 RankingMetric = Literal["mase", "smape", "rmse", "mae"]
 """The point scores a backtest (and auto's selection) can rank by: core POINT_METRICS."""
 
+Estimation = Literal["first_origin", "every_origin"]
+"""Where a backtest estimates each model: core ``evaluation.backtest.ESTIMATIONS``."""
+
 
 # Checked by the core (core.checks.check_coverage names the index); stated here for the schema.
 CoverageLevels = Annotated[

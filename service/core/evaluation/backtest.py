@@ -95,11 +95,11 @@ def evaluate(task: Task) -> ModelBacktest:
             label = label_of(fitted)
             start = time.perf_counter()
             at: dict[int, Forecast] = {}
+            # Each origin forecasts from the latest estimate at or before it (the first
+            # estimate also serves any origin before it).
+            ends = [end for end, _ in estimates[1:]] + [len(y) + 1]
             for k, (end, estimate) in enumerate(estimates):
-                until = estimates[k + 1][0] if k + 1 < len(estimates) else None
-                group = [o for o in plan.origins if until is None or o < until]
-                if k > 0:
-                    group = [o for o in group if o >= end]
+                group = [o for o in plan.origins if (k == 0 or o >= end) and o < ends[k]]
                 at.update(_forecasts_from(estimate, end, y, group, task))
             forecasts.extend(_one_origin(at[o], y, o, plan.horizon, task) for o in plan.origins)
             refilter_seconds = time.perf_counter() - start
