@@ -26,9 +26,9 @@ SettingsFactory = Callable[..., Settings]
 def pytest_configure(config: pytest.Config) -> None:
     """One BLAS thread, as in the pool's workers: statsmodels' many tiny linear-algebra calls
     ran 5-20 times slower multi-threaded on these two shared cores."""
-    from threadpoolctl import threadpool_limits
+    from service.runtime.workers import pin_threads
 
-    config._windvane_blas = threadpool_limits(1)  # type: ignore[attr-defined]
+    pin_threads()
 
 
 ClientFactory = Callable[..., AbstractContextManager[TestClient]]

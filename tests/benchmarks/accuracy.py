@@ -39,7 +39,6 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from threadpoolctl import threadpool_limits
 
 from service.core.data.periods import default_periods, whole_period
 from service.core.diagnostics.report import diagnose
@@ -54,6 +53,7 @@ from service.core.models.seasonal_naive import SeasonalNaiveSpec
 from service.core.models.theta import ThetaSpec
 from service.core.selection.auto import select
 from service.core.selection.candidates import seasonality_test
+from service.runtime.workers import pin_threads
 from tests.benchmarks.accuracy_series import PANELS, Case, earlier
 
 LEVELS = (0.8, 0.95)
@@ -433,5 +433,5 @@ def main(args: list[str]) -> None:
 
 if __name__ == "__main__":
     # One BLAS thread, as in the service's workers (seconds are comparable with theirs).
-    with threadpool_limits(1):
-        main(sys.argv[1:])
+    pin_threads()
+    main(sys.argv[1:])

@@ -15,11 +15,11 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from statsmodels.tsa.statespace.sarimax import SARIMAX
-from threadpoolctl import threadpool_limits
 
 from service.core.models.arima.family import ArimaSpec
 from service.core.models.arima.search import search_orders
 from service.core.models.arima.walk import SearchLimits
+from service.runtime.workers import pin_threads
 
 HORIZON = 12
 REPEATS = 3
@@ -169,11 +169,11 @@ def spec_fit() -> None:
 
 def main() -> None:
     print(f"cores seen: {os.cpu_count()}; BLAS threads: 1; load {os.getloadavg()[0]:.1f}")
-    with threadpool_limits(1):
-        fixed_orders()
-        search()
-        quick_against_thorough()
-        spec_fit()
+    pin_threads()
+    fixed_orders()
+    search()
+    quick_against_thorough()
+    spec_fit()
 
 
 if __name__ == "__main__":

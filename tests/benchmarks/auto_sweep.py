@@ -29,7 +29,8 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from threadpoolctl import threadpool_limits
+
+from service.runtime.workers import pin_threads
 
 PERIOD = 12
 COMBINATIONS = tuple(
@@ -118,7 +119,7 @@ def main() -> None:
     import service.runtime.jobs  # noqa: F401  (what the fork server preloads)
     from tests.benchmarks.selection_speed import series
 
-    threadpool_limits(1)
+    pin_threads()
     warnings.simplefilter("ignore")
     y = series()
     from service.runtime.spread import cores_idle

@@ -18,9 +18,9 @@ import pandas as pd
 from statsmodels.tsa.exponential_smoothing.ets import ETSModel
 from statsmodels.tsa.forecasting.theta import ThetaModel
 from statsmodels.tsa.statespace.sarimax import SARIMAX
-from threadpoolctl import threadpool_limits
 
 from service.core.models import registry
+from service.runtime.workers import pin_threads
 
 N, PERIOD, HORIZON, REPEATS = 200, 12, 24, 5
 COVERAGE = (0.8, 0.95)
@@ -193,14 +193,14 @@ def main() -> None:
         f"cores seen={cores}, BLAS threads=1"
     )
     print(f"{'family':<34}{'core s':>10}{'direct s':>10}{'ratio':>8}")
-    with threadpool_limits(1):
-        for name, ours, direct in rows(monthly(), intermittent()):
-            try:
-                a, b = median_seconds(ours), median_seconds(direct)
-            except Exception as exc:  # a family another developer is still building
-                print(f"{name:<34}{'failed: ' + type(exc).__name__:>28}")
-                continue
-            print(f"{name:<34}{a:>10.4f}{b:>10.4f}{a / b:>8.2f}")
+    pin_threads()
+    for name, ours, direct in rows(monthly(), intermittent()):
+        try:
+            a, b = median_seconds(ours), median_seconds(direct)
+        except Exception as exc:  # a family another developer is still building
+            print(f"{name:<34}{'failed: ' + type(exc).__name__:>28}")
+            continue
+        print(f"{name:<34}{a:>10.4f}{b:>10.4f}{a / b:>8.2f}")
 
 
 if __name__ == "__main__":

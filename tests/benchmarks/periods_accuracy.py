@@ -30,13 +30,13 @@ from collections.abc import Callable
 
 import numpy as np
 import pandas as pd
-from threadpoolctl import threadpool_limits
 
 from service.core.diagnostics.report import diagnose
 from service.core.evaluation.scoring import mase, mase_scale
 from service.core.models.base import Forecast
 from service.core.models.seasonal_naive import SeasonalNaiveSpec
 from service.core.selection.auto import select
+from service.runtime.workers import pin_threads
 from tests.benchmarks.accuracy import LEVELS, ets, m4_combination
 from tests.multi_period_series import daily_calls, daily_rate, hourly_counts, hourly_rate
 
@@ -93,7 +93,7 @@ BENCHMARKS = ("seasonal naive, longest period", "ets (AICc)", "ses/holt/damped")
 
 
 def main(args: list[str]) -> None:
-    threadpool_limits(1)
+    pin_threads()
     print(f"cores seen: {os.cpu_count()}")
     columns = [*METHODS, GENERATING]
     print(f"{'series':22s} " + " ".join(f"{m[:15]:>15s}" for m in columns) + "  auto s  load")

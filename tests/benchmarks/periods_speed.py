@@ -17,12 +17,11 @@ import sys
 import time
 import warnings
 
-from threadpoolctl import threadpool_limits
-
 from service.api.schemas.forecasts import ForecastRequest
 from service.api.tasks import forecast_task
 from service.config import Settings
 from service.runtime import jobs
+from service.runtime.workers import pin_threads
 from tests.multi_period_series import hourly_counts
 
 TARGETS = {2000: 3.0, 10000: 8.0}
@@ -51,7 +50,7 @@ def timed(points: int, period: object) -> tuple[float, str]:
 
 
 def main(args: list[str]) -> None:
-    threadpool_limits(1)
+    pin_threads()
     lengths = [int(a) for a in args] or [2000, 10000]
     print(f"cores seen: {os.cpu_count()}")
     timed(500, [24, 168])  # imports and first-call costs out of the figures

@@ -40,7 +40,8 @@ from concurrent.futures import ProcessPoolExecutor
 
 import numpy as np
 import pandas as pd
-from threadpoolctl import threadpool_limits
+
+from service.runtime.workers import pin_threads
 
 N, PERIOD, HORIZON = 200, 12, 24
 LEVELS = (0.8, 0.95)
@@ -95,7 +96,7 @@ def main() -> None:
 
     imports = time.perf_counter() - start
     # One BLAS thread, as in the pool's workers (several made each fit slower here).
-    threadpool_limits(1)
+    pin_threads()
     y = series()
     warnings.simplefilter("ignore")
     cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else os.cpu_count()

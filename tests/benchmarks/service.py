@@ -183,24 +183,23 @@ def resident_mb(root: int) -> dict[str, float]:
 
 def in_process_seconds(payload: dict[str, Any], repeats: int) -> float:
     """Median seconds of the same parse + fit + forecast called directly, no HTTP."""
-    from threadpoolctl import threadpool_limits
-
     from service.api.tasks import forecast_task
     from service.config import Settings
     from service.runtime import jobs
+    from service.runtime.workers import pin_threads
 
     times = []
     # The same bodies as cold_http_seconds (an ETS search's cost depends on the data), on one
     # BLAS thread as in the pool's workers; the first call warms imports up and is not timed.
-    with threadpool_limits(1):
-        warm = ForecastRequest.model_validate(body(salt=999.0))
-        jobs.forecast(forecast_task(warm, Settings())[0])
-        for i in range(repeats):
-            request = ForecastRequest.model_validate({**payload, **body(salt=1.0 + i)})
-            started = time.perf_counter()
-            task, _ = forecast_task(request, Settings())
-            jobs.forecast(task)
-            times.append(time.perf_counter() - started)
+    pin_threads()
+    warm = ForecastRequest.model_validate(body(salt=999.0))
+    jobs.forecast(forecast_task(warm, Settings())[0])
+    for i in range(repeats):
+        request = ForecastRequest.model_validate({**payload, **body(salt=1.0 + i)})
+        started = time.perf_counter()
+        task, _ = forecast_task(request, Settings())
+        jobs.forecast(task)
+        times.append(time.perf_counter() - started)
     return float(np.median(times))
 
 
@@ -227,20 +226,19 @@ async def cold_http_times(base: str, payloads: list[dict[str, Any]]) -> list[flo
 
 def in_process_auto_seconds(repeats: int) -> float:
     """Median seconds of the same auto bodies through the worker's job, called directly."""
-    from threadpoolctl import threadpool_limits
-
     from service.api.tasks import forecast_task
     from service.config import Settings
     from service.runtime import jobs
+    from service.runtime.workers import pin_threads
 
     times = []
-    with threadpool_limits(1):
-        jobs.forecast(forecast_task(ForecastRequest.model_validate(auto_body(-1.0)), Settings())[0])
-        for i in range(repeats):
-            request = ForecastRequest.model_validate(auto_body(salt=1.0 + i))
-            started = time.perf_counter()
-            jobs.forecast(forecast_task(request, Settings())[0])
-            times.append(time.perf_counter() - started)
+    pin_threads()
+    jobs.forecast(forecast_task(ForecastRequest.model_validate(auto_body(-1.0)), Settings())[0])
+    for i in range(repeats):
+        request = ForecastRequest.model_validate(auto_body(salt=1.0 + i))
+        started = time.perf_counter()
+        jobs.forecast(forecast_task(request, Settings())[0])
+        times.append(time.perf_counter() - started)
     return float(np.median(times))
 
 

@@ -40,8 +40,16 @@ def test_domain_errors_come_back_with_their_fields(pool: WorkPool) -> None:
     assert asyncio.run(pool.run(pool_jobs.add, 1, 1)) == 2
 
 
-def test_workers_run_one_blas_thread(pool: WorkPool) -> None:
-    seen = asyncio.run(pool.run(pool_jobs.threads))
+def test_workers_run_one_blas_thread(monkeypatch: pytest.MonkeyPatch) -> None:
+    # The test process pins its own threads (conftest): a pool started without those
+    # variables shows that the workers set them themselves.
+    monkeypatch.delenv("OMP_NUM_THREADS", raising=False)
+    monkeypatch.delenv("OPENBLAS_NUM_THREADS", raising=False)
+    unpinned = WorkPool(1, 1, budget_seconds=20.0)
+    try:
+        seen = asyncio.run(unpinned.run(pool_jobs.threads))
+    finally:
+        unpinned.close()
     assert seen == {"OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1"}
 
 
