@@ -131,19 +131,30 @@ def test_css_watch_leaves_a_converging_fit_as_it_was(monkeypatch: pytest.MonkeyP
 def test_exact_fit_creeping_to_an_ma_unit_root_stops_at_the_boundary(
     monkeypatch: pytest.MonkeyPatch,
 ) -> None:
-    # Differenced white noise: the ARMA(1,1) likelihood's supremum has the MA root at 1.
-    w = np.diff(np.random.default_rng(1).normal(size=120))
+    # Differenced white noise: the ARMA(1,1) likelihood's supremum has the MA root at 1. Which
+    # seeds run to the iteration cap without the stop depends on the CPU's floating point
+    # (seed 1 did on one machine, not on another), so several seeds are fitted both ways.
     shape = ArmaShape(1, 1, 0, 0, 1)
-    stopped = dense_fit(shape, w, None, np.zeros(2), 30, tight=False)
-    tight = dense_fit(shape, w, None, np.zeros(2), 30, tight=True)
-    monkeypatch.setattr(likelihood, "BOUNDARY_AFTER", 10**6)
-    capped = dense_fit(shape, w, None, np.zeros(2), 30, tight=False)
-    assert not capped.converged and stopped.converged
-    assert stopped.evaluations < capped.evaluations
-    assert stopped.loglik == pytest.approx(capped.loglik, abs=likelihood.BOUNDARY_GAIN)
-    _, ma_poly = lag_polynomials(shape, stopped.arma)
-    assert smallest_root(ma_poly) < likelihood.BOUNDARY_MODULUS
+    fits = []
+    for seed in range(1, 9):
+        w = np.diff(np.random.default_rng(seed).normal(size=120))
+        monkeypatch.setattr(likelihood, "BOUNDARY_AFTER", 15)
+        stopped = dense_fit(shape, w, None, np.zeros(2), 30, tight=False)
+        monkeypatch.setattr(likelihood, "BOUNDARY_AFTER", 10**6)
+        capped = dense_fit(shape, w, None, np.zeros(2), 30, tight=False)
+        fits.append((w, stopped, capped))
+        assert stopped.converged and stopped.evaluations <= capped.evaluations
+        assert stopped.loglik == pytest.approx(capped.loglik, abs=likelihood.BOUNDARY_GAIN)
+    ran_out = [(w, s, c) for w, s, c in fits if not c.converged]
+    assert ran_out, "no seed crept to the boundary without the stop"
+    for _, stopped, capped in ran_out:
+        assert stopped.evaluations < capped.evaluations
+        _, ma_poly = lag_polynomials(shape, stopped.arma)
+        assert smallest_root(ma_poly) < likelihood.BOUNDARY_MODULUS
     # A tight (final) fit is never stopped there.
+    w = ran_out[0][0]
+    tight = dense_fit(shape, w, None, np.zeros(2), 30, tight=True)
+    monkeypatch.setattr(likelihood, "BOUNDARY_AFTER", 15)
     again = dense_fit(shape, w, None, np.zeros(2), 30, tight=True)
     assert np.array_equal(again.arma, tight.arma) and again.evaluations == tight.evaluations
 
