@@ -247,7 +247,8 @@ class Rows:
         return np.array([s.mase for s in self.scores[method]], dtype=float)
 
 
-def _geomean_ratio(a: np.ndarray, b: np.ndarray) -> float:
+def geomean_ratio(a: np.ndarray, b: np.ndarray) -> float:
+    """The geometric mean of a / b over the pairs where both are finite and positive."""
     keep = np.isfinite(a) & np.isfinite(b) & (a > 0) & (b > 0)
     return float(np.exp(np.mean(np.log(a[keep] / b[keep])))) if keep.any() else float("nan")
 
@@ -279,7 +280,7 @@ def figures(all_rows: Rows) -> dict[str, float]:
         "dropped": float(len(all_rows.cases) - len(rows.cases)),
     }
     for m in BENCHMARKS:
-        out[f"gm/{m}"] = _geomean_ratio(auto_mase, rows.mases(m))
+        out[f"gm/{m}"] = geomean_ratio(auto_mase, rows.mases(m))
     for level in LEVELS:
         out[f"cov{level:g}"] = float(np.nanmean([s.coverage[level] for s in rows.scores["auto"]]))
     for m in METHODS:
