@@ -25,6 +25,7 @@ import pandas as pd
 from service.runtime.workers import pin_threads
 from tests.benchmarks.accuracy import (
     FAILED,
+    LEVELS,
     METHODS,
     Rows,
     geomean_ratio,
@@ -163,6 +164,15 @@ def by_kind(rows: Rows, kinds: list[str]) -> None:
         )
 
 
+def coverage_by_method(rows: Rows) -> None:
+    """Every method's coverage at each level: auto's calibrated intervals beside the models' own."""
+    common = scored(rows)
+    print("\ncoverage   " + " ".join(f"{m[:15]:>15s}" for m in METHODS))
+    for level in LEVELS:
+        cells = [np.mean([s.coverage[level] for s in common.scores[m]]) for m in METHODS]
+        print(f"{level:8.0%}   " + " ".join(f"{100 * c:15.1f}" for c in cells))
+
+
 def main(argv: list[str] | None = None) -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--set", choices=("yearly", "monthly", "all"), default="all")
@@ -181,6 +191,7 @@ def main(argv: list[str] | None = None) -> None:
                 rows.scores[name].append(FAILED)
     report(rows, f"seeded series ({args.set}, {args.per_kind} of each kind)")
     targets(rows)
+    coverage_by_method(rows)
     by_kind(rows, kinds)
     print(f"load average at end: {os.getloadavg()}")
 
