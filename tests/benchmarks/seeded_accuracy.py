@@ -143,15 +143,15 @@ def seeded_cases(which: str, per_kind: int) -> list[tuple[str, Case]]:
     return [s.case(seed) for s in chosen for seed in range(per_kind * len(s.kinds))]
 
 
-def by_kind(rows: Rows, kinds: list[str]) -> None:
-    """Auto's geometric-mean ratios and 1.5 x count per kind of process."""
+def by_kind(rows: Rows, kinds: dict[str, str]) -> None:
+    """Auto's geometric-mean ratios and 1.5 x count per kind of process (``kinds``: case name
+    to kind)."""
     print(
         f"\n{'kind':22s} {'n':>3s} {'auto':>6s} {'best':>6s} {'gm/ETS':>7s} {'gm/damped':>9s}"
         f" {'gm/ARIMA':>8s} {'>1.5x':>5s}"
     )
-    for kind in dict.fromkeys(kinds):
-        flags = iter([k == kind for k in kinds])
-        part = scored(rows.subset(lambda _c, _k, flags=flags: next(flags)))
+    for kind in dict.fromkeys(kinds.values()):
+        part = scored(rows.subset(lambda case, _cut, kind=kind: kinds[case.name] == kind))
         auto = part.mases("auto")
         best = min(float(np.mean(part.mases(m))) for m in METHODS if m != "auto")
         simple = np.fmin(part.mases("naive"), part.mases("seasonal naive"))
@@ -179,10 +179,10 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--per-kind", type=int, default=30)
     args = parser.parse_args(argv)
     print(f"load average at start: {os.getloadavg()}, cores: {os.cpu_count()}")
-    rows, kinds = Rows(), []
+    rows, kinds = Rows(), {}
     for kind, case in seeded_cases(args.set, args.per_kind):
         rows.cases.append((case, 0))
-        kinds.append(kind)
+        kinds[case.name] = kind
         for name, method in METHODS.items():
             try:
                 rows.scores[name].append(score(case, method))
