@@ -23,6 +23,7 @@ LIBRARY_MODULES = (
     "scipy.linalg",
     "scipy.optimize",
     "scipy.signal",
+    "scipy.sparse",
     "scipy.special",
     "scipy.stats",
     "statsmodels.nonparametric.smoothers_lowess",

@@ -19,9 +19,11 @@ Rules (stated for DEVELOPERS.md):
   plus the calibration origins between the first and n − h): more origins, same estimates
   (each calibration origin re-filters the latest estimate before it).
 - Choice (choice.py): the combination of every non-benchmark candidate (ETS, Theta, ARIMA,
-  the SES/Holt/damped average, ...) weighted by the inverse square of its backtest score, by
-  default; a single model only with a 10 % lower score, a majority of origins and >= 5
-  disjoint windows. Drift is only a benchmark (the random-walk guard may deliver it).
+  the SES/Holt/damped average, ...) by default, weighted 70 % by the inverse square of its
+  backtest score and 30 % by the stacked weights (stacking.py: those that minimise the
+  combination's own backtest error); a single model only with a 10 % lower score, a majority
+  of origins and >= 5 disjoint windows. Drift is only a benchmark (the random-walk guard may
+  deliver it).
 - Guards (guard.py): the naive (seasonal naive) forecast for a (seasonal) random walk without
   5 % skill over it (the drift forecast instead of naive when carrying the average step pays:
   skill.drift_pays); the benchmark mixed in when the chosen forecast does not beat it;

@@ -6,10 +6,14 @@ of a few backtest origins chases noise, averaging does not. So:
 
 - Members of the combination: every working candidate except the benchmarks (naive, seasonal
   naive, drift, mean), e.g. ETS, Theta, ARIMA and the SES/Holt/damped average.
-- Weights: inversely proportional to the square of each member's pooled backtest score
-  (``WEIGHT_POWER``), the inverse-error weighting of Bates & Granger (1969): a member that
-  failed badly in the backtest keeps a small say instead of an equal one, and no threshold
-  decides who is in (the weightings compared are in tests/benchmarks/RESULTS.md).
+- Weights: a blend of two. The larger part, 1 - ``STACKING_SHARE``, is inversely
+  proportional to the square of each member's pooled backtest score (``WEIGHT_POWER``), the
+  inverse-error weighting of Bates & Granger (1969): a member that failed badly in the
+  backtest keeps a small say instead of an equal one, and no threshold decides who is in.
+  The rest are the stacked weights (stacking.py), fitted so the combination itself scores
+  best in the backtest; fitted weights are noisy, hence only a share of them: estimated
+  weights shrunk toward simple ones, as Diebold & Pauly (1990) propose (the weightings
+  compared are in tests/benchmarks/RESULTS.md).
 - A single model replaces the combination only when its pooled backtest score is at least
   ``SINGLE_MARGIN`` (10 %) lower AND it is better at a majority of the origins: a clear margin
   over several origins, not one lucky window.
@@ -35,8 +39,12 @@ import numpy as np
 from service.core.evaluation.records import ModelBacktest, RankEntry
 from service.core.models.base import Specification, family_of
 from service.core.selection.averaging import combine
+from service.core.selection.stacking import stacked_weights
 
 WEIGHT_POWER = 2.0
+STACKING_SHARE = 0.3
+"""The stacked weights' share of each member's weight; the inverse-square weights have the
+rest (blended_weights)."""
 SINGLE_MARGIN = 0.10
 TIE = 0.01
 MIN_WINDOWS = 5
@@ -102,6 +110,19 @@ def score_weights(scores: Sequence[float], windows: int = MIN_WINDOWS) -> tuple[
     return tuple(float(x) for x in raw / raw.sum())
 
 
+def blended_weights(
+    members: Sequence[ModelBacktest], metric: str, windows: int = MIN_WINDOWS
+) -> tuple[float, ...]:
+    """(1 - STACKING_SHARE) x the inverse-square weights + STACKING_SHARE x the stacked ones
+    (the inverse-square weights alone when stacking finds none)."""
+    scored = score_weights([m.score(metric) for m in members], windows)
+    stacked = stacked_weights(members)
+    if stacked is None:
+        return scored
+    share = STACKING_SHARE
+    return tuple((1.0 - share) * a + share * b for a, b in zip(scored, stacked, strict=True))
+
+
 def disjoint_windows(origins: Sequence[int], horizon: int) -> int:
     """How many of the origins' forecast windows do not overlap: the independent evidence."""
     count, end = 0, -1
@@ -147,7 +168,7 @@ def choose(
             return Choice("winner", (pool[0],), ranking)
     if len(pool) < 2:
         return Choice("winner", (single,), ranking)
-    weights = score_weights([results[i].score(metric) for i in pool], windows)
+    weights = blended_weights([results[i] for i in pool], metric, windows)
     mixed = combine([results[i] for i in pool], weights=weights)
     mixed_score = mixed.score(metric)
     ranking = tuple(

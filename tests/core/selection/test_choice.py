@@ -14,6 +14,7 @@ from service.core.models.theta import ThetaSpec
 from service.core.selection.choice import (
     MIN_WINDOWS,
     SEVERAL_PERIODS_TRIM,
+    STACKING_SHARE,
     best_single,
     choose,
     disjoint_windows,
@@ -59,7 +60,7 @@ def test_the_combination_is_the_default_even_when_one_member_scores_a_little_bet
     assert any(r.specification["family"] == "combination" for r in picked.ranking)
 
 
-def test_members_are_weighted_by_the_inverse_square_of_their_backtest_score() -> None:
+def test_members_are_weighted_by_their_backtest_score_and_the_stacked_weights() -> None:
     picked = decide(
         {"naive": [3, 3, 3], "drift": [2, 2, 2], "ets": [1.0, 1.0, 1.0], "theta": [2.0, 2, 2]},
         windows=MIN_WINDOWS - 1,
@@ -67,9 +68,10 @@ def test_members_are_weighted_by_the_inverse_square_of_their_backtest_score() ->
     assert picked.rule == "combination"
     weights = dict(zip(picked.members, picked.weights, strict=True))
     # Scores 1 and 2 at the power 2 x 4/5 (four disjoint windows of the five that give the
-    # full power): weights 1 and 2^-1.6, normalised.
+    # full power): weights 1 and 2^-1.6, normalised; blended with the stacked weights, which
+    # give ETS everything (both miss on the same side, ETS by less).
     low = 2.0**-1.6
-    share = 1 / (1 + low)
+    share = (1 - STACKING_SHARE) / (1 + low) + STACKING_SHARE
     np.testing.assert_allclose([weights[2], weights[3]], [share, 1 - share], rtol=1e-12)
     combined = next(r for r in picked.ranking if r.specification["family"] == "combination")
     # Both miss on the same side: the weighted mean of the two scores.

@@ -134,9 +134,10 @@ def test_a_walk_forecast_that_lost_to_seasonal_naive_gets_it_mixed_in_and_says_s
 
 
 def test_a_walk_with_a_weak_drift_gets_naive_mixed_in_when_drift_lost_to_it() -> None:
-    # Seeded walk, mean step 0.37 (sd 3, t² 2.2): the guard carries the step; in this backtest
-    # drift did worse than naive, so naive is mixed in, and the warning says so.
-    rng = np.random.default_rng(9)
+    # Seeded walk, mean step 0.37 (sd 2.7, t² 2.8): the guard carries the step; in this
+    # backtest drift did worse than naive, so naive is mixed in, and a warning says so when the
+    # mixture still lost to naive.
+    rng = np.random.default_rng(39)
     y = series(500 + np.concatenate([[0.0], np.cumsum(rng.normal(0.25, 3.0, 149))]))
     result = select(y, 12, 12, diagnostics=diagnose(y, 12))
     assert result.selection.rule == RANDOM_WALK_GUARD
