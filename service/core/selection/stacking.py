@@ -3,9 +3,10 @@
 Stacking (Wolpert 1992; Breiman 1996, with non-negative weights) fits the weights to the
 members' backtest forecasts jointly, so two members that miss on opposite sides can both
 keep a say, while weights from each member's own score cannot see that. The loss is the one
-the ranking uses by default: absolute errors scaled by each origin's MASE scale, pooled over
-every origin and step. Minimising it over weights >= 0 that sum to one is a linear program
-(least absolute deviations on the simplex), solved by scipy's HiGHS.
+the ranking uses by default, whatever the metric asked for (as the majority test in choice.py):
+absolute errors scaled by each origin's MASE scale, pooled over every origin and step.
+Minimising it over weights >= 0 that sum to one is a linear program (least absolute
+deviations on the simplex), solved by scipy's HiGHS.
 
 Weights fitted to a few overlapping windows are noisy (the forecast combination puzzle:
 Smith & Wallis 2009), so choice.py only blends them with the inverse-square weights.
