@@ -119,8 +119,10 @@ def blended_weights(
     stacked = stacked_weights(members)
     if stacked is None:
         return scored
-    share = STACKING_SHARE
-    return tuple((1.0 - share) * a + share * b for a, b in zip(scored, stacked, strict=True))
+    return tuple(
+        (1.0 - STACKING_SHARE) * a + STACKING_SHARE * b
+        for a, b in zip(scored, stacked, strict=True)
+    )
 
 
 def disjoint_windows(origins: Sequence[int], horizon: int) -> int:
